@@ -1,0 +1,35 @@
+"""investigator: find the records in a table that do not fit with the rest, and say why.
+
+    >>> import investigator
+    >>> result = investigator.scan("claims.csv", id="claim_id")
+    >>> result.flagged.sum(), result.write("scan.json")
+
+Flags are leads for a person to review, not proof of error or fraud.
+"""
+
+from __future__ import annotations
+
+__version__ = "0.1.0"
+
+__all__ = ["InputError", "ScanOptions", "ScanResult", "__version__", "scan"]
+
+
+def __getattr__(name: str):
+    # Deferred so that `investigator --help` and the first TUI frame do not pay for scikit-learn.
+    if name == "scan":
+        from .engine import scan
+
+        return scan
+    if name == "ScanResult":
+        from .result import ScanResult
+
+        return ScanResult
+    if name == "ScanOptions":
+        from .options import ScanOptions
+
+        return ScanOptions
+    if name == "InputError":
+        from .errors import InputError
+
+        return InputError
+    raise AttributeError(f"module 'investigator' has no attribute '{name}'")

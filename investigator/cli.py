@@ -1,0 +1,143 @@
+"""Command line: argument parsing and exit codes only; the work is done by the engine.
+
+Exit codes: 0 done, 2 bad input or usage (one line naming the file/column and the fix), 1 internal error.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+
+DESCRIPTION = (
+    "Find the records in a table that do not fit with the rest, and say why. "
+    "Flags are leads for a person to review, not proof of error or fraud."
+)
+METHOD_HELP = "robust_distance, local_density, isolation, neighbor_distance"
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> None:  # one line, exit 2, as for every usage error
+        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
+def _add_scan_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--id", metavar="COLUMN", help="column holding the record key (default: the data row)")
+    p.add_argument("--features", metavar="A,B,C", help="use exactly these columns as features")
+    p.add_argument("--exclude", metavar="X,Y", help="leave these columns out")
+    p.add_argument("--methods", metavar="K1,K2", help=f"methods to run (default all: {METHOD_HELP})")
+    p.add_argument("--log", metavar="auto|none|A,B", default="auto",
+                   help="log-transform skewed columns: auto (default, decision reported), none, or a list")
+    p.add_argument("--cutoff", metavar="Q", type=float, default=0.975,
+                   help="quantile each method flags above (default 0.975; chi-square for robust_distance)")
+    p.add_argument("--contamination", metavar="F", type=float,
+                   help="flag this share of records instead of using the cutoffs (e.g. 0.01)")
+    p.add_argument("--seed", metavar="N", type=int, default=0, help="random seed (default 0)")
+    p.add_argument("--sheet", metavar="NAME", help="worksheet of an .xlsx file (default: the first)")
+    p.add_argument("--exact", action="store_true",
+                   help="exact neighbour search even on large data "
+                   "(slower; by default it samples above 20,000 rows)")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="investigator", description=DESCRIPTION)
+    from . import __version__
+
+    parser.add_argument("--version", action="version", version=f"investigator {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    scan = sub.add_parser("scan", help="score every record and write the result",
+                          description="Score every record of DATA with several methods and the per-column "
+                          "rules, combine them, print a summary and optionally write the result.")
+    scan.add_argument("data", metavar="DATA", help="CSV/TSV, Parquet or XLSX file")
+    _add_scan_options(scan)
+    scan.add_argument("--out", metavar="FILE", help="write the result: .json, .csv or .parquet")
+    scan.add_argument("--top", metavar="N", type=int, default=10, help="flagged records in the summary")
+    scan.add_argument("--quiet", action="store_true", help="no summary and no progress bar")
+
+    demo = sub.add_parser("demo", help="scan the built-in demo data (invented expense claims)",
+                          description="Write the built-in demo data (invented expense claims of a "
+                          "fictional company) to a temporary folder, scan it and print the summary.")
+    demo.add_argument("--out", metavar="FILE", help="also write the result (.json, .csv, .parquet)")
+    demo.add_argument("--keep", metavar="FOLDER", help="write the demo CSV here instead of a temp folder")
+    demo.add_argument("--seed", metavar="N", type=int, default=0, help="random seed of the scan")
+    return parser
+
+
+def _options(args) -> dict:
+    return {
+        "id": args.id, "features": args.features, "exclude": args.exclude,
+        "methods": args.methods or None, "log": args.log, "cutoff": args.cutoff,
+        "contamination": args.contamination, "seed": args.seed, "sheet": args.sheet, "exact": args.exact,
+    }
+
+
+def _cmd_scan(args) -> int:
+    from .engine import scan
+    from .options import ScanOptions
+    from .progress import StderrBar, silent
+
+    opts = {k: v for k, v in _options(args).items() if v is not None}
+    result = scan(args.data, options=ScanOptions(**opts), progress=silent if args.quiet else StderrBar())
+    if args.out:
+        result.write(args.out)
+    if not args.quiet:
+        print(result.summary(top=args.top))
+        if args.out:
+            print(f"Result written to {args.out}")
+    return 0
+
+
+def _cmd_demo(args) -> int:
+    import tempfile
+    from pathlib import Path
+
+    from .demo import DEMO_ID, write_demo
+    from .engine import scan
+    from .progress import StderrBar
+
+    folder = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="investigator-demo-"))
+    folder.mkdir(parents=True, exist_ok=True)
+    path = write_demo(folder)
+    print(f"Demo data written to {path}")
+    result = scan(path, id=DEMO_ID, seed=args.seed, progress=StderrBar())
+    if args.out:
+        result.write(args.out)
+    print(result.summary())
+    if args.out:
+        print(f"Result written to {args.out}")
+    return 0
+
+
+COMMANDS = {"scan": _cmd_scan, "demo": _cmd_demo}
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return 2
+    from .errors import InputError
+
+    try:
+        return COMMANDS[args.command](args)
+    except InputError as exc:
+        print(f"investigator {args.command}: error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("investigator: interrupted", file=sys.stderr)
+        return 130
+    except Exception as exc:  # an internal error: one line, the traceback only on request
+        if os.environ.get("INVESTIGATOR_DEBUG"):
+            raise
+        print(
+            f"investigator {args.command}: internal error: {type(exc).__name__}: {exc} "
+            "(set INVESTIGATOR_DEBUG=1 to see the traceback, and please report it)",
+            file=sys.stderr,
+        )
+        return 1
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

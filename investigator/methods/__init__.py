@@ -1,0 +1,20 @@
+"""The scoring methods, one module each, and their stable keys."""
+
+from __future__ import annotations
+
+from .base import Method
+from .isolation import Isolation
+from .local_density import LocalDensity
+from .neighbor_distance import NeighborDistance
+from .robust_distance import RobustDistance
+
+METHODS: dict[str, type[Method]] = {
+    RobustDistance.key: RobustDistance,
+    LocalDensity.key: LocalDensity,
+    Isolation.key: Isolation,
+    NeighborDistance.key: NeighborDistance,
+}
+METHOD_KEYS = tuple(METHODS)
+
+__all__ = ["METHODS", "METHOD_KEYS", "Isolation", "LocalDensity", "Method", "NeighborDistance",
+           "RobustDistance"]

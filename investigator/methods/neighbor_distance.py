@@ -1,0 +1,35 @@
+"""neighbor_distance: distance to the k-th nearest neighbour."""
+
+from __future__ import annotations
+
+from .base import Method
+
+
+class NeighborDistance(Method):
+    """Distance from a record to its k-th nearest other record, in the scaled feature space.
+
+    Ramaswamy, S., Rastogi, R. & Shim, K. (2000), "Efficient algorithms for mining outliers from large data
+    sets", SIGMOD.
+
+    Parameters
+    ----------
+    k : which neighbour's distance is the score (default 10).
+    """
+
+    key = "neighbor_distance"
+    score_units = "distance to the k-th nearest neighbour (scaled units)"
+
+    def __init__(self, *, k: int = 10, cutoff: float = 0.975, contamination: float | None = None) -> None:
+        super().__init__(cutoff=cutoff, contamination=contamination)
+        self.k = k
+        self.needs_neighbors = k
+
+    def parameters(self) -> dict:
+        return {"k": int(self.k_)}
+
+    def _fit(self, X, neighbors):
+        self.k_ = min(self.k, neighbors.k)
+        return self.score(X, neighbors)
+
+    def score(self, X, neighbors):
+        return neighbors.distances[:, self.k_ - 1].copy()

@@ -1,0 +1,153 @@
+"""The result of a scan: one object that everything downstream reads (outputs, explanations, TUI)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .combine import Combination
+from .features import FeaturePreparer, Features
+from .methods.base import Method
+from .methods.column_rules import ColumnRules
+from .neighbors import NeighborGraph, NeighborSearch
+from .options import ScanOptions
+from .roles import ColumnInfo
+from .table import Table
+
+
+@dataclass
+class MethodResult:
+    key: str
+    method: Method
+    scores: np.ndarray
+    flags: np.ndarray
+    unified: np.ndarray
+
+
+@dataclass
+class ScanResult:
+    """Everything a scan computed.
+
+    Attributes: ``table`` (raw records), ``options``, ``columns`` (roles), ``features`` (prepared matrix),
+    ``preparer`` (fitted preparation), ``neighbors`` (the shared search) and ``graph`` (each record's
+    neighbours), ``methods`` (per method key: fitted method, scores, flags, unified scores),
+    ``combination`` (votes, consensus, flagged), ``rules`` and ``column_hits``, ``run`` (the run record).
+    """
+
+    table: Table
+    options: ScanOptions
+    columns: list[ColumnInfo]
+    features: Features
+    preparer: FeaturePreparer
+    neighbors: NeighborSearch | None
+    graph: NeighborGraph | None
+    methods: dict[str, MethodResult]
+    combination: Combination
+    rules: ColumnRules
+    column_hits: list[list[dict]]
+    run: dict
+
+    # -- plain arrays --------------------------------------------------------------------------------
+    @property
+    def n_records(self) -> int:
+        return self.table.n_rows
+
+    @property
+    def consensus(self) -> np.ndarray:
+        return self.combination.consensus
+
+    @property
+    def votes(self) -> np.ndarray:
+        return self.combination.votes
+
+    @property
+    def flagged(self) -> np.ndarray:
+        return self.combination.flagged
+
+    @property
+    def keys(self) -> list:
+        return self.table.keys
+
+    def scores(self, method: str) -> np.ndarray:
+        return self.methods[method].scores
+
+    def flags(self, method: str) -> np.ndarray:
+        return self.methods[method].flags
+
+    def ranking(self) -> np.ndarray:
+        """Record positions (0-based) ordered by consensus, highest first; ties keep file order."""
+        from .combine import ranking
+
+        return ranking(self.combination.z)
+
+    def position(self, row: int | None = None, key=None) -> int:
+        """0-based position of a record given its 1-based ``row`` or its ``key``."""
+        from .errors import InputError
+
+        if row is not None:
+            if not 1 <= int(row) <= self.n_records:
+                raise InputError(f"--row {row} is out of range; rows run from 1 to {self.n_records}")
+            return int(row) - 1
+        keys = [str(k) for k in self.keys]
+        if str(key) not in keys:
+            raise InputError(f"--key '{key}' not found in {self.table.name}")
+        return keys.index(str(key))
+
+    # -- records -------------------------------------------------------------------------------------
+    def record(self, i: int) -> dict:
+        names = self.features.names
+        return {
+            "row": i + 1,
+            "key": self.keys[i],
+            "scores": {k: _num(r.scores[i]) for k, r in self.methods.items()},
+            "flags": {k: bool(r.flags[i]) for k, r in self.methods.items()},
+            "consensus": _num(self.consensus[i]),
+            "votes": int(self.votes[i]),
+            "flagged": bool(self.flagged[i]),
+            "column_hits": self.column_hits[i],
+            "imputed": [names[j] for j in np.flatnonzero(self.features.imputed[i])],
+        }
+
+    def records(self) -> list[dict]:
+        return [self.record(i) for i in range(self.n_records)]
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per record: row, key, consensus, votes, flagged, score_<method>, flag_<method>, ..."""
+        out = {
+            "row": np.arange(1, self.n_records + 1),
+            "key": self.keys,
+            "consensus": self.consensus,
+            "votes": self.votes,
+            "flagged": self.flagged,
+        }
+        for k, r in self.methods.items():
+            out[f"score_{k}"] = r.scores
+        for k, r in self.methods.items():
+            out[f"flag_{k}"] = r.flags
+        out["column_hits"] = ["; ".join(f"{h['column']}: {h['rule']}" for h in hits)
+                              for hits in self.column_hits]
+        out["imputed"] = ["; ".join(self.features.names[j] for j in np.flatnonzero(m))
+                          for m in self.features.imputed]
+        return pd.DataFrame(out)
+
+    def to_dict(self) -> dict:
+        return {"run": self.run, "records": self.records()}
+
+    def write(self, path: str | Path) -> Path:
+        """Write the result; the format follows the extension (.json, .csv, .parquet)."""
+        from .export import write_result
+
+        return write_result(self, Path(path))
+
+    def summary(self, top: int = 10) -> str:
+        from .summary import summary_text
+
+        return summary_text(self, top=top)
+
+
+def _num(x) -> float | None:
+    x = float(x)
+    return x if np.isfinite(x) else None

@@ -1,0 +1,65 @@
+"""The short text summary printed by ``investigator scan``."""
+
+from __future__ import annotations
+
+CAUTION = (
+    "Flags are leads for a person to review, not proof of error or fraud; follow your audit standards "
+    "or quality system."
+)
+
+
+def _short(value, width: int = 14) -> str:
+    text = str(value)
+    return text if len(text) <= width else text[: width - 1] + "~"
+
+
+def summary_text(result, top: int = 10) -> str:
+    run = result.run
+    lines = []
+    src = run["input"]
+    digest = src.get("sha256", "")
+    lines.append(f"Scanned {result.table.name}" + (f" (sha256 {digest[:12]}...)" if digest else ""))
+    lines.append(f"{src['rows']:,} records, {src['columns']} columns, key: {src['key']}")
+    feats = []
+    for spec in result.features.specs:
+        tag = {"log": " (log)", "rarity": " (category)"}.get(spec.transform, "")
+        feats.append(spec.name + tag)
+    lines.append(f"Features ({len(feats)}): " + ", ".join(feats))
+    left = [f"{c.name} ({c.role})" for c in result.columns if not c.is_feature]
+    if left:
+        lines.append("Left out: " + ", ".join(left))
+    if run["notices"]:
+        lines.append("Notices:")
+        lines += [f"  - {n}" for n in run["notices"]]
+    nb = run.get("neighbors")
+    search = f"; neighbours: {nb['search']}, k={nb['k']}" if nb else ""
+    lines.append("Methods: " + ", ".join(result.methods) + search)
+    lines.append("Rule: " + run["rule"])
+    n, flagged = result.n_records, int(result.flagged.sum())
+    with_hits = sum(1 for h in result.column_hits if h)
+    lines.append(
+        f"Flagged: {flagged:,} of {n:,} records ({flagged / n:.1%}); {with_hits:,} records have column hits"
+    )
+    order = [i for i in result.ranking() if result.flagged[i]][:top]
+    if order:
+        lines.append("")
+        lines.append(f"Top {len(order)} flagged records by consensus:")
+        lines.append(f"  {'row':>6}  {'key':<14} {'consensus':>9} {'votes':>5}  methods / column hits")
+        m = len(result.methods)
+        for i in order:
+            strongest = sorted(
+                (k for k, r in result.methods.items() if r.flags[i]),
+                key=lambda k: -result.methods[k].unified[i],
+            )
+            cols = sorted({h["column"] for h in result.column_hits[i]})
+            detail = ", ".join(strongest) + (f" | {', '.join(cols)}" if cols else "")
+            lines.append(
+                f"  {i + 1:>6}  {_short(result.keys[i]):<14} {result.consensus[i]:>9.3f} "
+                f"{result.votes[i]:>2}/{m:<2}  {detail}"
+            )
+    lines.append("")
+    lines.append(CAUTION)
+    return "\n".join(lines)
+
+
+__all__ = ["CAUTION", "summary_text"]
