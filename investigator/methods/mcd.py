@@ -23,6 +23,7 @@ from scipy import stats
 ENUMERATE_AT_MOST = 5000  # h-subsets; below this the exact MCD is cheaper than the search
 SUBSAMPLE = 1500  # FastMCD draws its starts on a subsample of this size for large n (paper: 5 x 300)
 _RCOND = 1e-12
+_BATCH = 50  # starts whose C-steps run together as one batch of array operations
 
 
 @dataclass
@@ -95,7 +96,7 @@ class FastMCD:
         n, p = X.shape
         h = self.h_for(n, p)
         _, S_all = _mean_cov(X)
-        exact = comb(n, h) <= enumerate_at_most
+        exact = n <= 40 and comb(n, h) <= enumerate_at_most  # comb() itself is slow for large n
         ridge = self._ridge_for(S_all) if _is_singular(S_all) else 0.0
         try:
             subset = self._enumerate(X, h) if exact else self._search(X, h, ridge)
@@ -151,13 +152,20 @@ class FastMCD:
         else:
             sub, Xs, hs = None, X, h
         candidates = []
-        for _ in range(self.n_starts):
-            subset = self._start(Xs, hs, rng, ridge)
-            if subset is None:
+        for first in range(0, self.n_starts, _BATCH):
+            starts = [self._start(Xs, rng) for _ in range(min(_BATCH, self.n_starts - first))]
+            starts = [st for st in starts if st is not None]
+            if not starts:
                 continue
-            for _ in range(2):
-                subset, logdet = self._c_step(Xs, subset, hs, ridge)
-            candidates.append((logdet, tuple(np.sort(subset))))
+            sizes = {len(st) for st in starts}
+            for size in sizes:  # starts grown past p + 1 (singular ones) are batched by size
+                group = np.array([st for st in starts if len(st) == size])
+                subsets = _batch_closest(Xs, group, hs, ridge)
+                for _ in range(2):
+                    subsets = _batch_closest(Xs, subsets, hs, ridge)
+                logdets = _batch_logdet(Xs, subsets, ridge)
+                candidates += [(float(ld), tuple(np.sort(sb)))
+                               for ld, sb in zip(logdets, subsets, strict=True) if np.isfinite(ld)]
         if not candidates:
             raise _Singular
         candidates = sorted(set(candidates))[: self.n_best]
@@ -171,15 +179,13 @@ class FastMCD:
         return np.array(min(best)[1], dtype=np.intp)
 
     @staticmethod
-    def _start(X, h, rng, ridge):
-        """The paper's start: a random (p+1)-subset, grown until non-singular; then its h closest."""
+    def _start(X, rng):
+        """The paper's start: a random (p+1)-subset, grown until its covariance is non-singular."""
         n, p = X.shape
         order = rng.permutation(n)
         for size in range(p + 1, n + 1):
-            mu, S = _mean_cov(X[order[:size]])
-            S = _regularised(S, ridge)
-            if not _is_singular(S):
-                return np.argpartition(_sq_distances(X, mu, S), h - 1)[:h]
+            if not _is_singular(_mean_cov(X[order[:size]])[1]):
+                return order[:size]
         return None
 
     @staticmethod
@@ -201,6 +207,42 @@ class FastMCD:
                 break
             subset, logdet = new, new_logdet
         return logdet, tuple(subset)
+
+
+def _batch_closest(X: np.ndarray, subsets: np.ndarray, h: int, ridge: float) -> np.ndarray:
+    """One C-step for many subsets at once: the h records closest to each subset's mean and covariance.
+
+    Subsets whose covariance is singular (even with the ridge) are returned unchanged; their determinant
+    is -inf for _batch_logdet only when ridge is 0, which the caller turns into a restart with a ridge.
+    """
+    sub = X[subsets]  # (S, m, p)
+    mu = sub.mean(axis=1)
+    D = sub - mu[:, None, :]
+    cov = np.einsum("smi,smj->sij", D, D) / subsets.shape[1]
+    if ridge:
+        cov = cov + ridge * np.eye(X.shape[1])
+    w = np.linalg.eigvalsh(cov)
+    ok = w[:, 0] > _RCOND * np.maximum(w[:, -1], np.finfo(float).tiny)
+    if not ok.all() and not ridge:
+        raise _Singular
+    out = np.empty((len(subsets), h), dtype=np.intp)
+    L = np.linalg.cholesky(cov[ok])
+    Linv = np.linalg.inv(L)
+    Z = (X[None, :, :] - mu[ok][:, None, :]) @ np.swapaxes(Linv, 1, 2)
+    d2 = np.einsum("smi,smi->sm", Z, Z)
+    out[ok] = np.argpartition(d2, h - 1, axis=1)[:, :h]
+    out[~ok] = subsets[~ok][:, :h] if subsets.shape[1] >= h else np.argsort(X[:, 0])[:h]
+    return out
+
+
+def _batch_logdet(X: np.ndarray, subsets: np.ndarray, ridge: float) -> np.ndarray:
+    sub = X[subsets]
+    D = sub - sub.mean(axis=1)[:, None, :]
+    cov = np.einsum("smi,smj->sij", D, D) / subsets.shape[1]
+    if ridge:
+        cov = cov + ridge * np.eye(X.shape[1])
+    sign, logdet = np.linalg.slogdet(cov)
+    return np.where(sign > 0, logdet, -np.inf)
 
 
 class _Singular(Exception):

@@ -1,0 +1,90 @@
+"""local_density, neighbor_distance and isolation against reference libraries; the shared search."""
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy.spatial.distance import cdist
+from sklearn.ensemble import IsolationForest
+from sklearn.neighbors import LocalOutlierFactor
+
+import investigator
+from investigator import engine
+from investigator.neighbors import NeighborSearch
+
+
+@pytest.fixture(scope="module")
+def scanned():
+    rng = np.random.default_rng(1)
+    X = rng.normal(size=(300, 5))
+    X[:6] += 4
+    X[10:14] = rng.normal(-3, 0.1, size=(4, 5))
+    result = investigator.scan(pd.DataFrame(X, columns=list("abcde")), log="none")
+    return result, result.features.values
+
+
+def test_local_density_equals_scikit_learn_lof(scanned):
+    # Reference library: scikit-learn's LocalOutlierFactor (Breunig et al. 2000), same k, fitted on the
+    # same prepared features; its negative_outlier_factor_ is minus the LOF.
+    result, Z = scanned
+    lof = -LocalOutlierFactor(n_neighbors=20).fit(Z).negative_outlier_factor_
+    np.testing.assert_allclose(result.scores("local_density"), lof, rtol=1e-12)
+
+
+def test_neighbor_distance_equals_brute_force_cdist(scanned):
+    # Reference: all pairwise distances by SciPy's cdist; a record's own distance (0) excluded.
+    result, Z = scanned
+    D = cdist(Z, Z)
+    np.fill_diagonal(D, np.inf)
+    np.testing.assert_allclose(result.scores("neighbor_distance"), np.sort(D, axis=1)[:, 9], rtol=1e-12)
+
+
+def test_isolation_equals_scikit_learn_isolation_forest(scanned):
+    # Reference: scikit-learn's IsolationForest with the same trees, subsample and seed (Liu et al. 2008).
+    result, Z = scanned
+    forest = IsolationForest(n_estimators=200, max_samples=256, random_state=0).fit(Z)
+    np.testing.assert_allclose(result.scores("isolation"), -forest.score_samples(Z), rtol=1e-12)
+
+
+def test_the_neighbour_search_runs_once_per_scan(monkeypatch):
+    calls = []
+    original = NeighborSearch.fit
+
+    def counting(self, X):
+        calls.append(len(X))
+        return original(self, X)
+
+    monkeypatch.setattr(NeighborSearch, "fit", counting)
+    rng = np.random.default_rng(2)
+    investigator.scan(pd.DataFrame(rng.normal(size=(120, 3)), columns=list("abc")), log="none")
+    assert calls == [120]
+    monkeypatch.setattr(engine, "NeighborSearch", NeighborSearch)
+
+
+def test_sampled_search_with_the_whole_table_equals_the_exact_search():
+    rng = np.random.default_rng(3)
+    X = rng.normal(size=(500, 4))
+    exact = NeighborSearch(10).fit(X)
+    sampled = NeighborSearch(10, sample_above=100, sample_size=500).fit(X)
+    assert sampled.mode_ == "sampled"
+    g_exact = exact.query(X, rows=np.arange(500))
+    g_sampled = sampled.query(X, rows=np.arange(500))
+    np.testing.assert_allclose(g_sampled.distances, g_exact.distances, rtol=1e-12)
+
+
+def test_sampled_search_never_makes_a_record_its_own_neighbour():
+    rng = np.random.default_rng(4)
+    X = rng.normal(size=(3000, 3))
+    search = NeighborSearch(5, sample_above=1000, sample_size=400, seed=1).fit(X)
+    graph = search.query(X, rows=np.arange(3000))
+    own = search.reference_rows_[graph.indices]
+    assert not np.any(own == np.arange(3000)[:, None])
+    assert np.all(graph.distances > 0)
+    assert np.all(np.diff(graph.distances, axis=1) >= 0)
+
+
+def test_tiny_data_reduces_k_with_a_notice():
+    rng = np.random.default_rng(6)
+    frame = pd.DataFrame(rng.normal(size=(8, 2)), columns=["a", "b"])
+    result = investigator.scan(frame, log="none")
+    assert result.run["methods"]["local_density"]["parameters"]["k"] == 7
+    assert any("k = 7" in n for n in result.run["notices"])
