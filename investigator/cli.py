@@ -34,6 +34,9 @@ def _add_scan_options(p: argparse.ArgumentParser) -> None:
                    help="flag this share of records instead of using the cutoffs (e.g. 0.01)")
     p.add_argument("--seed", metavar="N", type=int, default=0, help="random seed (default 0)")
     p.add_argument("--sheet", metavar="NAME", help="worksheet of an .xlsx file (default: the first)")
+    p.add_argument("--resamples", metavar="R", type=int, default=0,
+                   help="re-run the methods on R random subsamples and report how often each flag recurs "
+                   "(default 0: off; 20 is a good choice)")
     p.add_argument("--exact", action="store_true",
                    help="exact neighbour search even on large data "
                    "(slower; by default it samples above 20,000 rows)")
@@ -55,12 +58,26 @@ def build_parser() -> argparse.ArgumentParser:
     scan.add_argument("--top", metavar="N", type=int, default=10, help="flagged records in the summary")
     scan.add_argument("--quiet", action="store_true", help="no summary and no progress bar")
 
+    explain = sub.add_parser("explain", help="explain why one record stands out",
+                             description="Scan DATA and explain one record: which features made it stand "
+                             "out and in which direction, its peers, what would make it ordinary.")
+    explain.add_argument("data", metavar="DATA", help="CSV/TSV, Parquet or XLSX file")
+    which = explain.add_mutually_exclusive_group(required=True)
+    which.add_argument("--row", metavar="N", type=int, help="the record's 1-based data row")
+    which.add_argument("--key", metavar="K", help="the record's key (the --id column's value)")
+    _add_scan_options(explain)
+    explain.add_argument("--peers", metavar="K", type=int, default=5, help="peers to show (default 5)")
+
     demo = sub.add_parser("demo", help="scan the built-in demo data (invented expense claims)",
                           description="Write the built-in demo data (invented expense claims of a "
                           "fictional company) to a temporary folder, scan it and print the summary.")
     demo.add_argument("--out", metavar="FILE", help="also write the result (.json, .csv, .parquet)")
     demo.add_argument("--keep", metavar="FOLDER", help="write the demo CSV here instead of a temp folder")
     demo.add_argument("--seed", metavar="N", type=int, default=0, help="random seed of the scan")
+
+    from .review.commands import add_review_commands  # verdict, verdicts: the review store
+
+    COMMANDS.update(add_review_commands(sub))
     return parser
 
 
@@ -69,6 +86,7 @@ def _options(args) -> dict:
         "id": args.id, "features": args.features, "exclude": args.exclude,
         "methods": args.methods or None, "log": args.log, "cutoff": args.cutoff,
         "contamination": args.contamination, "seed": args.seed, "sheet": args.sheet, "exact": args.exact,
+        "resamples": args.resamples,
     }
 
 
@@ -78,13 +96,32 @@ def _cmd_scan(args) -> int:
     from .progress import StderrBar, silent
 
     opts = {k: v for k, v in _options(args).items() if v is not None}
-    result = scan(args.data, options=ScanOptions(**opts), progress=silent if args.quiet else StderrBar())
+    options = ScanOptions(**opts)
+    if args.out:
+        from pathlib import Path
+
+        from .export import check_out_path
+
+        check_out_path(Path(args.out))
+    result = scan(args.data, options=options, progress=silent if args.quiet else StderrBar())
     if args.out:
         result.write(args.out)
     if not args.quiet:
         print(result.summary(top=args.top))
         if args.out:
             print(f"Result written to {args.out}")
+    return 0
+
+
+def _cmd_explain(args) -> int:
+    from .engine import scan
+    from .explain.text import explanation_text
+    from .options import ScanOptions
+    from .progress import StderrBar
+
+    opts = {k: v for k, v in _options(args).items() if v is not None}
+    result = scan(args.data, options=ScanOptions(**opts), progress=StderrBar())
+    print(explanation_text(result.explain(row=args.row, key=args.key, peers=args.peers)))
     return 0
 
 
@@ -109,7 +146,7 @@ def _cmd_demo(args) -> int:
     return 0
 
 
-COMMANDS = {"scan": _cmd_scan, "demo": _cmd_demo}
+COMMANDS = {"scan": _cmd_scan, "explain": _cmd_explain, "demo": _cmd_demo}
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -123,11 +160,15 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return COMMANDS[args.command](args)
     except InputError as exc:
-        print(f"investigator {args.command}: error: {exc}", file=sys.stderr)
+        message = str(exc).replace("\r", "\\r").replace("\n", "\\n")  # always one line
+        print(f"investigator {args.command}: error: {message}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("investigator: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into e.g. `head`, which stopped reading: not an error
+        sys.stderr.close()
+        return 0
     except Exception as exc:  # an internal error: one line, the traceback only on request
         if os.environ.get("INVESTIGATOR_DEBUG"):
             raise

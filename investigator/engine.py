@@ -20,8 +20,9 @@ from .roles import assign_roles
 from .table import Table, load_table
 
 
-def build_methods(options: ScanOptions, features: Features, notices: list[str]) -> list:
+def build_methods(options: ScanOptions, features: Features, notices: list[str], seed: int | None = None) -> list:
     """The configured method objects; robust_distance leaves out features too discrete for the MCD."""
+    seed = options.seed if seed is None else seed
     common = {"cutoff": options.cutoff, "contamination": options.contamination}
     built = []
     for key in options.methods:
@@ -41,9 +42,9 @@ def build_methods(options: ScanOptions, features: Features, notices: list[str]) 
                     f"{', '.join(left)} (categories, or over half the records at one value); the other "
                     "methods use them"
                 )
-            built.append(METHODS[key](seed=options.seed, columns=np.array(use), **common))
+            built.append(METHODS[key](seed=seed, columns=np.array(use), **common))
         elif key == "isolation":
-            built.append(METHODS[key](seed=options.seed, **common))
+            built.append(METHODS[key](seed=seed, **common))
         else:
             built.append(METHODS[key](**common))
     if not built:
@@ -67,22 +68,10 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent) ->
             "(leave some out with --exclude, or add rows)"
         )
     methods = build_methods(options, features, notices)
-    X = features.values
-    k = max((m.needs_neighbors for m in methods), default=0)
-    search = graph = None
-    if k:
-        progress("finding neighbours", 0.1)
-        search = NeighborSearch(k, exact=options.exact, seed=options.seed).fit(X)
-        graph = search.query(X, rows=np.arange(n))
-        if search.k_ < k:
-            notices.append(f"only {n} records: neighbour methods use k = {search.k_} instead of {k}")
-    results: dict[str, MethodResult] = {}
-    for i, method in enumerate(methods):
-        progress(method.key, 0.2 + 0.7 * i / len(methods))
-        method.fit(X, search.reference_graph_ if method.needs_neighbors else None)
-        scores = method.score(X, graph) if method.needs_neighbors else method.score(X)
-        results[method.key] = MethodResult(method.key, method, scores, method.flags(scores),
-                                           method.unify(scores))
+    progress("scoring", 0.1)
+    results, search, graph = fit_and_score(methods, features.values, options, progress=progress)
+    if search is not None and search.k_ < search.k:
+        notices.append(f"only {n} records: neighbour methods use k = {search.k_} instead of {search.k}")
     rd = results.get("robust_distance")
     if rd is not None and rd.method.mcd_.ridge:
         notices.append(
@@ -90,8 +79,12 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent) ->
             f"records); a ridge of {rd.method.mcd_.ridge:.1e} keeps distances finite"
         )
     progress("combining", 0.92)
-    combination = combine({k: r.method.standardise(r.scores) for k, r in results.items()},
-                          {k: r.flags for k, r in results.items()}, options.contamination)
+    combination = combine_results(results, options)
+    stability = None
+    if options.resamples:
+        from .explain.stability import flag_stability
+
+        stability = flag_stability(features, options, progress)
     rules = ColumnRules().fit(features)
     for name in rules.skipped_:
         notices.append(f"column '{name}': MAD is zero, so the modified z-score rule is skipped there")
@@ -100,7 +93,38 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent) ->
                       started)
     progress("done", 1.0)
     return ScanResult(table, options, columns, features, preparer, search, graph, results, combination,
-                      rules, hits, run)
+                      rules, hits, run, stability)
+
+
+def fit_and_score(methods: list, X: np.ndarray, options: ScanOptions, reference: np.ndarray | None = None,
+                  seed: int | None = None, progress: Progress = silent):
+    """Fit every method on the reference records (default: all) and score all records.
+
+    A record that is also a reference record is never its own neighbour. Returns the per-method results,
+    the neighbour search and the records' neighbour graph.
+    """
+    n = len(X)
+    rows = np.arange(n) if reference is None else reference
+    k = max((m.needs_neighbors for m in methods), default=0)
+    search = graph = None
+    if k:
+        search = NeighborSearch(k, exact=options.exact, seed=options.seed if seed is None else seed)
+        search.fit(X[rows], rows=rows)
+        graph = search.query(X, rows=np.arange(n))
+    results: dict[str, MethodResult] = {}
+    for i, method in enumerate(methods):
+        progress(method.key, 0.2 + 0.7 * i / len(methods))
+        ref_graph = search.reference_graph_ if method.needs_neighbors else None
+        method.fit(X[rows], ref_graph)
+        scores = method.score(X, graph) if method.needs_neighbors else method.score(X)
+        results[method.key] = MethodResult(method.key, method, scores, method.flags(scores),
+                                           method.unify(scores))
+    return results, search, graph
+
+
+def combine_results(results: dict[str, MethodResult], options: ScanOptions):
+    return combine({k: r.method.standardise(r.scores) for k, r in results.items()},
+                   {k: r.flags for k, r in results.items()}, options.contamination)
 
 
 def _versions() -> dict:

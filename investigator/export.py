@@ -50,12 +50,18 @@ def to_json_text(data: dict) -> str:
     return json.dumps(_clean(data), ensure_ascii=False, indent=1, allow_nan=False) + "\n"
 
 
-def write_result(result, path: Path) -> Path:
+def check_out_path(path: Path) -> None:
+    """Refuse an unusable --out before any work is done."""
     suffix = path.suffix.lower()
     if suffix not in FORMATS:
         raise InputError(f"--out {path}: unknown format '{suffix}'; use one of {', '.join(FORMATS)}")
     if not path.parent.exists():
         raise InputError(f"--out {path}: folder {path.parent} does not exist; create it first")
+
+
+def write_result(result, path: Path) -> Path:
+    check_out_path(path)
+    suffix = path.suffix.lower()
     tmp = path.with_name(path.name + ".part")
     if suffix == ".json":
         tmp.write_text(to_json_text(result.to_dict()), encoding="utf-8")

@@ -66,13 +66,16 @@ class FeatureSpec:
 
 @dataclass
 class Features:
-    """The prepared matrix: ``values`` is n x p, robust-scaled; ``transformed`` is before scaling."""
+    """The prepared matrix: ``values`` is n x p, robust-scaled; ``transformed`` is before scaling; ``raw``
+    holds the numbers as read (NaN for categories and for cells that were missing or unusable)."""
 
     names: list[str]
     specs: list[FeatureSpec]
     values: np.ndarray
     transformed: np.ndarray
     imputed: np.ndarray  # n x p booleans: True where a missing or non-finite cell was filled
+    raw: np.ndarray
+    levels: dict[int, np.ndarray] = field(default_factory=dict)  # categorical column -> level per record
 
     @property
     def n_features(self) -> int:
@@ -264,23 +267,29 @@ class FeaturePreparer:
         n, p = len(frame), len(self.specs_)
         transformed = np.empty((n, p))
         imputed = np.zeros((n, p), dtype=bool)
+        raw = np.full((n, p), np.nan)
+        level_arrays: dict[int, np.ndarray] = {}
         for j, spec in enumerate(self.specs_):
             values = frame[spec.name]
             if spec.role == CATEGORICAL:
                 levels = values.astype("string").fillna(MISSING_LEVEL)
+                level_arrays[j] = levels.to_numpy(dtype=object)
                 # A level the fit never saw gets the rarity of half a record: rarer than any seen level.
                 unseen = float(np.log(spec.typical_share * 2 * self.n_fit_))
                 t = levels.map(spec.levels).to_numpy(dtype=float, na_value=unseen)
                 imputed[:, j] = False
             else:
-                t = self._apply_numeric(spec, column_numbers(values))
+                numbers = column_numbers(values)
+                t = self._apply_numeric(spec, numbers)
                 imputed[:, j] = np.isnan(t)
+                raw[:, j] = np.where(imputed[:, j], np.nan, numbers)
                 t = np.where(imputed[:, j], spec.fill, t)
             transformed[:, j] = t
         centers = np.array([s.center for s in self.specs_])
         scales = np.array([s.scale for s in self.specs_])
         values = (transformed - centers) / scales
-        return Features([s.name for s in self.specs_], list(self.specs_), values, transformed, imputed)
+        return Features([s.name for s in self.specs_], list(self.specs_), values, transformed, imputed, raw,
+                        level_arrays)
 
     def fit_transform(self, table: Table, columns: list[ColumnInfo]) -> Features:
         return self.fit(table, columns).transform(table)

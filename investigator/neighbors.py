@@ -55,17 +55,21 @@ class NeighborSearch:
         self.sample_above = sample_above
         self.sample_size = sample_size
 
-    def fit(self, X: np.ndarray) -> NeighborSearch:
+    def fit(self, X: np.ndarray, rows: np.ndarray | None = None) -> NeighborSearch:
+        """Fit on reference records ``X``; ``rows`` are their data rows (default 0..n-1), so that a record
+        that is also a reference record is never its own neighbour."""
         n = len(X)
+        rows = np.arange(n) if rows is None else np.asarray(rows)
         self.k_ = min(self.k, n - 1)
         if self.exact or n <= self.sample_above:
             self.mode_ = "exact"
-            self.reference_rows_ = np.arange(n)
+            chosen = np.arange(n)
         else:
             self.mode_ = "sampled"
             rng = np.random.default_rng([self.seed, 7])
-            self.reference_rows_ = np.sort(rng.choice(n, size=min(self.sample_size, n), replace=False))
-        self.reference_ = X[self.reference_rows_]
+            chosen = np.sort(rng.choice(n, size=min(self.sample_size, n), replace=False))
+        self.reference_rows_ = rows[chosen]
+        self.reference_ = X[chosen]
         from sklearn.neighbors import NearestNeighbors
 
         self.index_ = NearestNeighbors(n_neighbors=self.k_).fit(self.reference_)

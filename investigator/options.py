@@ -33,6 +33,7 @@ class ScanOptions:
     seed: int = 0
     sheet: str | None = None
     exact: bool = False
+    resamples: int = 0
 
     def __post_init__(self) -> None:
         set_ = object.__setattr__
@@ -78,6 +79,14 @@ class ScanOptions:
             if seed < 0:
                 raise InputError(f"--seed must be a whole number >= 0, not '{self.seed}'")
             set_(self, "seed", seed)
+
+        try:
+            resamples = int(self.resamples)
+        except (TypeError, ValueError):
+            resamples = -1
+        if not 0 <= resamples <= 1000 or (isinstance(self.resamples, float) and not self.resamples.is_integer()):
+            raise InputError(f"--resamples must be a whole number from 0 to 1000, not '{self.resamples}'")
+        set_(self, "resamples", resamples)
 
     def as_dict(self) -> dict:
         out = asdict(self)

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -34,7 +34,8 @@ class ScanResult:
     Attributes: ``table`` (raw records), ``options``, ``columns`` (roles), ``features`` (prepared matrix),
     ``preparer`` (fitted preparation), ``neighbors`` (the shared search) and ``graph`` (each record's
     neighbours), ``methods`` (per method key: fitted method, scores, flags, unified scores),
-    ``combination`` (votes, consensus, flagged), ``rules`` and ``column_hits``, ``run`` (the run record).
+    ``combination`` (votes, consensus, flagged), ``rules`` and ``column_hits``, ``run`` (the run record),
+    ``stability`` (with ``resamples``: the share of resampled runs that flag each record).
     """
 
     table: Table
@@ -49,6 +50,9 @@ class ScanResult:
     rules: ColumnRules
     column_hits: list[list[dict]]
     run: dict
+    stability: np.ndarray | None = None  # share of resampled runs flagging each record (--resamples)
+    _explanations: dict | None = field(default=None, init=False, repr=False)
+    _typical: list | None = field(default=None, init=False, repr=False)
 
     # -- plain arrays --------------------------------------------------------------------------------
     @property
@@ -96,9 +100,41 @@ class ScanResult:
             raise InputError(f"--key '{key}' not found in {self.table.name}")
         return keys.index(str(key))
 
+    # -- explanations --------------------------------------------------------------------------------
+    def explain(self, row_or_key=None, *, row: int | None = None, key=None, peers: int = 5) -> dict:
+        """Why a record stands out: contributions per method, the combined view, peers, the smallest
+        change that would make it ordinary, and stability. ``row_or_key`` is the key when the scan has an
+        --id column, otherwise the 1-based row (which is then the key)."""
+        from .explain.view import explain_positions
+
+        if row is None and key is None:
+            if row_or_key is None:
+                raise TypeError("explain() needs a row or a key")
+            key = row_or_key
+        return explain_positions(self, [self.position(row=row, key=key)], peers=peers)[0]
+
+    def explanations(self) -> dict[int, dict]:
+        """Explanations of every flagged record, by 0-based position (computed once)."""
+        if self._explanations is None:
+            from .explain.view import explain_positions
+
+            flagged = np.flatnonzero(self.flagged)
+            self._explanations = dict(zip(flagged.tolist(), explain_positions(self, flagged), strict=True))
+        return self._explanations
+
     # -- records -------------------------------------------------------------------------------------
     def record(self, i: int) -> dict:
         names = self.features.names
+        explained = self.explanations().get(i)
+        extra = {
+            "contributions": explained["contributions"] if explained else None,
+            "top_features": explained["top_features"] if explained else None,
+            "peers": [{"row": p["row"], "key": p["key"]} for p in explained["peers"]["records"]]
+            if explained else None,
+            "nearest_ordinary": explained["nearest_ordinary"] if explained else None,
+        }
+        if self.stability is not None:
+            extra["stability"] = _num(self.stability[i])
         return {
             "row": i + 1,
             "key": self.keys[i],
@@ -109,6 +145,7 @@ class ScanResult:
             "flagged": bool(self.flagged[i]),
             "column_hits": self.column_hits[i],
             "imputed": [names[j] for j in np.flatnonzero(self.features.imputed[i])],
+            **extra,
         }
 
     def records(self) -> list[dict]:
@@ -131,6 +168,13 @@ class ScanResult:
                               for hits in self.column_hits]
         out["imputed"] = ["; ".join(self.features.names[j] for j in np.flatnonzero(m))
                           for m in self.features.imputed]
+        from .explain.view import top_features_text
+
+        explained = self.explanations()
+        out["top_features"] = [top_features_text(explained[i]) if i in explained else ""
+                               for i in range(self.n_records)]
+        if self.stability is not None:
+            out["stability"] = self.stability
         return pd.DataFrame(out)
 
     def to_dict(self) -> dict:

@@ -66,6 +66,8 @@ def infer_column(name: str, values: pd.Series) -> ColumnInfo:
     dtype = str(values.dtype)
     if len(present) == 0:
         return ColumnInfo(name, EMPTY, dtype, missing, 0, "no values")
+    if pd.api.types.is_float_dtype(values) and not np.isfinite(present.to_numpy(dtype=float)).any():
+        return ColumnInfo(name, EMPTY, dtype, missing, 0, "no values (only infinite ones)")
     distinct = int(present.nunique())
     info = ColumnInfo(name, NUMERIC, dtype, missing, distinct, "")
     if pd.api.types.is_bool_dtype(values):
@@ -83,11 +85,13 @@ def _numeric_role(info: ColumnInfo, present: pd.Series) -> None:
     as_float = present.astype("float64")
     finite = as_float[np.isfinite(as_float)]
     integral = len(finite) and bool(np.all(np.mod(finite, 1) == 0))
+    # A counter: unique whole numbers, in increasing order, with few gaps (range at most twice the count).
     if (
         integral
         and info.distinct == len(present)
         and len(present) >= 3
         and present.is_monotonic_increasing
+        and float(finite.max() - finite.min()) <= 2 * (len(present) - 1)
     ):
         info.role, info.reason = IDENTIFIER, "a counter: unique whole numbers in increasing order"
     else:

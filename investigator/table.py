@@ -10,7 +10,9 @@ import csv
 import hashlib
 import io
 import zipfile
+import zlib
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 
 import pandas as pd
@@ -24,6 +26,8 @@ EXCEL_SUFFIXES = {".xlsx", ".xlsm"}
 # Tried in order when a file is not valid UTF-8. cp1252 is the usual spreadsheet export on Windows;
 # latin-1 decodes any byte string, so it is the last resort and always says so in a notice.
 FALLBACK_ENCODINGS = ("cp1252", "latin-1")
+# What a damaged .xlsx raises, when opened or while its rows are read (parts are parsed lazily).
+XLSX_ERRORS = (zipfile.BadZipFile, KeyError, OSError, ValueError, SyntaxError, EOFError, zlib.error)
 
 
 @dataclass
@@ -62,7 +66,7 @@ class Table:
     def n_rows(self) -> int:
         return len(self.frame)
 
-    @property
+    @cached_property
     def keys(self) -> list:
         if self.key_column is None:
             return list(range(1, len(self.frame) + 1))
@@ -81,7 +85,12 @@ def _plain(value):
 def load_table(data, *, sheet: str | None = None, id_column: str | None = None) -> Table:
     """Read ``data`` (a path or a pandas DataFrame) into a :class:`Table` and check it is scannable."""
     if isinstance(data, pd.DataFrame):
-        table = Table(frame=data.reset_index(drop=True), source=Source(path=None, format="dataframe"))
+        frame = data.reset_index(drop=True)
+        for col in frame.columns[frame.dtypes == object]:
+            # Cells holding lists, dicts or other objects are read as their text, as a file would hold them.
+            if frame[col].map(lambda v: isinstance(v, list | dict | set | tuple)).any():
+                frame[col] = frame[col].map(lambda v: v if v is None or isinstance(v, float) else str(v))
+        table = Table(frame=frame, source=Source(path=None, format="dataframe"))
         _check_header(list(map(str, data.columns)), "the data frame")
         table.frame.columns = [str(c) for c in table.frame.columns]
     else:
@@ -158,7 +167,7 @@ def _read_text(path: Path, raw: bytes, digest: str, id_column: str | None):
     text, encoding, notices = _decode(raw)
     delimiter = _sniff_delimiter(text, path.suffix.lower())
     header = next(csv.reader(io.StringIO(text), delimiter=delimiter), [])
-    _check_header(header, str(path))
+    _check_header(_name_blanks(header), str(path))
     dtype = {id_column: str} if id_column is not None and id_column in header else None
     try:
         frame = pd.read_csv(io.StringIO(text), sep=delimiter, dtype=dtype, skipinitialspace=True)
@@ -178,7 +187,11 @@ def _read_parquet(path: Path) -> pd.DataFrame:
     try:
         import pyarrow.parquet as pq
 
+        # Names first: pyarrow cannot read a file whose columns share a name, and would not say so plainly.
+        _check_header([str(c) for c in pq.read_schema(path).names], str(path))
         frame = pq.read_table(path).to_pandas()
+    except InputError:
+        raise
     except Exception as exc:  # pyarrow raises several types for damaged files
         reason = str(exc).strip().splitlines()[0][:120] if str(exc).strip() else type(exc).__name__
         raise InputError(
@@ -193,11 +206,8 @@ def _read_excel(path: Path, sheet: str | None) -> tuple[pd.DataFrame, str]:
         import openpyxl
 
         book = openpyxl.load_workbook(path, read_only=True, data_only=True)
-    except (zipfile.BadZipFile, KeyError, OSError, ValueError) as exc:
-        raise InputError(
-            f"{path}: not a readable .xlsx workbook ({type(exc).__name__}); check the file is complete "
-            "or re-save it from the spreadsheet program"
-        ) from None
+    except XLSX_ERRORS as exc:
+        raise _unreadable_xlsx(path, exc) from None
     try:
         names = book.sheetnames
         if sheet is None:
@@ -211,8 +221,13 @@ def _read_excel(path: Path, sheet: str | None) -> tuple[pd.DataFrame, str]:
         header = ["" if h is None else str(h) for h in header]
         while header and header[-1] == "":
             header.pop()
+        header = _name_blanks(header)
         _check_header(header, f"{path} (sheet '{sheet}')")
         records = [list(r[: len(header)]) for r in rows if any(v is not None for v in r)]
+    except InputError:
+        raise
+    except XLSX_ERRORS as exc:
+        raise _unreadable_xlsx(path, exc) from None
     finally:
         book.close()
     frame = pd.DataFrame(records, columns=header)
@@ -221,13 +236,26 @@ def _read_excel(path: Path, sheet: str | None) -> tuple[pd.DataFrame, str]:
     return frame, sheet
 
 
+def _unreadable_xlsx(path: Path, exc: Exception) -> InputError:
+    return InputError(
+        f"{path}: not a readable .xlsx workbook ({type(exc).__name__}); check the file is complete "
+        "or re-save it from the spreadsheet program"
+    )
+
+
+def _name_blanks(header: list[str]) -> list[str]:
+    """Blank header cells named as pandas names them in a CSV ('Unnamed: 3', counted from 0), so that
+    trailing empty columns of a spreadsheet export are not taken for duplicate names."""
+    return [h if h.strip() else f"Unnamed: {i}" for i, h in enumerate(header)]
+
+
 def _check_header(header: list[str], where: str) -> None:
     seen: dict[str, int] = {}
     for position, name in enumerate(header, 1):
         key = name.strip()
         if key in seen:
             raise InputError(
-                f"{where}: column name '{key}' appears twice (columns {seen[key]} and {position}); "
+                f"{where}: column name '{_show(key)}' appears twice (columns {seen[key]} and {position}); "
                 "rename one so every column has its own name"
             )
         seen[key] = position
@@ -263,12 +291,17 @@ def _check_key(table: Table, column: str) -> None:
         first = values.iloc[dup[0]]
         rows = [str(i + 1) for i in dup if values.iloc[i] == first][:3]
         raise InputError(
-            f"{table.name}: --id column '{column}' has the value '{first}' in rows {', '.join(rows)}; "
+            f"{table.name}: --id column '{column}' has the value '{_show(first)}' in rows {', '.join(rows)}; "
             "a key must be unique (choose another column, or leave --id out to key records by row)"
         )
 
 
+def _show(name) -> str:
+    """A name or value fit for a one-line message: line breaks (common in spreadsheet headers) escaped."""
+    return str(name).replace("\r", "\\r").replace("\n", "\\n")
+
+
 def _list(names, limit: int = 12) -> str:
-    names = [str(n) for n in names]
+    names = [_show(n) for n in names]
     shown = ", ".join(names[:limit])
     return shown + (f", ... ({len(names)} in all)" if len(names) > limit else "")

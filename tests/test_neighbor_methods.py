@@ -8,7 +8,6 @@ from sklearn.ensemble import IsolationForest
 from sklearn.neighbors import LocalOutlierFactor
 
 import investigator
-from investigator import engine
 from investigator.neighbors import NeighborSearch
 
 
@@ -49,15 +48,14 @@ def test_the_neighbour_search_runs_once_per_scan(monkeypatch):
     calls = []
     original = NeighborSearch.fit
 
-    def counting(self, X):
+    def counting(self, X, rows=None):
         calls.append(len(X))
-        return original(self, X)
+        return original(self, X, rows)
 
     monkeypatch.setattr(NeighborSearch, "fit", counting)
     rng = np.random.default_rng(2)
     investigator.scan(pd.DataFrame(rng.normal(size=(120, 3)), columns=list("abc")), log="none")
     assert calls == [120]
-    monkeypatch.setattr(engine, "NeighborSearch", NeighborSearch)
 
 
 def test_sampled_search_with_the_whole_table_equals_the_exact_search():

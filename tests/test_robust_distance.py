@@ -120,3 +120,14 @@ def test_nearly_as_many_features_as_rows():
     frame = pd.DataFrame(rng.normal(size=(8, 6)), columns=list("abcdef"))
     result = investigator.scan(frame, methods="robust_distance", log="none")
     assert np.all(np.isfinite(result.scores("robust_distance")))
+
+
+@pytest.mark.parametrize("n", [30, 500])
+def test_an_exact_linear_pair_is_handled(n):
+    # b = 2a + 1 for every record: all records lie on a line, the MCD covariance is singular everywhere.
+    a = np.random.default_rng(12).normal(size=n)
+    frame = pd.DataFrame({"a": a, "b": 2 * a + 1})
+    frame.loc[4, "b"] += 1.0
+    result = investigator.scan(frame, methods="robust_distance", log="none")
+    assert any("singular" in notice for notice in result.run["notices"])
+    assert int(np.argmax(result.scores("robust_distance"))) == 4

@@ -72,7 +72,7 @@ class ColumnRules:
                         out[i].append({
                             "column": spec.name,
                             "rule": rule,
-                            "value": float(spec.to_original(t[i])),
+                            "value": float(features.raw[i, j]),
                             "limit": float(spec.to_original(limit)),
                             "side": side,
                         })

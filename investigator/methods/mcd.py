@@ -153,7 +153,7 @@ class FastMCD:
             sub, Xs, hs = None, X, h
         candidates = []
         for first in range(0, self.n_starts, _BATCH):
-            starts = [self._start(Xs, rng) for _ in range(min(_BATCH, self.n_starts - first))]
+            starts = [self._start(Xs, rng, ridge) for _ in range(min(_BATCH, self.n_starts - first))]
             starts = [st for st in starts if st is not None]
             if not starts:
                 continue
@@ -179,12 +179,12 @@ class FastMCD:
         return np.array(min(best)[1], dtype=np.intp)
 
     @staticmethod
-    def _start(X, rng):
+    def _start(X, rng, ridge):
         """The paper's start: a random (p+1)-subset, grown until its covariance is non-singular."""
         n, p = X.shape
         order = rng.permutation(n)
         for size in range(p + 1, n + 1):
-            if not _is_singular(_mean_cov(X[order[:size]])[1]):
+            if not _is_singular(_regularised(_mean_cov(X[order[:size]])[1], ridge)):
                 return order[:size]
         return None
 

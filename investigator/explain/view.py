@@ -1,0 +1,165 @@
+"""One record's explanation: the combined view across methods, its peers and the smallest change.
+
+Combined view: each method's contributions become shares (negative Shapley values count 0 here), the shares
+are averaged over the methods, and the features with the largest mean share are listed with the record's raw
+value, the direction (higher / lower than typical, or rarer for a category), the typical range among
+unflagged records (median and interquartile range in the column's own units, or the commonest level), the
+robust z-score the methods saw, and the methods that point at it (share >= 25%, or the method's top feature).
+
+Peers: the k nearest unflagged records in the scaled feature space (brute force, so exact), never the record
+itself, with the features where the record differs most from the peers' median.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from ..roles import CATEGORICAL
+from .contributions import method_contributions, shares
+from .nearest import nearest_ordinary
+
+POINTS_AT = 0.25
+TOP = 5
+TYPICAL_Z = 0.5  # within half a robust standard deviation of the median: neither higher nor lower
+
+
+def typical_ranges(result) -> list[dict]:
+    """Per feature, what an unflagged record looks like (cached on the result)."""
+    if result._typical is not None:
+        return result._typical
+    ordinary = ~result.flagged
+    if not ordinary.any():
+        ordinary = np.ones(result.n_records, dtype=bool)
+    out = []
+    for j, spec in enumerate(result.features.specs):
+        if spec.role == CATEGORICAL:
+            levels = pd.Series(result.features.levels[j][ordinary])
+            share = levels.value_counts(normalize=True)
+            out.append({"level": str(share.index[0]), "share": float(share.iloc[0])})
+        else:
+            keep = ordinary & ~result.features.imputed[:, j]
+            t = result.features.transformed[keep, j]
+            q1, med, q3 = (float(spec.to_original(v)) for v in np.quantile(t, [0.25, 0.5, 0.75]))
+            out.append({"median": med, "q1": q1, "q3": q3})
+    result._typical = out
+    return out
+
+
+def raw_value(result, i: int, j: int):
+    if j in result.features.levels:
+        return str(result.features.levels[j][i])
+    if result.features.imputed[i, j]:
+        return None
+    return float(result.features.raw[i, j])
+
+
+def find_peers(result, positions: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Positions and distances of the k nearest unflagged records to each record in ``positions``."""
+    from sklearn.neighbors import NearestNeighbors
+
+    ordinary = np.flatnonzero(~result.flagged)
+    k = min(k, len(ordinary) - 1 if len(ordinary) > 1 else len(ordinary))
+    if k <= 0:
+        return np.zeros((len(positions), 0), dtype=int), np.zeros((len(positions), 0))
+    X = result.features.values
+    index = NearestNeighbors(n_neighbors=k + 1, algorithm="brute").fit(X[ordinary])
+    dist, idx = index.kneighbors(X[positions])
+    cand = ordinary[idx]
+    keep = cand != positions[:, None]
+    keep[:, -1] &= ~keep[:, :-1].all(axis=1)  # drop the last when the record itself is not among them
+    return cand[keep].reshape(len(positions), k), dist[keep].reshape(len(positions), k)
+
+
+def explain_positions(result, positions, peers: int = 5) -> list[dict]:
+    """Explanations for the records at 0-based ``positions`` (batched where it pays)."""
+    positions = np.asarray(positions, dtype=int)
+    if len(positions) == 0:
+        return []
+    contrib = method_contributions(result, positions)
+    peer_pos, peer_dist = find_peers(result, positions, peers)
+    typical = typical_ranges(result)
+    return [
+        _one(result, i, n, contrib, peer_pos[n], peer_dist[n], typical) for n, i in enumerate(positions)
+    ]
+
+
+def _one(result, i, n, contrib, peer_pos, peer_dist, typical) -> dict:
+    names = result.features.names
+    per_method = {}
+    share_rows = []
+    for key, values in contrib.items():
+        v = values[n]
+        sh = shares(v[None, :])[0]
+        order = np.argsort(-np.abs(sh), kind="stable")
+        per_method[key] = [{"feature": names[j], "value": float(v[j]), "share": float(sh[j])}
+                           for j in order if v[j] != 0]
+        share_rows.append(shares(np.maximum(v, 0)[None, :])[0])
+    mean_share = np.mean(share_rows, axis=0)
+    z = result.features.values[i]
+    top = []
+    for j in np.argsort(-mean_share, kind="stable")[:TOP]:
+        if mean_share[j] <= 0:
+            break
+        spec = result.features.specs[j]
+        pointing = [key for key, row in zip(contrib, share_rows, strict=True)
+                    if row[j] >= POINTS_AT or (row.max() > 0 and row.argmax() == j)]
+        if spec.role == CATEGORICAL:
+            direction = "rarer" if z[j] > 0 else "common"
+        elif abs(z[j]) < TYPICAL_Z:
+            direction = "typical"
+        else:
+            direction = "higher" if z[j] > 0 else "lower"
+        top.append({
+            "feature": spec.name, "value": raw_value(result, i, j), "direction": direction,
+            "typical": typical[j], "robust_z": float(z[j]), "share": float(mean_share[j]),
+            "methods": pointing, "imputed": bool(result.features.imputed[i, j]),
+        })
+    return {
+        "row": i + 1,
+        "key": result.keys[i],
+        "flagged": bool(result.flagged[i]),
+        "votes": int(result.votes[i]),
+        "consensus": float(result.consensus[i]),
+        "methods": {
+            key: {"score": float(r.scores[i]), "cutoff": float(r.method.cutoff_), "flag": bool(r.flags[i]),
+                  "unified": float(r.unified[i])}
+            for key, r in result.methods.items()
+        },
+        "contributions": per_method,
+        "top_features": top,
+        "column_hits": result.column_hits[i],
+        "peers": _peers(result, i, peer_pos, peer_dist),
+        "nearest_ordinary": nearest_ordinary(result, i),
+        "stability": None if result.stability is None else float(result.stability[i]),
+        "resamples": result.options.resamples or None,
+    }
+
+
+def _peers(result, i, peer_pos, peer_dist) -> dict:
+    names = result.features.names
+    rows = [{"row": int(p) + 1, "key": result.keys[p], "distance": float(d),
+             "values": {names[j]: raw_value(result, int(p), j) for j in range(len(names))}}
+            for p, d in zip(peer_pos, peer_dist, strict=True)]
+    differences = []
+    if len(peer_pos):
+        Z = result.features.values
+        gap = Z[i] - np.median(Z[peer_pos], axis=0)
+        for j in np.argsort(-np.abs(gap), kind="stable")[:3]:
+            spec = result.features.specs[j]
+            if spec.role == CATEGORICAL:
+                peer_values = [raw_value(result, int(p), j) for p in peer_pos]
+                typical = max(set(peer_values), key=peer_values.count)
+            else:
+                t = np.median(result.features.transformed[peer_pos, j])
+                typical = float(spec.to_original(t))
+            differences.append({"feature": spec.name, "value": raw_value(result, i, j), "peers": typical,
+                                "gap_scaled": float(gap[j])})
+    return {"records": rows, "differences": differences}
+
+
+def top_features_text(explanation: dict, limit: int = 3) -> str:
+    """E.g. "amount (+, 61%); hour (+, 22%)" for CSV/Parquet."""
+    signs = {"higher": "+", "lower": "-", "typical": "~", "rarer": "rare", "common": "common"}
+    return "; ".join(f"{t['feature']} ({signs[t['direction']]}, {t['share']:.0%})"
+                     for t in explanation["top_features"][:limit])
