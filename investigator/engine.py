@@ -20,7 +20,8 @@ from .roles import assign_roles
 from .table import Table, load_table
 
 
-def build_methods(options: ScanOptions, features: Features, notices: list[str], seed: int | None = None) -> list:
+def build_methods(options: ScanOptions, features: Features, notices: list[str],
+                  seed: int | None = None) -> list:
     """The configured method objects; robust_distance leaves out features too discrete for the MCD."""
     seed = options.seed if seed is None else seed
     common = {"cutoff": options.cutoff, "contamination": options.contamination}

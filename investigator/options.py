@@ -84,7 +84,8 @@ class ScanOptions:
             resamples = int(self.resamples)
         except (TypeError, ValueError):
             resamples = -1
-        if not 0 <= resamples <= 1000 or (isinstance(self.resamples, float) and not self.resamples.is_integer()):
+        fractional = isinstance(self.resamples, float) and not self.resamples.is_integer()
+        if not 0 <= resamples <= 1000 or fractional:
             raise InputError(f"--resamples must be a whole number from 0 to 1000, not '{self.resamples}'")
         set_(self, "resamples", resamples)
 

@@ -86,7 +86,7 @@ def load_table(data, *, sheet: str | None = None, id_column: str | None = None) 
     """Read ``data`` (a path or a pandas DataFrame) into a :class:`Table` and check it is scannable."""
     if isinstance(data, pd.DataFrame):
         frame = data.reset_index(drop=True)
-        for col in frame.columns[frame.dtypes == object]:
+        for col in [c for c in frame.columns if frame[c].dtype == "object"]:
             # Cells holding lists, dicts or other objects are read as their text, as a file would hold them.
             if frame[col].map(lambda v: isinstance(v, list | dict | set | tuple)).any():
                 frame[col] = frame[col].map(lambda v: v if v is None or isinstance(v, float) else str(v))

@@ -78,6 +78,8 @@ def method_contributions(result, positions: np.ndarray) -> dict[str, np.ndarray]
             graph = result.graph
             sub = type(graph)(graph.indices[positions], graph.distances[positions], graph.reference_rows)
             ref = result.neighbors.reference_
-            fn = neighbor_distance_contributions if key == "neighbor_distance" else local_density_contributions
-            out[key] = fn(m, X, sub, ref)
+            if key == "neighbor_distance":
+                out[key] = neighbor_distance_contributions(m, X, sub, ref)
+            else:
+                out[key] = local_density_contributions(m, X, sub, ref)
     return out

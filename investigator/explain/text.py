@@ -64,8 +64,8 @@ def explanation_text(e: dict) -> str:
     for key, m in e["methods"].items():
         contrib = e["contributions"].get(key, [])[:3]
         tops = ", ".join(f"{c['feature']} {c['share']:.0%}" for c in contrib)
-        lines.append(f"  {key:<18} {m['score']:>10.4g} {m['cutoff']:>10.4g}  {'yes' if m['flag'] else 'no ':<4}  "
-                     f"{tops}")
+        flag = "yes" if m["flag"] else "no"
+        lines.append(f"  {key:<18} {m['score']:>10.4g} {m['cutoff']:>10.4g}  {flag:<4}  {tops}")
     if any(c["share"] < 0 for c in e["contributions"].get("robust_distance", [])):
         lines.append("  (a negative robust_distance share: given the other features, this one brings the "
                      "record closer to the centre)")
