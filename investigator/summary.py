@@ -44,7 +44,10 @@ def summary_text(result, top: int = 10) -> str:
     if order:
         lines.append("")
         lines.append(f"Top {len(order)} flagged records by consensus:")
-        lines.append(f"  {'row':>6}  {'key':<14} {'consensus':>9} {'votes':>5}  methods / column hits")
+        runs = result.options.resamples
+        stable_head = f" {'runs':>7}" if result.stability is not None else ""
+        lines.append(f"  {'row':>6}  {'key':<14} {'consensus':>9} {'votes':>5}{stable_head}  "
+                     "methods / column hits")
         m = len(result.methods)
         for i in order:
             strongest = sorted(
@@ -53,10 +56,15 @@ def summary_text(result, top: int = 10) -> str:
             )
             cols = sorted({h["column"] for h in result.column_hits[i]})
             detail = ", ".join(strongest) + (f" | {', '.join(cols)}" if cols else "")
+            stable = ""
+            if result.stability is not None:
+                stable = f" {round(result.stability[i] * runs):>3}/{runs:<3}"
             lines.append(
                 f"  {i + 1:>6}  {_short(result.keys[i]):<14} {result.consensus[i]:>9.3f} "
-                f"{result.votes[i]:>2}/{m:<2}  {detail}"
+                f"{result.votes[i]:>2}/{m:<2}{stable}  {detail}"
             )
+        if result.stability is not None:
+            lines.append(f"  runs: resampled runs (of {runs}) that flag the record; below half is unstable")
     lines.append("")
     lines.append(CAUTION)
     return "\n".join(lines)

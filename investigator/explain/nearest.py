@@ -6,7 +6,9 @@ cutoff c, the smallest |delta| reaching c solves P_jj delta^2 + 2 b_j delta + (d
 For a pair E = {j, k}: the change that minimises d2 over the pair is delta* = -P_EE^-1 b_E, lowering d2 by
 red = b_E' P_EE^-1 b_E; along that direction d2(t delta*) = d2 - 2 t red + t^2 red, so the smallest t
 reaching c is 1 - sqrt(1 - (d2 - c) / red). The pair with the smallest change (Euclidean, in robust standard
-deviations) is reported. Changes are in the scaled space and reported in the column's own units, through the
+deviations) is reported. When no pair suffices either (the record is far out in three or more features),
+features are added in order of their Shapley contribution until the same move along the minimising direction
+reaches c; ``features_changed`` says how many, so "one or two were not enough" is visible. Changes are in the scaled space and reported in the column's own units, through the
 inverse of any log transform. Only features robust_distance uses, and not imputed cells.
 """
 
@@ -45,21 +47,34 @@ def nearest_ordinary(result, i: int) -> dict | None:
         j = int(np.argmin(np.abs(delta)))
         best = ([int(cols[j])], np.array([delta[j]]))
     else:
+        Pr = P @ r
         for u, v in combinations(range(len(cols)), 2):
-            E = [idx[u], idx[v]]
-            A = P[np.ix_(E, E)]
-            bE = (P @ r)[E]
-            step = -np.linalg.solve(A, bE)
-            red = float(-step @ bE)
-            if red <= d2 - c:
-                continue
-            t = 1 - np.sqrt(1 - (d2 - c) / red)
-            change = t * step
-            if best is None or np.linalg.norm(change) < np.linalg.norm(best[1]):
+            change = _along(P, Pr, [idx[u], idx[v]], d2, c)
+            if change is not None and (best is None or np.linalg.norm(change) < np.linalg.norm(best[1])):
                 best = ([int(cols[u]), int(cols[v])], change)
+        if best is None:
+            # Neither one nor two features suffice: add features in order of their Shapley contribution
+            # until the move reaches the cutoff (all features always do: the centre itself is ordinary).
+            order = np.argsort(-(r * Pr)[idx], kind="stable")
+            for size in range(3, len(cols) + 1):
+                chosen = sorted(order[:size])
+                change = _along(P, Pr, [idx[u] for u in chosen], d2, c)
+                if change is not None:
+                    best = ([int(cols[u]) for u in chosen], change)
+                    break
     if best is None:
         return None
     return _describe(result, i, best[0], best[1], m, d2)
+
+
+def _along(P, Pr, E, d2, c):
+    """Smallest move along the direction that minimises d2 over features E, or None if it cannot reach c."""
+    A = P[np.ix_(E, E)]
+    step = -np.linalg.solve(A, Pr[E])
+    red = float(-step @ Pr[E])
+    if red <= d2 - c:
+        return None
+    return (1 - np.sqrt(1 - (d2 - c) / red)) * step
 
 
 def _describe(result, i, features, deltas, method, d2_before) -> dict:
@@ -76,6 +91,7 @@ def _describe(result, i, features, deltas, method, d2_before) -> dict:
     r = x[method.columns_] - method.mcd_.location
     return {
         "method": "robust_distance",
+        "features_changed": len(changes),
         "changes": changes,
         "distance_before": d2_before,
         "distance_after": float(r @ method.precision_ @ r),

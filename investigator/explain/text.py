@@ -55,11 +55,13 @@ def explanation_text(e: dict) -> str:
     if nearest:
         change = " and ".join(f"{c['feature']} {_fmt(c['to'])} instead of {_fmt(c['from'])}"
                               for c in nearest["changes"])
-        lines.append(f"Smallest change that brings it under the robust_distance cutoff: {change} "
+        if nearest["features_changed"] > 2:
+            lines.append("No change to one or two features alone brings it under the robust_distance cutoff.")
+        lines.append(f"Smallest change found that brings it under the robust_distance cutoff: {change} "
                      f"(distance {nearest['distance_before']:.1f} -> {nearest['distance_after']:.1f}, cutoff "
                      f"{nearest['cutoff']:.2f}).")
     elif e["methods"].get("robust_distance", {}).get("flag"):
-        lines.append("No change to one or two features alone brings it under the robust_distance cutoff.")
+        lines.append("No change to the features robust_distance uses brings it under its cutoff.")
     lines += ["", "Methods", f"  {'method':<18} {'score':>10} {'cutoff':>10}  flag  top features"]
     for key, m in e["methods"].items():
         contrib = e["contributions"].get(key, [])[:3]
