@@ -56,8 +56,9 @@ def main() -> None:
     parser.add_argument("--no-reference", action="store_true", help="skip the scikit-learn reference run")
     args = parser.parse_args()
 
-    import investigator
     from sklearn.metrics import roc_auc_score
+
+    import investigator
 
     investigator.scan(make_data(500, 3)[0])  # warm imports so they are not timed
     for n in (int(s) for s in args.sizes.split(",")):

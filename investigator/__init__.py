@@ -11,15 +11,15 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
-__all__ = ["InputError", "ScanOptions", "ScanResult", "__version__", "scan"]
+__all__ = ["InputError", "ScanOptions", "ScanResult", "__version__", "check", "scan"]
 
 
 def __getattr__(name: str):
     # Deferred so that `investigator --help` and the first TUI frame do not pay for scikit-learn.
-    if name == "scan":
-        from .engine import scan
+    if name in ("scan", "check"):
+        from . import engine
 
-        return scan
+        return getattr(engine, name)
     if name == "ScanResult":
         from .result import ScanResult
 

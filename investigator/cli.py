@@ -37,6 +37,11 @@ def _add_scan_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--resamples", metavar="R", type=int, default=0,
                    help="re-run the methods on R random subsamples and report how often each flag recurs "
                    "(default 0: off; 20 is a good choice)")
+    p.add_argument("--limits", metavar="FILE",
+                   help="CSV of specification limits (column, lower, upper): out-of-spec hits per record")
+    p.add_argument("--digits", metavar="COL", help="Benford's law first-digit tests on these amount columns")
+    p.add_argument("--duplicates", metavar="A,B",
+                   help="report groups of records with the same values on these columns")
     p.add_argument("--exact", action="store_true",
                    help="exact neighbour search even on large data "
                    "(slower; by default it samples above 20,000 rows)")
@@ -55,8 +60,26 @@ def build_parser() -> argparse.ArgumentParser:
     scan.add_argument("data", metavar="DATA", help="CSV/TSV, Parquet or XLSX file")
     _add_scan_options(scan)
     scan.add_argument("--out", metavar="FILE", help="write the result: .json, .csv or .parquet")
+    scan.add_argument("--store", metavar="PATH", help="review store to read verdicts from "
+                      "(default: DATA.investigation.sqlite, when it exists)")
     scan.add_argument("--top", metavar="N", type=int, default=10, help="flagged records in the summary")
     scan.add_argument("--quiet", action="store_true", help="no summary and no progress bar")
+
+    check = sub.add_parser("check", help="score new records against a trusted reference",
+                           description="Fit the preparation and every method on the REFERENCE records "
+                           "(after leaving out those the robust fit flags there: phase I) and score the "
+                           "records of NEW against them. Adds Hotelling T-squared (method hotelling).")
+    check.add_argument("data", metavar="NEW", help="the records to check: CSV/TSV, Parquet or XLSX")
+    check.add_argument("--reference", metavar="REF", required=True, help="the trusted reference records")
+    check.add_argument("--reference-sheet", metavar="NAME", help="worksheet of an .xlsx reference")
+    check.add_argument("--keep-reference-outliers", action="store_true",
+                       help="keep the reference records the robust fit flags (default: leave them out)")
+    _add_scan_options(check)
+    check.add_argument("--out", metavar="FILE", help="write the result: .json, .csv or .parquet")
+    check.add_argument("--store", metavar="PATH", help="review store to read verdicts from "
+                       "(default: NEW.investigation.sqlite, when it exists)")
+    check.add_argument("--top", metavar="N", type=int, default=10, help="flagged records in the summary")
+    check.add_argument("--quiet", action="store_true", help="no summary and no progress bar")
 
     explain = sub.add_parser("explain", help="explain why one record stands out",
                              description="Scan DATA and explain one record: which features made it stand "
@@ -86,12 +109,14 @@ def _options(args) -> dict:
         "id": args.id, "features": args.features, "exclude": args.exclude,
         "methods": args.methods or None, "log": args.log, "cutoff": args.cutoff,
         "contamination": args.contamination, "seed": args.seed, "sheet": args.sheet, "exact": args.exact,
-        "resamples": args.resamples,
+        "resamples": args.resamples, "limits": args.limits, "digits": args.digits,
+        "duplicates": args.duplicates,
+        "keep_reference_outliers": getattr(args, "keep_reference_outliers", False),
     }
 
 
 def _cmd_scan(args) -> int:
-    from .engine import scan
+    from .engine import check, scan
     from .options import ScanOptions
     from .progress import StderrBar, silent
 
@@ -103,7 +128,12 @@ def _cmd_scan(args) -> int:
         from .export import check_out_path
 
         check_out_path(Path(args.out))
-    result = scan(args.data, options=options, progress=silent if args.quiet else StderrBar())
+    progress = silent if args.quiet else StderrBar()
+    if args.command == "check":
+        result = check(args.data, reference=args.reference, reference_sheet=args.reference_sheet,
+                       options=options, progress=progress, store=args.store)
+    else:
+        result = scan(args.data, options=options, progress=progress, store=args.store)
     if args.out:
         result.write(args.out)
     if not args.quiet:
@@ -146,7 +176,7 @@ def _cmd_demo(args) -> int:
     return 0
 
 
-COMMANDS = {"scan": _cmd_scan, "explain": _cmd_explain, "demo": _cmd_demo}
+COMMANDS = {"scan": _cmd_scan, "check": _cmd_scan, "explain": _cmd_explain, "demo": _cmd_demo}
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -53,24 +53,44 @@ def build_methods(options: ScanOptions, features: Features, notices: list[str],
     return built
 
 
-def run_scan(table: Table, options: ScanOptions, progress: Progress = silent) -> ScanResult:
+def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
+             reference: Table | None = None) -> ScanResult:
+    """Scan ``table``; with ``reference``, fit preparation and methods on the reference and score the table's
+    records against it (novelty scoring: no record of the table is part of the fit)."""
     started = datetime.now(UTC).replace(microsecond=0).isoformat()
     notices = list(table.notices)
     progress("preparing features", 0.02)
-    columns = assign_roles(table, options.features, options.exclude)
+    fit_table = reference if reference is not None else table
+    columns = assign_roles(fit_table, options.features, options.exclude)
     log = options.log if isinstance(options.log, str) else list(options.log)
-    preparer = FeaturePreparer(log=log).fit(table, columns)
+    ref_info = None
+    if reference is not None:
+        from .reference import check_columns, clean_reference
+
+        notices += [f"reference: {n}" for n in reference.notices]
+        ref_info = check_columns(table, reference, columns, notices)
+        preparer = FeaturePreparer(log=log).fit(reference, columns)
+        reference, ref_info["phase_i"] = clean_reference(reference, preparer, options, notices)
+        preparer = FeaturePreparer(log=log).fit(reference, columns)
+        ref_features = preparer.transform(reference)
+        features = preparer.transform(table)
+        ref_info["unseen_levels"] = _unseen_levels(preparer, table, notices)
+    else:
+        preparer = FeaturePreparer(log=log).fit(table, columns)
+        features = ref_features = preparer.transform(table)
     notices += preparer.notices_
-    features = preparer.transform(table)
-    n, p = features.values.shape
+    n, p = ref_features.values.shape
     if n <= p:
         raise InputError(
-            f"{table.name}: {n} rows but {p} features; a scan needs more rows than features "
+            f"{fit_table.name}: {n} rows but {p} features; a scan needs more rows than features "
             "(leave some out with --exclude, or add rows)"
         )
-    methods = build_methods(options, features, notices)
+    methods = build_methods(options, ref_features, notices)
+    if reference is not None:
+        methods += _reference_only_methods(options, methods)
     progress("scoring", 0.1)
-    results, search, graph = fit_and_score(methods, features.values, options, progress=progress)
+    X_ref = ref_features.values if reference is not None else None
+    results, search, graph = fit_and_score(methods, features.values, options, X_ref=X_ref, progress=progress)
     if search is not None and search.k_ < search.k:
         notices.append(f"only {n} records: neighbour methods use k = {search.k_} instead of {search.k}")
     rd = results.get("robust_distance")
@@ -79,44 +99,119 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent) ->
             "robust_distance: the core covariance is singular (features collinear within the core "
             f"records); a ridge of {rd.method.mcd_.ridge:.1e} keeps distances finite"
         )
+    if "hotelling" in results:
+        notices += results["hotelling"].method.notices_
     progress("combining", 0.92)
     combination = combine_results(results, options)
     stability = None
     if options.resamples:
         from .explain.stability import flag_stability
 
-        stability = flag_stability(features, options, progress)
-    rules = ColumnRules().fit(features)
+        stability = flag_stability(features, options, progress, X_ref=X_ref)
+    rules = ColumnRules().fit(ref_features)
     for name in rules.skipped_:
         notices.append(f"column '{name}': MAD is zero, so the modified z-score rule is skipped there")
     hits = rules.hits(features)
+    extras = _extras(table, options, notices)
     run = _run_record(table, options, columns, preparer, search, results, combination, rules, notices,
                       started)
+    if reference is not None:
+        run["reference"] = {"input": {**reference.source.as_dict(), "rows": ref_info["rows"]},
+                            "used": int(reference.n_rows), **{k: v for k, v in ref_info.items() if k != "rows"}}
+    run["screens"] = extras["screens"] or None
     progress("done", 1.0)
     return ScanResult(table, options, columns, features, preparer, search, graph, results, combination,
-                      rules, hits, run, stability)
+                      rules, hits, run, stability, reference=reference,
+                      reference_features=ref_features if reference is not None else None,
+                      out_of_spec=extras["out_of_spec"])
+
+
+def _reference_only_methods(options: ScanOptions, methods: list) -> list:
+    """Hotelling T-squared is a reference-mode method; it uses the robust distance's features."""
+    from .methods.hotelling import Hotelling
+
+    rd = next((m for m in methods if m.key == "robust_distance"), None)
+    if rd is None:
+        return []
+    return [Hotelling(cutoff=options.cutoff, contamination=options.contamination, columns=rd.columns)]
+
+
+def _unseen_levels(preparer: FeaturePreparer, table: Table, notices: list[str]) -> dict:
+    out = {}
+    for spec in preparer.specs_:
+        if spec.role != "categorical":
+            continue
+        levels = table.frame[spec.name].astype("string").fillna("(missing)")
+        unseen = levels[~levels.isin(list(spec.levels))]
+        if len(unseen):
+            counts = unseen.value_counts()
+            out[spec.name] = {str(k): int(v) for k, v in counts.items()}
+            shown = ", ".join(f"'{k}'" for k in list(counts.index)[:5])
+            notices.append(
+                f"column '{spec.name}': {len(unseen)} record{'s' if len(unseen) > 1 else ''} with level"
+                f"{'s' if len(counts) > 1 else ''} the reference never has ({shown}); they count as rarer than "
+                "any reference level"
+            )
+    return out
+
+
+def _extras(table: Table, options: ScanOptions, notices: list[str]) -> dict:
+    """The trade's own screens (Benford, duplicates) and specification limits, on the scanned records."""
+    screens: dict = {}
+    if options.digits:
+        from .features import column_numbers
+        from .screens.benford import benford_test
+
+        screens["benford"] = {}
+        for col in options.digits:
+            if col not in table.frame.columns:
+                raise InputError(f"{table.name}: --digits names column '{col}', which is not in the file")
+            values = column_numbers(table.frame[col])
+            screens["benford"][col] = {
+                "first_digit": benford_test(values, 1, name=col).as_dict(),
+                "first_two_digits": benford_test(values, 2, name=col).as_dict(),
+            }
+    from .screens.duplicates import duplicates_on, exact_duplicates
+
+    exclude = [table.key_column] if table.key_column else []
+    exact = exact_duplicates(table.frame, exclude=exclude)
+    if exact.n_groups:
+        screens["exact_duplicates"] = exact.as_dict()
+        notices.append(f"{exact.n_in_groups} records are exact copies of another record "
+                       f"({exact.n_groups} groups); see run.screens.exact_duplicates")
+    if options.duplicates:
+        screens["duplicates"] = duplicates_on(table.frame, list(options.duplicates)).as_dict()
+    out_of_spec = None
+    if options.limits:
+        from .limits import load_limits, spec_hits
+
+        out_of_spec = spec_hits(table, load_limits(options.limits, table))
+    return {"screens": screens, "out_of_spec": out_of_spec}
 
 
 def fit_and_score(methods: list, X: np.ndarray, options: ScanOptions, reference: np.ndarray | None = None,
-                  seed: int | None = None, progress: Progress = silent):
-    """Fit every method on the reference records (default: all) and score all records.
+                  seed: int | None = None, progress: Progress = silent, X_ref: np.ndarray | None = None):
+    """Fit every method on reference records and score all records of ``X``.
 
-    A record that is also a reference record is never its own neighbour. Returns the per-method results,
-    the neighbour search and the records' neighbour graph.
+    The reference is either the rows ``reference`` of X (default: all of X; a record that is also a
+    reference record is never its own neighbour), or a separate matrix ``X_ref`` (novelty scoring).
+    Returns the per-method results, the neighbour search and the records' neighbour graph.
     """
     n = len(X)
-    rows = np.arange(n) if reference is None else reference
+    separate = X_ref is not None
+    rows = None if separate else (np.arange(n) if reference is None else reference)
+    R = X_ref if separate else X[rows]
     k = max((m.needs_neighbors for m in methods), default=0)
     search = graph = None
     if k:
         search = NeighborSearch(k, exact=options.exact, seed=options.seed if seed is None else seed)
-        search.fit(X[rows], rows=rows)
-        graph = search.query(X, rows=np.arange(n))
+        search.fit(R, rows=rows)
+        graph = search.query(X, rows=None if separate else np.arange(n))
     results: dict[str, MethodResult] = {}
     for i, method in enumerate(methods):
         progress(method.key, 0.2 + 0.7 * i / len(methods))
         ref_graph = search.reference_graph_ if method.needs_neighbors else None
-        method.fit(X[rows], ref_graph)
+        method.fit(R, ref_graph)
         scores = method.score(X, graph) if method.needs_neighbors else method.score(X)
         results[method.key] = MethodResult(method.key, method, scores, method.flags(scores),
                                            method.unify(scores))
@@ -124,8 +219,11 @@ def fit_and_score(methods: list, X: np.ndarray, options: ScanOptions, reference:
 
 
 def combine_results(results: dict[str, MethodResult], options: ScanOptions):
-    return combine({k: r.method.standardise(r.scores) for k, r in results.items()},
-                   {k: r.flags for k, r in results.items()}, options.contamination)
+    # hotelling is reported beside the others but does not vote: it measures the same Mahalanobis distance
+    # as robust_distance with a classical fit, and would count that view twice.
+    voting = {k: r for k, r in results.items() if k in METHODS}
+    return combine({k: r.method.standardise(r.scores) for k, r in voting.items()},
+                   {k: r.flags for k, r in voting.items()}, options.contamination)
 
 
 def _versions() -> dict:
@@ -159,11 +257,14 @@ def _run_record(table, options, columns, preparer, search, results, combination,
     }
 
 
-def scan(data, *, progress: Progress = silent, **options) -> ScanResult:
+def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanResult:
     """Scan a table (a path to CSV/TSV/Parquet/XLSX, or a pandas DataFrame) and return a ScanResult.
 
     Options are those of ``investigator scan``: ``id``, ``features``, ``exclude``, ``methods``, ``log``,
-    ``cutoff``, ``contamination``, ``seed``, ``sheet``, ``exact``. Raises :class:`InputError` on bad input.
+    ``cutoff``, ``contamination``, ``seed``, ``sheet``, ``exact``, ``resamples``, ``digits``,
+    ``duplicates``, ``limits``. When a review store exists (``store``, or ``<data>.investigation.sqlite``
+    beside a data file), each record also gets its current verdict and note. Raises :class:`InputError` on
+    bad input.
     """
     opts = options.pop("options", None)
     if opts is None:
@@ -171,4 +272,46 @@ def scan(data, *, progress: Progress = silent, **options) -> ScanResult:
     elif options:
         raise TypeError("give either options=ScanOptions(...) or keyword options, not both")
     table = load_table(data, sheet=opts.sheet, id_column=opts.id)
-    return run_scan(table, opts, progress)
+    return attach_verdicts(run_scan(table, opts, progress), data, store)
+
+
+def attach_verdicts(result: ScanResult, data, store=None) -> ScanResult:
+    """Add the current verdict and note of each record when a review store exists (``store`` or the
+    default beside the data file); a store is only read here, never created."""
+    from pathlib import Path
+
+    from .review.store import default_store_path
+
+    if store is None:
+        if not isinstance(data, str | Path):
+            return result
+        store = default_store_path(data)
+        if not Path(store).exists():
+            return result
+    from .review.matching import match_store
+    from .review.store import ReviewStore
+
+    with ReviewStore(store, create=False) as review:
+        matching = match_store(result.table, review)
+    result.verdicts, result.notes = matching.verdicts(), matching.notes()
+    result.run["review_store"] = str(store)
+    return result
+
+
+def check(data, *, reference, progress: Progress = silent, reference_sheet: str | None = None,
+          store=None, **options) -> ScanResult:
+    """Score the records of ``data`` against a trusted ``reference`` table (paths or DataFrames).
+
+    Preparation and every method are fitted on the reference only, after phase I cleaning (records the
+    robust fit flags in the reference are excluded unless ``keep_reference_outliers=True``); the records of
+    ``data`` are scored against it. Same options as :func:`scan`; the result has the same contract, with
+    ``run["reference"]`` describing the reference.
+    """
+    opts = options.pop("options", None)
+    if opts is None:
+        opts = ScanOptions(**options)
+    elif options:
+        raise TypeError("give either options=ScanOptions(...) or keyword options, not both")
+    ref = load_table(reference, sheet=reference_sheet, id_column=opts.id)
+    table = load_table(data, sheet=opts.sheet, id_column=opts.id, min_rows=1)
+    return attach_verdicts(run_scan(table, opts, progress, reference=ref), data, store)

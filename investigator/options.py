@@ -34,10 +34,18 @@ class ScanOptions:
     sheet: str | None = None
     exact: bool = False
     resamples: int = 0
+    digits: tuple[str, ...] | None = None
+    duplicates: tuple[str, ...] | None = None
+    limits: str | None = None
+    keep_reference_outliers: bool = False
 
     def __post_init__(self) -> None:
         set_ = object.__setattr__
         set_(self, "features", _names(self.features, "--features"))
+        set_(self, "digits", _names(self.digits, "--digits"))
+        set_(self, "duplicates", _names(self.duplicates, "--duplicates"))
+        if self.limits is not None:
+            set_(self, "limits", str(self.limits))
         set_(self, "exclude", _names(self.exclude, "--exclude"))
         methods = _names(self.methods, "--methods")
         unknown = [m for m in methods if m not in METHOD_KEYS]

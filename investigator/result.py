@@ -51,6 +51,11 @@ class ScanResult:
     column_hits: list[list[dict]]
     run: dict
     stability: np.ndarray | None = None  # share of resampled runs flagging each record (--resamples)
+    reference: Table | None = None  # check mode: the cleaned reference the methods were fitted on
+    reference_features: Features | None = None
+    out_of_spec: list[list[dict]] | None = None  # with --limits: per record, the limits it breaks
+    verdicts: list[str | None] | None = None  # with a review store: each record's current verdict
+    notes: list[str | None] | None = None
     _explanations: dict | None = field(default=None, init=False, repr=False)
     _typical: list | None = field(default=None, init=False, repr=False)
 
@@ -135,6 +140,10 @@ class ScanResult:
         }
         if self.stability is not None:
             extra["stability"] = _num(self.stability[i])
+        if self.out_of_spec is not None:
+            extra["out_of_spec"] = self.out_of_spec[i]
+        if self.verdicts is not None:
+            extra["verdict"], extra["note"] = self.verdicts[i], self.notes[i]
         return {
             "row": i + 1,
             "key": self.keys[i],
@@ -175,6 +184,11 @@ class ScanResult:
                                for i in range(self.n_records)]
         if self.stability is not None:
             out["stability"] = self.stability
+        if self.out_of_spec is not None:
+            out["out_of_spec"] = ["; ".join(f"{h['column']} {h['side']} limit" for h in hits)
+                                  for hits in self.out_of_spec]
+        if self.verdicts is not None:
+            out["verdict"], out["note"] = self.verdicts, self.notes
         return pd.DataFrame(out)
 
     def to_dict(self) -> dict:

@@ -35,6 +35,28 @@ def summary_text(result, top: int = 10) -> str:
     search = f"; neighbours: {nb['search']}, k={nb['k']}" if nb else ""
     lines.append("Methods: " + ", ".join(result.methods) + search)
     lines.append("Rule: " + run["rule"])
+    if "reference" in run:
+        ref = run["reference"]
+        lines.append(f"Reference: {ref['input'].get('path', 'a data frame')}, {ref['used']:,} of "
+                     f"{ref['input']['rows']:,} records used (phase I left out {ref['phase_i']['excluded']:,}); "
+                     "hotelling reported beside the methods, without a vote")
+    spec = result.out_of_spec
+    if spec is not None:
+        lines.append(f"Out of specification: {sum(1 for h in spec if h):,} records break a --limits limit "
+                     "(a rule breach, apart from the statistical flags)")
+    benford = (run.get("screens") or {}).get("benford", {})
+    for col, tests in benford.items():
+        for label, key in (("first digit", "first_digit"), ("first two digits", "first_two_digits")):
+            t = tests[key]
+            warn = ("; " + "; ".join(t["warnings"])) if t["warnings"] else ""
+            lines.append(f"Benford {label}, {col}: MAD {t['mad']:.4f} ({t['conformity']}), {t['used']:,} "
+                         f"values; most over-represented: {', '.join(map(str, t['excess_digits']))}{warn}")
+    if benford:
+        lines.append("  " + next(iter(benford.values()))["first_digit"]["caution"])
+    dup = (run.get("screens") or {}).get("duplicates")
+    if dup:
+        lines.append(f"Same values on {', '.join(dup['columns'])}: {dup['n_groups']:,} groups, "
+                     f"{dup['records_in_groups']:,} records")
     n, flagged = result.n_records, int(result.flagged.sum())
     with_hits = sum(1 for h in result.column_hits if h)
     lines.append(
@@ -48,7 +70,7 @@ def summary_text(result, top: int = 10) -> str:
         stable_head = f" {'runs':>7}" if result.stability is not None else ""
         lines.append(f"  {'row':>6}  {'key':<14} {'consensus':>9} {'votes':>5}{stable_head}  "
                      "methods / column hits")
-        m = len(result.methods)
+        m = sum(1 for k in result.methods if k != "hotelling")  # hotelling does not vote
         for i in order:
             strongest = sorted(
                 (k for k, r in result.methods.items() if r.flags[i]),

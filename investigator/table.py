@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 from functools import cached_property
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from .errors import InputError
@@ -57,6 +58,7 @@ class Table:
     source: Source
     key_column: str | None = None
     notices: list[str] = field(default_factory=list)
+    rows: np.ndarray | None = None  # 1-based data rows in the file, when this is a subset of it
 
     @property
     def name(self) -> str:
@@ -66,10 +68,20 @@ class Table:
     def n_rows(self) -> int:
         return len(self.frame)
 
+    @property
+    def row_numbers(self) -> np.ndarray:
+        """1-based data row of each record in the file it came from."""
+        return np.arange(1, len(self.frame) + 1) if self.rows is None else self.rows
+
+    def subset(self, mask: np.ndarray) -> Table:
+        """The records where ``mask`` is true, remembering their rows in the file."""
+        return Table(self.frame[mask].reset_index(drop=True), self.source, self.key_column,
+                     list(self.notices), self.row_numbers[mask])
+
     @cached_property
     def keys(self) -> list:
         if self.key_column is None:
-            return list(range(1, len(self.frame) + 1))
+            return [int(r) for r in self.row_numbers]
         return [_plain(v) for v in self.frame[self.key_column].tolist()]
 
 
@@ -82,20 +94,21 @@ def _plain(value):
     return value
 
 
-def load_table(data, *, sheet: str | None = None, id_column: str | None = None) -> Table:
+def load_table(data, *, sheet: str | None = None, id_column: str | None = None,
+               min_rows: int = MIN_ROWS) -> Table:
     """Read ``data`` (a path or a pandas DataFrame) into a :class:`Table` and check it is scannable."""
     if isinstance(data, pd.DataFrame):
+        _check_header(list(map(str, data.columns)), "the data frame")
         frame = data.reset_index(drop=True)
+        frame.columns = [str(c) for c in frame.columns]
         for col in [c for c in frame.columns if frame[c].dtype == "object"]:
             # Cells holding lists, dicts or other objects are read as their text, as a file would hold them.
             if frame[col].map(lambda v: isinstance(v, list | dict | set | tuple)).any():
                 frame[col] = frame[col].map(lambda v: v if v is None or isinstance(v, float) else str(v))
         table = Table(frame=frame, source=Source(path=None, format="dataframe"))
-        _check_header(list(map(str, data.columns)), "the data frame")
-        table.frame.columns = [str(c) for c in table.frame.columns]
     else:
         table = _read_file(Path(data), sheet=sheet, id_column=id_column)
-    _check_rows(table)
+    _check_rows(table, min_rows)
     if id_column is not None:
         _check_key(table, id_column)
         table.key_column = id_column
@@ -261,15 +274,15 @@ def _check_header(header: list[str], where: str) -> None:
         seen[key] = position
 
 
-def _check_rows(table: Table) -> None:
+def _check_rows(table: Table, min_rows: int = MIN_ROWS) -> None:
     n = len(table.frame)
     if table.frame.shape[1] == 0:
         raise InputError(f"{table.name}: no columns found; it needs a header row and data rows")
     if n == 0:
-        raise InputError(f"{table.name}: has a header but no data rows; a scan needs at least {MIN_ROWS}")
-    if n < MIN_ROWS:
+        raise InputError(f"{table.name}: has a header but no data rows; a scan needs at least {min_rows}")
+    if n < min_rows:
         raise InputError(
-            f"{table.name}: has only {n} data row{'s' if n != 1 else ''}; a scan needs at least {MIN_ROWS}"
+            f"{table.name}: has only {n} data row{'s' if n != 1 else ''}; a scan needs at least {min_rows}"
         )
 
 

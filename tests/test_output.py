@@ -109,3 +109,17 @@ def test_quiet_prints_nothing(claims, capsys):
     assert main(["scan", str(claims), "--quiet"]) == 0
     captured = capsys.readouterr()
     assert captured.out == "" and captured.err == ""
+
+
+def test_scan_outputs_carry_verdicts_when_a_store_exists(claims, tmp_path):
+    data = tmp_path / "claims.csv"
+    data.write_bytes(claims.read_bytes())
+    plain = investigator.scan(data, id="ref")
+    assert plain.verdicts is None and "verdict" not in plain.record(0)
+    assert main(["verdict", str(data), "--id", "ref", "--key", "R0003", "--set", "confirmed",
+                 "--note", "double keyed"]) == 0
+    result = investigator.scan(data, id="ref")
+    assert result.record(3)["verdict"] == "confirmed" and result.record(3)["note"] == "double keyed"
+    assert result.record(4)["verdict"] is None
+    frame = pd.read_csv(result.write(tmp_path / "scan.csv"))
+    assert frame.loc[3, "verdict"] == "confirmed"

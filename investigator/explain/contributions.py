@@ -15,6 +15,8 @@
   DIFFI (Carletti, Terzi & Susto 2023, "Interpretable anomaly detection with DIFFI"). Not additive in the
   score; shares only.
 
+* hotelling (reference mode): the same Shapley split of T-squared with the reference mean and covariance.
+
 Each function returns an m x p array of contribution values for the m requested records (features the method
 did not use are 0). Shares are value / sum of values over features.
 """
@@ -74,6 +76,10 @@ def method_contributions(result, positions: np.ndarray) -> dict[str, np.ndarray]
             out[key] = robust_distance_contributions(m, X)
         elif key == "isolation":
             out[key] = isolation_contributions(m, X)
+        elif key == "hotelling":
+            values = np.zeros(X.shape)
+            values[:, m.columns_] = m.contributions(X)
+            out[key] = values
         else:
             graph = result.graph
             sub = type(graph)(graph.indices[positions], graph.distances[positions], graph.reference_rows)

@@ -1,15 +1,16 @@
 """What would make a record ordinary for robust_distance: the smallest change to one or two features.
 
-With r = x - mu (scaled units), P = S^-1 and d2 = r'P r, changing feature j by delta gives d2(delta) = d2 +
-2 delta b_j + delta^2 P_jj with b = P r. Its minimum over delta is d2 - b_j^2 / P_jj; when that is below the
-cutoff c, the smallest |delta| reaching c solves P_jj delta^2 + 2 b_j delta + (d2 - c) = 0 in closed form.
-For a pair E = {j, k}: the change that minimises d2 over the pair is delta* = -P_EE^-1 b_E, lowering d2 by
-red = b_E' P_EE^-1 b_E; along that direction d2(t delta*) = d2 - 2 t red + t^2 red, so the smallest t
-reaching c is 1 - sqrt(1 - (d2 - c) / red). The pair with the smallest change (Euclidean, in robust standard
-deviations) is reported. When no pair suffices either (the record is far out in three or more features),
-features are added in order of their Shapley contribution until the same move along the minimising direction
-reaches c; ``features_changed`` says how many, so "one or two were not enough" is visible. Changes are in the scaled space and reported in the column's own units, through the
-inverse of any log transform. Only features robust_distance uses, and not imputed cells.
+With r = x - mu (scaled units), P = S^-1 and d2 = r'P r, changing feature j by delta gives d2(delta) = d2 + 2
+delta b_j + delta^2 P_jj with b = P r. Its minimum over delta is d2 - b_j^2 / P_jj; when that is below the
+cutoff c, the smallest |delta| reaching c solves P_jj delta^2 + 2 b_j delta + (d2 - c) = 0 in closed form. For
+a pair E = {j, k}: the change that minimises d2 over the pair is delta* = -P_EE^-1 b_E, lowering d2 by red =
+b_E' P_EE^-1 b_E; along that direction d2(t delta*) = d2 - 2 t red + t^2 red, so the smallest t reaching c is
+1 - sqrt(1 - (d2 - c) / red). The pair with the smallest change (Euclidean, in robust standard deviations) is
+reported. When no pair suffices either (the record is far out in three or more features), features are added
+in order of their Shapley contribution until the same move along the minimising direction reaches c;
+``features_changed`` says how many, so "one or two were not enough" is visible. Changes are in the scaled
+space and reported in the column's own units, through the inverse of any log transform. Only features
+robust_distance uses, and not imputed cells.
 """
 
 from __future__ import annotations

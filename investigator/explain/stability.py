@@ -19,20 +19,26 @@ STABLE = 0.9
 UNSTABLE = 0.5
 
 
-def flag_stability(features, options, progress: Progress = silent) -> np.ndarray:
+def flag_stability(features, options, progress: Progress = silent, X_ref: np.ndarray | None = None) -> np.ndarray:
+    """Share of resampled runs flagging each record; with ``X_ref`` (reference mode) the subsamples are drawn
+    from the reference records and every record of ``features`` is scored against them."""
     from ..engine import build_methods, combine_results, fit_and_score
 
     X = features.values
-    n = len(X)
+    pool = X if X_ref is None else X_ref
+    n = len(pool)
     size = max(int(round(SUBSAMPLE_SHARE * n)), min(n, X.shape[1] + 2))
-    counts = np.zeros(n)
+    counts = np.zeros(len(X))
     for r in range(options.resamples):
         progress(f"resample {r + 1} of {options.resamples}", 0.92 + 0.07 * r / options.resamples)
         rng = np.random.default_rng([options.seed, 101, r])
         reference = np.sort(rng.choice(n, size=size, replace=False))
         seed = int(rng.integers(0, 2**31 - 1))
         methods = build_methods(options, features, [], seed=seed)
-        results, _, _ = fit_and_score(methods, X, options, reference=reference, seed=seed)
+        if X_ref is None:
+            results, _, _ = fit_and_score(methods, X, options, reference=reference, seed=seed)
+        else:
+            results, _, _ = fit_and_score(methods, X, options, seed=seed, X_ref=X_ref[reference])
         counts += combine_results(results, options).flagged
     return counts / options.resamples
 

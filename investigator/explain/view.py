@@ -12,9 +12,12 @@ itself, with the features where the record differs most from the peers' median.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 import pandas as pd
 
+from ..features import Features
 from ..roles import CATEGORICAL
 from .contributions import method_contributions, shares
 from .nearest import nearest_ordinary
@@ -24,48 +27,71 @@ TOP = 5
 TYPICAL_Z = 0.5  # within half a robust standard deviation of the median: neither higher nor lower
 
 
+@dataclass
+class Pool:
+    """The ordinary records peers and typical ranges come from: the unflagged records of the scan, or in
+    reference mode the (cleaned) reference records."""
+
+    features: Features
+    positions: np.ndarray  # rows of ``features`` in the pool
+    rows: np.ndarray  # 1-based data rows in their file
+    keys: list
+    source: str  # "scan" or "reference"
+
+
+def ordinary_pool(result) -> Pool:
+    if result.reference is not None:
+        ref = result.reference
+        return Pool(result.reference_features, np.arange(ref.n_rows), ref.row_numbers, ref.keys, "reference")
+    ordinary = np.flatnonzero(~result.flagged)
+    if len(ordinary) == 0:
+        ordinary = np.arange(result.n_records)
+    return Pool(result.features, ordinary, result.table.row_numbers, result.keys, "scan")
+
+
 def typical_ranges(result) -> list[dict]:
-    """Per feature, what an unflagged record looks like (cached on the result)."""
+    """Per feature, what an ordinary record looks like (cached on the result)."""
     if result._typical is not None:
         return result._typical
-    ordinary = ~result.flagged
-    if not ordinary.any():
-        ordinary = np.ones(result.n_records, dtype=bool)
+    pool = ordinary_pool(result)
+    F, members = pool.features, pool.positions
     out = []
-    for j, spec in enumerate(result.features.specs):
+    for j, spec in enumerate(F.specs):
         if spec.role == CATEGORICAL:
-            levels = pd.Series(result.features.levels[j][ordinary])
-            share = levels.value_counts(normalize=True)
+            share = pd.Series(F.levels[j][members]).value_counts(normalize=True)
             out.append({"level": str(share.index[0]), "share": float(share.iloc[0])})
         else:
-            keep = ordinary & ~result.features.imputed[:, j]
-            t = result.features.transformed[keep, j]
+            keep = members[~F.imputed[members, j]]
+            t = F.transformed[keep, j]
             q1, med, q3 = (float(spec.to_original(v)) for v in np.quantile(t, [0.25, 0.5, 0.75]))
             out.append({"median": med, "q1": q1, "q3": q3})
     result._typical = out
     return out
 
 
-def raw_value(result, i: int, j: int):
-    if j in result.features.levels:
-        return str(result.features.levels[j][i])
-    if result.features.imputed[i, j]:
+def raw_value(features: Features, i: int, j: int):
+    if j in features.levels:
+        return str(features.levels[j][i])
+    if features.imputed[i, j]:
         return None
-    return float(result.features.raw[i, j])
+    return float(features.raw[i, j])
 
 
 def find_peers(result, positions: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
-    """Positions and distances of the k nearest unflagged records to each record in ``positions``."""
+    """Rows (in the pool's features) and distances of the k nearest ordinary records to each record."""
     from sklearn.neighbors import NearestNeighbors
 
-    ordinary = np.flatnonzero(~result.flagged)
-    k = min(k, len(ordinary) - 1 if len(ordinary) > 1 else len(ordinary))
+    pool = ordinary_pool(result)
+    members = pool.positions
+    same = pool.source == "scan"  # the record itself may be in the pool and must not be its own peer
+    k = min(k, len(members) - 1 if same and len(members) > 1 else len(members))
     if k <= 0:
         return np.zeros((len(positions), 0), dtype=int), np.zeros((len(positions), 0))
-    X = result.features.values
-    index = NearestNeighbors(n_neighbors=k + 1, algorithm="brute").fit(X[ordinary])
-    dist, idx = index.kneighbors(X[positions])
-    cand = ordinary[idx]
+    index = NearestNeighbors(n_neighbors=k + int(same), algorithm="brute").fit(pool.features.values[members])
+    dist, idx = index.kneighbors(result.features.values[positions])
+    cand = members[idx]
+    if not same:
+        return cand, dist
     keep = cand != positions[:, None]
     keep[:, -1] &= ~keep[:, :-1].all(axis=1)  # drop the last when the record itself is not among them
     return cand[keep].reshape(len(positions), k), dist[keep].reshape(len(positions), k)
@@ -111,7 +137,7 @@ def _one(result, i, n, contrib, peer_pos, peer_dist, typical) -> dict:
         else:
             direction = "higher" if z[j] > 0 else "lower"
         top.append({
-            "feature": spec.name, "value": raw_value(result, i, j), "direction": direction,
+            "feature": spec.name, "value": raw_value(result.features, i, j), "direction": direction,
             "typical": typical[j], "robust_z": float(z[j]), "share": float(mean_share[j]),
             "methods": pointing, "imputed": bool(result.features.imputed[i, j]),
         })
@@ -137,25 +163,24 @@ def _one(result, i, n, contrib, peer_pos, peer_dist, typical) -> dict:
 
 
 def _peers(result, i, peer_pos, peer_dist) -> dict:
-    names = result.features.names
-    rows = [{"row": int(p) + 1, "key": result.keys[p], "distance": float(d),
-             "values": {names[j]: raw_value(result, int(p), j) for j in range(len(names))}}
+    pool = ordinary_pool(result)
+    F, names = pool.features, result.features.names
+    rows = [{"row": int(pool.rows[p]), "key": pool.keys[p], "distance": float(d),
+             "values": {names[j]: raw_value(F, int(p), j) for j in range(len(names))}}
             for p, d in zip(peer_pos, peer_dist, strict=True)]
     differences = []
     if len(peer_pos):
-        Z = result.features.values
-        gap = Z[i] - np.median(Z[peer_pos], axis=0)
+        gap = result.features.values[i] - np.median(F.values[peer_pos], axis=0)
         for j in np.argsort(-np.abs(gap), kind="stable")[:3]:
-            spec = result.features.specs[j]
+            spec = F.specs[j]
             if spec.role == CATEGORICAL:
-                peer_values = [raw_value(result, int(p), j) for p in peer_pos]
+                peer_values = [raw_value(F, int(p), j) for p in peer_pos]
                 typical = max(set(peer_values), key=peer_values.count)
             else:
-                t = np.median(result.features.transformed[peer_pos, j])
-                typical = float(spec.to_original(t))
-            differences.append({"feature": spec.name, "value": raw_value(result, i, j), "peers": typical,
-                                "gap_scaled": float(gap[j])})
-    return {"records": rows, "differences": differences}
+                typical = float(spec.to_original(np.median(F.transformed[peer_pos, j])))
+            differences.append({"feature": spec.name, "value": raw_value(result.features, i, j),
+                                "peers": typical, "gap_scaled": float(gap[j])})
+    return {"records": rows, "differences": differences, "from": pool.source}
 
 
 def top_features_text(explanation: dict, limit: int = 3) -> str:

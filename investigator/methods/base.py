@@ -2,11 +2,18 @@
 
 Unified scores follow Kriegel, Kroger, Schubert & Zimek (2011), "Interpreting and Unifying Outlier Scores"
 (SDM): regularise the raw score (log for ratio- and distance-like scores), then Gaussian scaling
-u = max(0, erf((t - centre) / (spread * sqrt 2))). We take centre and spread robustly so the outliers
-being sought do not set their own scale: the median of the reference records' scores, and the spread of
-their upper half, (Q3 - median) / 0.6745, since outlier scores are right-skewed.
-The standardised value z = (t - centre) / spread is what the combination averages; u is 0 for a typical
-record and reaches 2q - 1 (0.95 for q = 0.975) exactly at the method's cutoff.
+u = max(0, erf((t - centre) / (spread * sqrt 2))), with centre and spread taken so the outliers being
+sought do not set their own scale:
+
+* ordinary reference scores are those inside Tukey's far-out fence, Q3 + 3 IQR of t (Tukey 1977);
+* the cutoff is the ``cutoff`` quantile (0.975) of the ordinary scores: what the method's score is for the
+  top 2.5% of ordinary records, whatever the shape of its distribution (outlier scores are right-skewed and
+  their tails differ from method to method);
+* centre = the median of t, and spread = (t_cutoff - centre) / z_q with z_q the normal quantile of
+  ``cutoff``, so that z = (t - centre) / spread equals z_q exactly at the cutoff.
+
+The standardised value z is what the combination averages; u is 0 for a typical record and reaches 2q - 1
+(0.95 for q = 0.975) exactly at the method's cutoff.
 """
 
 from __future__ import annotations
@@ -17,6 +24,8 @@ import numpy as np
 from scipy import special, stats
 
 from ..features import robust_center_scale
+
+FAR_OUT = 3.0  # Tukey's far-out fence: Q3 + 3 IQR
 
 
 def gaussian_scaling(z: np.ndarray) -> np.ndarray:
@@ -69,17 +78,21 @@ class Method:
         t = self._regularise(reference_scores)
         t = t[np.isfinite(t)]
         self.center_, spread, _ = robust_center_scale(t)
-        # Outlier scores are right-skewed even after the log: the spread that matters is that of the
-        # upper half, (Q3 - median) / 0.6745, the upper semi-interquartile range of a normal.
-        upper = (float(np.quantile(t, 0.75)) - self.center_) / 0.6744897501960817
-        self.spread_ = upper if upper > 0 else spread
+        q1, q3 = np.quantile(t, [0.25, 0.75])
+        ordinary = t[t <= q3 + FAR_OUT * (q3 - q1)]
+        self.t_cutoff_ = float(np.quantile(ordinary, self.cutoff))
+        z = stats.norm.ppf(self.cutoff)
+        # Fallback when the quantile sits on the median (many tied scores): the upper semi-IQR of a normal.
+        upper = (float(q3) - self.center_) / 0.6744897501960817
+        span = self.t_cutoff_ - self.center_
+        self.spread_ = span / z if span > 0 else (upper if upper > 0 else spread)
 
     def _default_cutoff(self) -> tuple[float, str]:
         z = stats.norm.ppf(self.cutoff)
         t = self.center_ + z * self.spread_
         return float(self._unregularise(t)), (
-            f"median + {z:.2f} x upper spread of the log score ({z:.2f} is the {self.cutoff:g} normal "
-            "quantile; median and (Q3 - median) / 0.6745 of the reference records' scores)"
+            f"the {self.cutoff:g} quantile of the reference records' scores inside Tukey's far-out fence "
+            "(Q3 + 3 IQR of the log score)"
         )
 
     def _unregularise(self, t: float) -> float:
