@@ -47,6 +47,14 @@ def _add_scan_options(p: argparse.ArgumentParser) -> None:
                    "(slower; by default it samples above 20,000 rows)")
 
 
+def _add_output_options(p: argparse.ArgumentParser, data: str) -> None:
+    p.add_argument("--out", metavar="FILE", help="write the result: .json, .csv or .parquet")
+    p.add_argument("--store", metavar="PATH", help="review store to read verdicts from "
+                   f"(default: {data}.investigation.sqlite, when it exists)")
+    p.add_argument("--top", metavar="N", type=int, default=10, help="flagged records in the summary")
+    p.add_argument("--quiet", action="store_true", help="no summary and no progress bar")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="investigator", description=DESCRIPTION)
     from . import __version__
@@ -59,11 +67,7 @@ def build_parser() -> argparse.ArgumentParser:
                           "rules, combine them, print a summary and optionally write the result.")
     scan.add_argument("data", metavar="DATA", help="CSV/TSV, Parquet or XLSX file")
     _add_scan_options(scan)
-    scan.add_argument("--out", metavar="FILE", help="write the result: .json, .csv or .parquet")
-    scan.add_argument("--store", metavar="PATH", help="review store to read verdicts from "
-                      "(default: DATA.investigation.sqlite, when it exists)")
-    scan.add_argument("--top", metavar="N", type=int, default=10, help="flagged records in the summary")
-    scan.add_argument("--quiet", action="store_true", help="no summary and no progress bar")
+    _add_output_options(scan, "DATA")
 
     check = sub.add_parser("check", help="score new records against a trusted reference",
                            description="Fit the preparation and every method on the REFERENCE records "
@@ -75,11 +79,7 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("--keep-reference-outliers", action="store_true",
                        help="keep the reference records the robust fit flags (default: leave them out)")
     _add_scan_options(check)
-    check.add_argument("--out", metavar="FILE", help="write the result: .json, .csv or .parquet")
-    check.add_argument("--store", metavar="PATH", help="review store to read verdicts from "
-                       "(default: NEW.investigation.sqlite, when it exists)")
-    check.add_argument("--top", metavar="N", type=int, default=10, help="flagged records in the summary")
-    check.add_argument("--quiet", action="store_true", help="no summary and no progress bar")
+    _add_output_options(check, "NEW")
 
     explain = sub.add_parser("explain", help="explain why one record stands out",
                              description="Scan DATA and explain one record: which features made it stand "

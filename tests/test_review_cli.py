@@ -14,25 +14,12 @@ import sys
 import time
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 import pytest
+from review_data import N, invoices  # noqa: F401  (shared invented data)
 
 from investigator.cli import main
 from investigator.review import VERDICTS, default_store_path
-
-N = 12
-
-
-def invoices(n: int = N, seed: int = 3) -> pd.DataFrame:
-    """Invented supplier invoices: a text key, two numbers and a category."""
-    rng = np.random.default_rng(seed)
-    return pd.DataFrame({
-        "invoice": [f"INV-{i:03d}" for i in range(n)],
-        "amount": rng.gamma(3, 40, n).round(2),
-        "lines": rng.integers(1, 9, n),
-        "supplier": rng.choice(["north", "east", "west"], n),
-    })
 
 
 @pytest.fixture

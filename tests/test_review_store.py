@@ -22,6 +22,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from review_data import N  # noqa: F401  (shared invented data)
+from review_data import invoices as _invoices
 
 from investigator.errors import InputError
 from investigator.review import VERDICTS, Case, ReviewStore, default_store_path, group_case
@@ -29,18 +31,9 @@ from investigator.review import store as store_module
 from investigator.review.matching import fingerprint, match_store, record_case, record_values
 from investigator.table import load_table
 
-N = 12
-
 
 def invoices(n: int = N, seed: int = 5) -> pd.DataFrame:
-    """Invented supplier invoices: a text key, two numbers and a category."""
-    rng = np.random.default_rng(seed)
-    return pd.DataFrame({
-        "invoice": [f"INV-{i:03d}" for i in range(n)],
-        "amount": rng.gamma(3, 40, n).round(2),
-        "lines": rng.integers(1, 9, n),
-        "supplier": rng.choice(["north", "east", "west"], n),
-    })
+    return _invoices(n, seed)
 
 
 def write(frame: pd.DataFrame, path: Path) -> Path:
