@@ -22,6 +22,7 @@ from scipy import stats
 
 ENUMERATE_AT_MOST = 5000  # h-subsets; below this the exact MCD is cheaper than the search
 SUBSAMPLE = 1500  # FastMCD draws its starts on a subsample of this size for large n (paper: 5 x 300)
+PART = 300  # ... split into parts of this size
 _RCOND = 1e-12
 _BATCH = 50  # starts whose C-steps run together as one batch of array operations
 
@@ -146,26 +147,27 @@ class FastMCD:
     def _search(self, X: np.ndarray, h: int, ridge: float) -> np.ndarray:
         rng = np.random.default_rng([self.seed, 11])
         n, p = X.shape
-        if n > SUBSAMPLE:
-            sub = np.sort(rng.choice(n, size=SUBSAMPLE, replace=False))
-            Xs, hs = X[sub], int(np.ceil(SUBSAMPLE * h / n))
+        if n <= 2 * PART:
+            candidates = self._starts(X, h, self.n_starts, rng, ridge)
+            sub = None
         else:
-            sub, Xs, hs = None, X, h
-        candidates = []
-        for first in range(0, self.n_starts, _BATCH):
-            starts = [self._start(Xs, rng, ridge) for _ in range(min(_BATCH, self.n_starts - first))]
-            starts = [st for st in starts if st is not None]
-            if not starts:
-                continue
-            sizes = {len(st) for st in starts}
-            for size in sizes:  # starts grown past p + 1 (singular ones) are batched by size
-                group = np.array([st for st in starts if len(st) == size])
-                subsets = _batch_closest(Xs, group, hs, ridge)
+            # The paper's nested scheme for large n: a random subsample of up to 1,500 records split into
+            # up to 5 parts of 300; the starts are shared out over the parts, the 10 best of each part are
+            # refined on the merged subsample, and its 10 best are carried to all records.
+            sub = np.sort(rng.choice(n, size=min(n, SUBSAMPLE), replace=False))
+            parts = np.array_split(rng.permutation(len(sub)), max(1, len(sub) // PART))
+            h_sub = int(np.ceil(len(sub) * h / n))
+            merged = []
+            for part in parts:
+                h_part = int(np.ceil(len(part) * h / n))
+                for _, subset in self._starts(X[sub[part]], h_part, self.n_starts // len(parts), rng, ridge):
+                    merged.append(part[np.array(subset)])
+            candidates = []
+            Xs = X[sub]
+            for subset in merged:
                 for _ in range(2):
-                    subsets = _batch_closest(Xs, subsets, hs, ridge)
-                logdets = _batch_logdet(Xs, subsets, ridge)
-                candidates += [(float(ld), tuple(np.sort(sb)))
-                               for ld, sb in zip(logdets, subsets, strict=True) if np.isfinite(ld)]
+                    subset, logdet = self._c_step(Xs, subset, h_sub, ridge)
+                candidates.append((logdet, tuple(np.sort(subset))))
         if not candidates:
             raise _Singular
         candidates = sorted(set(candidates))[: self.n_best]
@@ -177,6 +179,22 @@ class FastMCD:
                 subset, _ = self._c_step(X, sub[subset], h, ridge)
             best.append(self._converge(X, subset, h, ridge))
         return np.array(min(best)[1], dtype=np.intp)
+
+    def _starts(self, Xs: np.ndarray, hs: int, n_starts: int, rng, ridge: float) -> list:
+        """Random starts with two C-steps each, batched; the n_best (logdet, subset) candidates."""
+        candidates = []
+        for first in range(0, n_starts, _BATCH):
+            starts = [self._start(Xs, rng, ridge) for _ in range(min(_BATCH, n_starts - first))]
+            starts = [st for st in starts if st is not None]
+            for size in sorted({len(st) for st in starts}):  # starts grown past p + 1 are batched by size
+                group = np.array([st for st in starts if len(st) == size])
+                subsets = _batch_closest(Xs, group, hs, ridge)
+                for _ in range(2):
+                    subsets = _batch_closest(Xs, subsets, hs, ridge)
+                logdets = _batch_logdet(Xs, subsets, ridge)
+                candidates += [(float(ld), tuple(np.sort(sb)))
+                               for ld, sb in zip(logdets, subsets, strict=True) if np.isfinite(ld)]
+        return sorted(set(candidates))[: self.n_best]
 
     @staticmethod
     def _start(X, rng, ridge):
