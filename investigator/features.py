@@ -291,8 +291,5 @@ class FeaturePreparer:
         return Features([s.name for s in self.specs_], list(self.specs_), values, transformed, imputed, raw,
                         level_arrays)
 
-    def fit_transform(self, table: Table, columns: list[ColumnInfo]) -> Features:
-        return self.fit(table, columns).transform(table)
-
 
 __all__ = ["DATE", "FeaturePreparer", "FeatureSpec", "Features", "robust_center_scale"]
