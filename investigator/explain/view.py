@@ -3,8 +3,9 @@
 Combined view: each method's contributions become shares (negative Shapley values count 0 here), the shares
 are averaged over the methods, and the features with the largest mean share are listed with the record's raw
 value, the direction (higher / lower than typical, or rarer for a category), the typical range among ordinary
-records (the unflagged records of a scan, the reference records in reference mode) (median and interquartile range in the column's own units, or the commonest level), the
-robust z-score the methods saw, and the methods that point at it (share >= 25%, or the method's top feature).
+records (the unflagged records of a scan, the reference records in reference mode) (median and interquartile
+range in the column's own units, or the commonest level), the robust z-score the methods saw, and the methods
+that point at it (share >= 25%, or the method's top feature).
 
 Peers: the k nearest ordinary records in the scaled feature space (brute force, so exact), never the record
 itself, with the features where the record differs most from the peers' median.
