@@ -101,6 +101,12 @@ def build_parser() -> argparse.ArgumentParser:
     from .review.commands import add_review_commands  # verdict, verdicts: the review store
 
     COMMANDS.update(add_review_commands(sub))
+    from .tui.commands import add_tui_commands  # open: the investigation workspace (terminal UI)
+
+    COMMANDS.update(add_tui_commands(sub))
+    from .report.commands import add_report_commands  # report: HTML report, cases table
+
+    COMMANDS.update(add_report_commands(sub))
     return parser
 
 
@@ -166,6 +172,10 @@ def _cmd_demo(args) -> int:
     folder = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="investigator-demo-"))
     folder.mkdir(parents=True, exist_ok=True)
     path = write_demo(folder)
+    if sys.stdin.isatty() and sys.stdout.isatty() and not args.out:  # a person at a terminal: the workspace
+        from .tui.commands import open_demo
+
+        return open_demo(path, args)
     print(f"Demo data written to {path}")
     result = scan(path, id=DEMO_ID, seed=args.seed, progress=StderrBar())
     if args.out:

@@ -176,7 +176,7 @@ def _peers(result, i, peer_pos, peer_dist) -> dict:
             spec = F.specs[j]
             if spec.role == CATEGORICAL:
                 peer_values = [raw_value(F, int(p), j) for p in peer_pos]
-                typical = max(set(peer_values), key=peer_values.count)
+                typical = max(peer_values, key=peer_values.count)  # ties: the nearest peer's value
             else:
                 typical = float(spec.to_original(np.median(F.transformed[peer_pos, j])))
             differences.append({"feature": spec.name, "value": raw_value(result.features, i, j),

@@ -84,25 +84,37 @@ def locate(table, row: int | None, key: str | None) -> int:
     return keys.index(key)
 
 
+def record_verdict(table, position: int, state: str, note: str | None, path: Path, *,
+                   reviewer: str | None = None, run_id: str | None = None) -> tuple[Entry, Entry | None]:
+    """Save a verdict on the record at 0-based ``position`` of ``table``; return the new entry and the one
+    it replaces. Shared by ``investigator verdict`` and the TUI, so both record a case the same way."""
+    from .matching import record_case
+
+    state = check_verdict(state)
+    if reviewer is not None:
+        check_reviewer(reviewer)
+    case = record_case(table, position)
+    with ReviewStore(path, reviewer=reviewer) as store:
+        before = store.get(case.case_id)
+        entry = store.set(case, state, note, run_id=run_id, data_sha256=table.source.sha256)
+    return entry, before
+
+
 def cmd_verdict(args: argparse.Namespace) -> int:
     from ..table import load_table
-    from .matching import record_case
 
     state = check_verdict(args.state)  # every check before the store is opened
     if args.reviewer is not None:
         check_reviewer(args.reviewer)
     table = load_table(args.data, sheet=args.sheet, id_column=args.id)
     position = locate(table, args.row, args.key)
-    case = record_case(table, position)
     path = store_path(args)
-    with ReviewStore(path, reviewer=args.reviewer) as store:
-        before = store.get(case.case_id)
-        entry = store.set(case, state, args.note, data_sha256=table.source.sha256)
+    entry, before = record_verdict(table, position, state, args.note, path, reviewer=args.reviewer)
     said = f", note '{_show(entry.note)}'" if entry.note else ""
     was = f"; was {before.verdict}" if before else ""
     print(f"{_where(position + 1, table)}: {entry.verdict}{said} (by {_show(entry.reviewer)}{was}). "
           f"Saved in {path}")
-    copies = _identical_rows(table, position, case.fingerprint) if table.key_column is None else []
+    copies = _identical_rows(table, position, entry.fingerprint) if table.key_column is None else []
     if len(copies) > 1:
         print(f"It applies to all {len(copies)} identical records (rows {_rows(copies)}); give --id COLUMN "
               "to tell them apart.")

@@ -1,0 +1,72 @@
+"""The report of an investigation: one self-contained HTML file, or the cases table for a spreadsheet.
+
+    >>> from investigator.report import write_report
+    >>> write_report(result, "report.html")          # summary, method, findings, verdicts, cautions
+    >>> write_report(result, "cases.xlsx")           # or .csv: one row per case, spreadsheet-safe
+
+The review store beside the data (or ``store``) is only read, never created or changed. See docs/report.md.
+"""
+
+from __future__ import annotations
+
+from datetime import UTC, datetime
+from pathlib import Path
+
+from ..errors import InputError
+
+FORMATS = (".html", ".htm", ".xlsx", ".csv")
+DEFAULT_CASES = 50
+
+
+def check_report_path(path: Path) -> None:
+    """Refuse an unusable --out before the scan runs."""
+    if path.suffix.lower() not in FORMATS:
+        raise InputError(f"--out {path}: unknown report format '{path.suffix}'; use one of "
+                         f"{', '.join(FORMATS)}")
+    if not path.parent.is_dir():
+        raise InputError(f"--out {path}: folder {path.parent} does not exist; create it first")
+    if path.is_dir():
+        raise InputError(f"--out {path}: is a folder; give a file name such as report.html")
+
+
+def write_report(result, out: str | Path, *, cases: int = DEFAULT_CASES, store: str | Path | None = None,
+                 generated: str | None = None) -> Path:
+    """Write the report of ``result``; the format follows the extension of ``out``.
+
+    ``cases``: flagged records explained in detail in HTML (the spreadsheet always has every case).
+    ``store``: the review store to read (default: the one the scan read, or the one beside the data file).
+    ``generated``: the generation time to print (default: now, UTC), the only line that differs between
+    two reports of the same scan.
+    """
+    from .reviews import read_review
+
+    path = Path(out)
+    check_report_path(path)
+    if cases < 0:
+        raise InputError(f"--cases {cases}: give 0 or more (the number of cases explained in detail)")
+    review = read_review(result, store)
+    suffix = path.suffix.lower()
+    tmp = path.with_name(path.name + ".part")
+    try:
+        if suffix in (".html", ".htm"):
+            from .html import render_html
+
+            when = generated or datetime.now(UTC).replace(microsecond=0).isoformat()
+            tmp.write_text(render_html(result, review, cases=cases, generated=when), encoding="utf-8")
+        else:
+            from .cases import build_cases, table_rows
+            from .sheet import write_csv, write_xlsx
+
+            headers, rows = table_rows(result, build_cases(result, review))
+            (write_csv if suffix == ".csv" else write_xlsx)(tmp, headers, rows)
+        tmp.replace(path)  # never a half-written report under the real name
+    except OSError as exc:
+        tmp.unlink(missing_ok=True)
+        raise InputError(f"--out {path}: cannot write ({exc.strerror or exc}); check the folder is writable"
+                         ) from None
+    finally:
+        tmp.unlink(missing_ok=True)
+    return path
+
+
+__all__ = ["DEFAULT_CASES", "FORMATS", "check_report_path", "write_report"]

@@ -1,0 +1,104 @@
+"""The cases of a report: the flagged records ranked by consensus, then any other record with a verdict,
+each with its explanation and verdict; and the same as rows of a table for a spreadsheet."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..explain.text import _fmt
+from ..explain.view import top_features_text
+
+SIGNS = {"higher": "+", "lower": "-", "typical": "~", "rarer": "rare", "common": "common"}
+
+
+@dataclass
+class Case:
+    rank: int | None     # among the flagged records by consensus (1 = the most unusual); None if not flagged
+    position: int        # 0-based
+    record: dict         # result.record(position): scores, flags, column hits, ... (and pattern/group if any)
+    explanation: dict    # result.explain()-style dict
+    match: object | None  # the verdict in force (review.matching.RecordMatch), or None
+
+    @property
+    def anchor(self) -> str:
+        """The id of the case's block in the HTML report."""
+        return f"case-{self.rank}" if self.rank is not None else f"record-{self.position + 1}"
+
+
+def flagged_positions(result) -> list[int]:
+    return [int(i) for i in result.ranking() if result.flagged[i]]
+
+
+def build_cases(result, review, limit: int | None = None) -> list[Case]:
+    """The first ``limit`` flagged records by consensus, then every other record with a verdict (flagged ones
+    beyond the limit first, all by consensus): a verdict is part of the record of the investigation."""
+    from ..explain.view import explain_positions
+
+    flagged = flagged_positions(result)
+    rank = {i: n for n, i in enumerate(flagged, 1)}
+    judged = set(review.matching.matches) if review.matching is not None else set()
+    top = flagged if limit is None else flagged[:limit]
+    beyond = [i for i in flagged[len(top):] if i in judged]
+    others = [int(i) for i in result.ranking() if int(i) in judged and not result.flagged[i]]
+    explained = dict(result.explanations()) if top or beyond else {}
+    if others:  # explained on request: explanations() covers the flagged records only
+        explained.update(zip(others, explain_positions(result, np.array(others)), strict=True))
+    return [Case(rank.get(i), i, result.record(i), explained[i], review.match(i)) for i in top + beyond + others]
+
+
+# -- text for table cells ------------------------------------------------------------------------------------
+
+
+def column_hits_text(hits: list[dict]) -> str:
+    """E.g. "amount: boxplot_fence (2,403 above 180.5)"."""
+    return "; ".join(f"{h['column']}: {h['rule']} ({_fmt(h['value'])} "
+                     f"{'above' if h['side'] == 'upper' else 'below'} {_fmt(h['limit'])})" for h in hits)
+
+
+def nearest_text(nearest: dict | None) -> str:
+    """E.g. "amount 240.3 instead of 2,403 (robust distance 60.5 -> 11.1, cutoff 11.14)"."""
+    if not nearest:
+        return ""
+    change = " and ".join(f"{c['feature']} {_fmt(c['to'])} instead of {_fmt(c['from'])}"
+                          for c in nearest["changes"])
+    return (f"{change} (robust distance {nearest['distance_before']:.1f} -> {nearest['distance_after']:.1f}, "
+            f"cutoff {nearest['cutoff']:.2f})")
+
+
+def top_text(explanation: dict, limit: int = 5) -> str:
+    return top_features_text(explanation, limit=limit)
+
+
+def table_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
+    """The cases table: headers and one row per case (numbers as numbers, text as text)."""
+    methods = list(result.methods)
+    extra = [k for k in ("stability", "pattern", "group") if any(k in c.record for c in cases)]
+    headers = (["rank", "row", "key", "consensus", "votes", "flagged"] + [f"flag_{k}" for k in methods]
+               + ["top_features", "column_hits", "nearest_ordinary_change"] + extra
+               + ["verdict", "note", "reviewer", "verdict_at", "changed_since_verdict"])
+    rows = []
+    for c in cases:
+        r, m = c.record, c.match
+        entry = m.entry if m is not None else None
+        rows.append(
+            [c.rank, r["row"], _plain(r["key"]), r["consensus"], r["votes"], r["flagged"]]
+            + [r["flags"][k] for k in methods]
+            + [top_text(c.explanation), column_hits_text(r["column_hits"]),
+               nearest_text(c.explanation.get("nearest_ordinary"))]
+            + [_plain(r.get(k)) for k in extra]
+            + [entry.verdict if entry else None, entry.note if entry else None,
+               entry.reviewer if entry else None, entry.at if entry else None,
+               (m.changed if m is not None else None)]
+        )
+    return headers, rows
+
+
+def _plain(value):
+    """A cell value as a spreadsheet takes it: numpy scalars to Python, lists to text."""
+    if hasattr(value, "item") and not isinstance(value, str):
+        value = value.item()
+    if isinstance(value, list | tuple | dict):
+        return str(value)
+    return value

@@ -1,0 +1,253 @@
+"""The investigation workspace: state, workers and navigation; the screens draw, the engine computes.
+
+Slow work (loading, scanning, explaining, saving) runs in thread workers; the engine is imported inside
+them, so the first frame appears before pandas and scikit-learn are loaded.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from textual.app import App
+from textual.binding import Binding
+from textual.reactive import reactive
+from textual.worker import Worker, WorkerState
+
+from . import jobs
+from .screens.cases import CasesScreen
+from .screens.columns import ColumnsScreen
+from .screens.map import MapScreen
+
+# Absolute, so subclasses elsewhere (the benchmark) find it; it ships as package data (pyproject).
+STYLES = Path(__file__).with_name("investigator.tcss")
+
+
+class InvestigatorApp(App):
+    CSS_PATH = STYLES
+    TITLE = "investigator"
+    MODES = {"columns": ColumnsScreen, "cases": CasesScreen, "map": MapScreen}
+    BINDINGS = [
+        Binding("1", "show('columns')", "Columns"),
+        Binding("2", "show('cases')", "Cases"),
+        Binding("3", "show('map')", "Map"),
+        Binding("question_mark", "help", "Help"),
+        Binding("q", "quit", "Quit"),
+    ]
+
+    loaded = reactive(None, always_update=True)       # jobs.Loaded
+    load_error: reactive[str | None] = reactive(None, always_update=True)
+    result = reactive(None, always_update=True)       # ScanResult
+    cases = reactive(None, always_update=True)        # CasesData
+    progress = reactive(None, always_update=True)     # (stage, fraction) while scanning, else None
+    review_version = reactive(0)
+    map_points = reactive(None, always_update=True)   # (coords, source)
+
+    def __init__(self, path: str | Path, options=None, *, autoscan: bool = False, store=None,
+                 show_hint: bool = True) -> None:
+        """``options``: a ScanOptions, or a dict of its fields (validated in the load worker, so a bad option
+        shows as a one-line error in the UI and the first frame does not wait for the engine's imports)."""
+        super().__init__()
+        self.path = Path(path)
+        self.base_options = options
+        self.autoscan = autoscan
+        self.store_option = store
+        self.show_hint = show_hint
+        self.choices = None      # columns_model.ColumnChoices
+        self.token: jobs.CancelToken | None = None
+        self.views = None        # record_model.ViewCache
+        self.group_labels = None
+        self.last_error: str | None = None
+
+    # -- start ---------------------------------------------------------------------------------------
+    def on_mount(self) -> None:
+        self.switch_mode("columns")
+        self.open_path(self.path)
+
+    def open_path(self, path: str | Path) -> None:
+        self.path = Path(path)
+        self.sub_title = self.path.name  # the name only: fits 80 columns
+        self.load_error = None
+        options = self.base_options
+        self.run_worker(lambda: jobs.load(self.path, options), thread=True, name="load",
+                        group="load", exclusive=True, exit_on_error=False)
+
+    def _options_base(self):
+        """The ScanOptions the table was loaded with (built in the load worker from a dict, if given one)."""
+        return self.base_options
+
+    # -- scanning ------------------------------------------------------------------------------------
+    def logged(self) -> set[str]:
+        """Columns the last scan log-transformed (what "auto" decided)."""
+        if self.result is None:
+            return set()
+        return {s.name for s in self.result.features.specs if s.transform == "log"}
+
+    def scan_options(self):
+        return self.choices.options(self._options_base())
+
+    def start_scan(self) -> None:
+        if self.loaded is None:
+            self.notify("Nothing loaded to scan.", severity="warning")
+            return
+        if self.token is not None:
+            self.notify("A scan is running (esc cancels it).", severity="warning")
+            return
+        from ..errors import InputError
+
+        try:
+            options = self.scan_options()
+        except InputError as exc:
+            self.notify(str(exc), severity="error")
+            return
+        token = self.token = jobs.CancelToken()
+        table, store = self.loaded.table, self.store_path()
+        store_arg = store if store.exists() else None
+
+        def progress(stage: str, fraction: float) -> None:
+            self.call_from_thread(setattr, self, "progress", (stage, fraction))
+
+        self.progress = ("starting", 0.0)
+        self.run_worker(lambda: jobs.run(table, options, progress, token, store_arg, self.path), thread=True,
+                        name="scan", group="scan", exit_on_error=False)
+
+    def cancel_scan(self) -> None:
+        if self.token is not None:
+            self.token.cancel()
+            self.progress = ("cancelling (at the end of the current step)", self.progress[1]
+                             if self.progress else 0.0)
+
+    def store_path(self) -> Path:
+        return jobs.store_for(self.path, self.store_option)
+
+    # -- worker results ------------------------------------------------------------------------------
+    def on_worker_state_changed(self, event: Worker.StateChanged) -> None:
+        worker, state = event.worker, event.state
+        if state not in (WorkerState.SUCCESS, WorkerState.ERROR):
+            return
+        handler = getattr(self, f"_done_{worker.name}", None)
+        if handler is not None:
+            handler(worker.result if state == WorkerState.SUCCESS else None, worker.error)
+
+    def _message(self, error: BaseException) -> str:
+        from ..errors import InputError
+
+        if isinstance(error, InputError):
+            return str(error).replace("\n", " ")
+        return f"internal error: {type(error).__name__}: {error}"
+
+    def _done_load(self, loaded, error) -> None:
+        if error is not None:
+            self.last_error = self.load_error = self._message(error)
+            return
+        from .columns_model import ColumnChoices
+
+        self.base_options = loaded.options
+        self.choices = ColumnChoices.start(loaded.rows, loaded.options.log)
+        self.result = self.cases = self.map_points = None
+        self.loaded = loaded
+        if self.autoscan:
+            self.start_scan()
+
+    def _done_scan(self, value, error) -> None:
+        self.token = None
+        self.progress = None
+        if error is not None:
+            if isinstance(error, jobs.ScanCancelled):
+                self.notify("Scan cancelled; the previous result (if any) is kept.")
+            else:
+                self.last_error = self._message(error)
+                self.notify(self.last_error, severity="error", timeout=10)
+            return
+        from .map_model import group_labels
+        from .record_model import ViewCache
+
+        result, cases = value
+        self.views = ViewCache(result)
+        self.group_labels = group_labels(result)
+        self.map_points = None
+        self.result = result
+        self.cases = cases
+        if self.current_mode == "columns":
+            self.switch_mode("cases")
+
+    # -- records -------------------------------------------------------------------------------------
+    def open_record(self, position: int, order) -> None:
+        from .screens.record import RecordScreen
+
+        self.push_screen(RecordScreen(position, order))
+
+    def cached_view(self, position: int) -> dict | None:
+        return self.views.get(position) if self.views is not None else None
+
+    def request_view(self, position: int, callback, prefetch: list[int] = ()) -> None:
+        views = self.views
+
+        def work() -> None:
+            view = views.compute(position)
+            self.call_from_thread(callback, position, view)
+            for p in prefetch:  # the records the user is likely to move to next
+                views.compute(p)
+
+        self.run_worker(work, thread=True, name="explain", group="explain", exit_on_error=False)
+
+    def _done_explain(self, _value, error) -> None:
+        if error is not None:
+            self.notify(self._message(error), severity="error")
+
+    def request_map(self) -> None:
+        if self.result is None or self.map_points is not None:
+            return
+        from .map_model import map_coords
+
+        result = self.result
+        self.run_worker(lambda: map_coords(result), thread=True, name="map", group="map", exclusive=True,
+                        exit_on_error=False)
+
+    def _done_map(self, value, error) -> None:
+        if error is not None:
+            self.notify(self._message(error), severity="error")
+        else:
+            self.map_points = value
+
+    # -- verdicts ------------------------------------------------------------------------------------
+    def ask_verdict(self, position: int) -> None:
+        from .screens.verdict import VerdictScreen
+
+        d = self.cases
+        screen = VerdictScreen(d.keys[position], int(d.rows[position]), d.verdicts[position] or None,
+                               d.notes[position] or None)
+        self.push_screen(screen, lambda answer: self.save_verdict(position, *answer) if answer else None)
+
+    def save_verdict(self, position: int, state: str, note: str) -> None:
+        table, store = self.result.table, self.store_path()
+        run_id = self.result.run.get("started")
+        self.run_worker(lambda: jobs.save_verdict(table, position, state, note, store, run_id), thread=True,
+                        name="verdict", group="verdict", exit_on_error=False)
+
+    def _done_verdict(self, value, error) -> None:
+        if error is not None:
+            self.notify(f"Verdict not saved: {self._message(error)}", severity="error", timeout=10)
+            return
+        entry, verdicts, notes = value
+        self.result.verdicts, self.result.notes = verdicts, notes
+        self.cases.set_verdicts(verdicts, notes)
+        self.review_version += 1
+        self.notify(f"Saved: {entry.key or 'row ' + str(entry.row)} is {entry.verdict} "
+                    f"(in {self.store_path().name})")
+
+    # -- navigation ----------------------------------------------------------------------------------
+    def action_show(self, mode: str) -> None:
+        self.switch_mode(mode)
+
+    def action_help(self) -> None:
+        from .screens.help import HelpScreen
+        from .screens.record import RecordScreen
+        from .screens.verdict import VerdictScreen
+        from .widgets.cases_table import CasesTable
+        from .widgets.map_canvas import MapCanvas
+
+        self.push_screen(HelpScreen({
+            "Everywhere": self.BINDINGS, "Columns": ColumnsScreen.BINDINGS,
+            "Cases": CasesTable.BINDINGS + CasesScreen.BINDINGS, "Record": RecordScreen.BINDINGS,
+            "Map": MapCanvas.BINDINGS + MapScreen.BINDINGS, "Verdict": VerdictScreen.BINDINGS,
+        }))

@@ -1,0 +1,88 @@
+"""The slow work the app runs in worker threads: loading, scanning, explaining, saving verdicts.
+
+Plain functions over the engine; they import it lazily so the first frame does not wait for pandas and
+scikit-learn. Errors the user can fix arrive as InputError with one line.
+"""
+
+from __future__ import annotations
+
+import threading
+from dataclasses import dataclass
+from pathlib import Path
+
+
+class ScanCancelled(Exception):
+    """Raised from the progress callback when the user cancelled the scan."""
+
+
+@dataclass
+class Loaded:
+    table: object
+    rows: list     # ColumnRow
+    options: object  # the ScanOptions the file was read with
+
+
+def load(path: str | Path, options) -> Loaded:
+    """Read the table and infer the roles. ``options`` is a ScanOptions or a dict of its fields: building
+    it here keeps the options module (which imports the methods, hence SciPy) off the first frame."""
+    from ..options import ScanOptions
+    from ..roles import assign_roles
+    from ..table import load_table
+    from .columns_model import column_rows
+
+    if not isinstance(options, ScanOptions):
+        options = ScanOptions(**(options or {}))
+    table = load_table(path, sheet=options.sheet, id_column=options.id)
+    columns = assign_roles(table, options.features, options.exclude)
+    return Loaded(table, column_rows(table, columns), options)
+
+
+class CancelToken:
+    def __init__(self) -> None:
+        self._event = threading.Event()
+
+    def cancel(self) -> None:
+        self._event.set()
+
+    @property
+    def cancelled(self) -> bool:
+        return self._event.is_set()
+
+
+def run(table, options, progress, token: CancelToken, store: Path | None, path: str | Path | None):
+    """Scan ``table``; ``progress(stage, fraction)`` is the engine's callback. The scan stops at the next
+    progress report after ``token.cancel()`` (the engine reports between its steps)."""
+    from ..engine import attach_verdicts, run_scan
+    from .cases_model import cases_data
+
+    def report(stage: str, fraction: float) -> None:
+        if token.cancelled:
+            raise ScanCancelled
+        progress(stage, fraction)
+
+    result = run_scan(table, options, report)
+    if token.cancelled:
+        raise ScanCancelled
+    if path is not None:
+        attach_verdicts(result, path, store)
+    report("preparing the cases", 1.0)
+    return result, cases_data(result)
+
+
+def save_verdict(table, position: int, state: str, note: str | None, store: Path, run_id: str | None):
+    """Save one verdict (the same function ``investigator verdict`` uses) and re-match the store, so copies
+    that share a fingerprint show it too. Returns (entry, verdicts, notes)."""
+    from ..review.commands import record_verdict
+    from ..review.matching import match_store
+    from ..review.store import ReviewStore
+
+    entry, _ = record_verdict(table, position, state, note, store, run_id=run_id)
+    with ReviewStore(store, create=False) as review:
+        matching = match_store(table, review)
+    return entry, matching.verdicts(), matching.notes()
+
+
+def store_for(path: str | Path, store: str | Path | None) -> Path:
+    from ..review.store import default_store_path
+
+    return Path(store) if store else default_store_path(path)

@@ -1,0 +1,1 @@
+"""Screens of the investigation workspace, one per module."""

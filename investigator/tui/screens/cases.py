@@ -1,0 +1,173 @@
+"""Cases: the records by consensus, sortable and filterable; the start of every drill-down."""
+
+from __future__ import annotations
+
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.screen import Screen
+from textual.widgets import Footer, Header, Input, Static
+
+from ..cases_model import NO_VERDICT, CaseFilter
+from ..widgets.cases_table import CasesTable
+from ..widgets.scan_progress import ScanProgress
+
+HINT = (
+    "consensus 0-1: how strongly the methods together set a record apart (the sort order) · votes: methods "
+    "above their cutoff; FLAG at half or more · pattern: a flag alone (isolated) or in a group · "
+    "a flag is a lead, not proof · i hides this, ? all keys"
+)
+VERDICT_FILTERS = (None, NO_VERDICT, "open", "confirmed", "benign", "follow-up")
+
+
+class CasesScreen(Screen):
+    AUTO_FOCUS = "#cases-table"
+    BINDINGS = [
+        Binding("s", "sort", "Sort"),
+        Binding("r", "reverse", "Reverse"),
+        Binding("f", "flagged", "Flagged only"),
+        Binding("m", "method", "Method"),
+        Binding("g", "pattern", "Isolated/group"),
+        Binding("d", "verdict_filter", "Verdict filter"),
+        Binding("slash", "search", "Search key"),
+        Binding("x", "clear", "Clear filters"),
+        Binding("v", "verdict", "Verdict"),
+        Binding("i", "hint", "Hint", show=False),
+        Binding("escape", "leave_search", show=False),
+    ]
+
+    def __init__(self, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.sort = "consensus"
+        self.reverse = False
+        self.filter = CaseFilter()
+
+    def compose(self) -> ComposeResult:
+        yield Header()
+        yield Static("", id="cases-status")
+        yield Static(HINT, id="hint")
+        yield Input(placeholder="part of a key (enter to keep, esc to leave)", id="search", classes="hidden")
+        yield CasesTable(id="cases-table")
+        yield Static("", id="cases-detail")
+        yield ScanProgress()
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self.query_one("#hint").set_class(not self.app.show_hint, "hidden")
+        self.watch(self.app, "cases", lambda _: self.refill())
+        self.watch(self.app, "review_version", lambda _: self.refill(keep=True))
+
+    @property
+    def table(self) -> CasesTable:
+        return self.query_one(CasesTable)
+
+    def refill(self, keep: bool = True) -> None:
+        data = self.app.cases
+        table = self.table
+        if data is None:
+            self.query_one("#cases-status", Static).update("No scan yet: press 1 for the columns, then s.")
+            table.refresh()
+            return
+        if self.sort not in data.sorts():
+            self.sort = "consensus"
+        if self.filter.method and self.filter.method not in data.methods:
+            self.filter.method = None
+        order = data.order(self.sort, self.reverse, self.filter)
+        table.set_rows(data, order, self.sort, self.reverse, keep=table.position if keep else None)
+        direction = "lowest first" if self.reverse else "highest first"
+        if self.sort in ("key", "pattern"):
+            direction = "Z to A" if self.reverse else "A to Z"
+        elif self.sort == "verdict":
+            direction = "undecided first" if self.reverse else "decided first"
+        self.query_one("#cases-status", Static).update(
+            f"{int(data.flagged.sum()):,} flagged of {data.n:,} · showing {len(order):,} "
+            f"({self.filter.describe()}) · sorted by {self.sort}, {direction}")
+        if not self.query_one("#search", Input).has_focus:  # typing a search keeps the focus in the box
+            table.focus()
+
+    def on_cases_table_highlighted(self, event: CasesTable.Highlighted) -> None:
+        data, p = self.app.cases, event.position
+        detail = self.query_one("#cases-detail", Static)
+        if data is None or p is None:
+            detail.update("")
+            return
+        which = [m for m in data.methods if data.flags[m][p]]
+        hits = self.app.result.column_hits[p]
+        hit_text = "; ".join(f"{h['column']} {h['rule']}" for h in hits[:3]) or "none"
+        verdict = data.verdicts[p] or "none"
+        note = f" ({data.notes[p]})" if data.notes[p] else ""
+        detail.update(
+            f"{data.keys[p]} (row {data.rows[p]}): {'FLAG' if data.flagged[p] else 'not flagged'}, "
+            f"above the cutoff of {', '.join(which) or 'no method'}. Column hits: {hit_text}. "
+            f"Verdict: {verdict}{note}")
+
+    def on_cases_table_selected(self, event: CasesTable.Selected) -> None:
+        self.app.open_record(event.position, self.table.order)
+
+    # -- actions -------------------------------------------------------------------------------------
+    def _cycle(self, options: list, current):
+        return options[(options.index(current) + 1) % len(options)] if current in options else options[0]
+
+    def action_sort(self) -> None:
+        if self.app.cases is not None:
+            self.sort, self.reverse = self._cycle(self.app.cases.sorts(), self.sort), False
+            self.refill(keep=False)  # a new order starts at its top
+
+    def action_reverse(self) -> None:
+        self.reverse = not self.reverse
+        self.refill(keep=False)
+
+    def action_flagged(self) -> None:
+        self.filter.flagged_only = not self.filter.flagged_only
+        self.refill()
+
+    def action_method(self) -> None:
+        if self.app.cases is not None:
+            self.filter.method = self._cycle([None, *self.app.cases.methods], self.filter.method)
+            self.refill()
+
+    def action_pattern(self) -> None:
+        if self.app.cases is None or self.app.cases.pattern is None:
+            self.notify("No patterns in this result yet (no groups).", severity="warning")
+            return
+        self.filter.pattern = self._cycle([None, "isolated", "group"], self.filter.pattern)
+        self.refill()
+
+    def action_verdict_filter(self) -> None:
+        self.filter.verdict = self._cycle(list(VERDICT_FILTERS), self.filter.verdict)
+        self.refill()
+
+    def action_search(self) -> None:
+        box = self.query_one("#search", Input)
+        box.remove_class("hidden")
+        box.focus()
+
+    def on_input_changed(self, event: Input.Changed) -> None:
+        if event.input.id == "search" and event.value.strip() != self.filter.text:
+            self.filter.text = event.value.strip()
+            self.refill()
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        if event.input.id == "search":
+            self.table.focus()
+
+    def action_leave_search(self) -> None:
+        box = self.query_one("#search", Input)
+        if box.has_focus:
+            self.table.focus()
+            if not box.value:
+                box.add_class("hidden")
+
+    def action_clear(self) -> None:
+        self.filter = CaseFilter()
+        box = self.query_one("#search", Input)
+        box.value = ""
+        box.add_class("hidden")
+        self.refill()
+
+    def action_verdict(self) -> None:
+        if self.table.position is not None:
+            self.app.ask_verdict(self.table.position)
+
+    def action_hint(self) -> None:
+        self.app.show_hint = not self.app.show_hint
+        self.query_one("#hint").set_class(not self.app.show_hint, "hidden")

@@ -1,0 +1,186 @@
+"""Record: one record's values beside the typical range, contributions per method, why each method flags
+it or not, column hits, peers side by side, and the smallest change that would make it ordinary."""
+
+from __future__ import annotations
+
+import numpy as np
+from rich.table import Table
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import VerticalScroll
+from textual.screen import Screen
+from textual.widgets import Footer, Header, Static
+
+from ...explain.text import _fmt, _typical
+from ..widgets.contribution_bars import ContributionBars
+
+DEBOUNCE_S = 0.06  # moving fast through records asks the engine only for the one the user stops on
+
+
+class RecordScreen(Screen):
+    BINDINGS = [
+        Binding("up", "move(-1)", "Previous"),
+        Binding("down", "move(1)", "Next"),
+        Binding("pageup", "scroll(-1)", "Scroll", show=False),
+        Binding("pagedown", "scroll(1)", show=False),
+        Binding("space", "scroll(1)", show=False),
+        Binding("v", "verdict", "Verdict"),
+        Binding("escape", "back", "Back"),
+    ]
+
+    def __init__(self, position: int, order: np.ndarray, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.order = order
+        where = np.flatnonzero(order == position)
+        self.index = int(where[0]) if len(where) else 0
+        self.position = position
+        self.view: dict | None = None
+        self._timer = None
+
+    def compose(self) -> ComposeResult:
+        yield Header()
+        yield Static("", id="record-head")
+        with VerticalScroll(id="record-body", can_focus=False):
+            yield Static("", id="record-headline")
+            yield Static("", id="record-change")
+            yield Static("Why each method flags it or not", classes="section")
+            yield Static("", id="record-methods")
+            yield Static("Contributions per method (share of each method's score)", classes="section")
+            yield ContributionBars(id="record-bars")
+            yield Static("Values beside the typical range (unflagged records: median, quartiles)",
+                         classes="section")
+            yield Static("", id="record-values")
+            yield Static("Column hits", classes="section")
+            yield Static("", id="record-hits")
+            yield Static("Peers: the nearest unflagged records", classes="section")
+            yield Static("", id="record-peers")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self.query_one("#record-body").can_focus = False
+        self.watch(self.app, "review_version", lambda _: self._head())
+        self.show(self.position, debounce=False)
+
+    # -- moving --------------------------------------------------------------------------------------
+    def action_move(self, step: int) -> None:
+        if len(self.order):
+            self.index = max(0, min(self.index + step, len(self.order) - 1))
+            self.show(int(self.order[self.index]))
+
+    def show(self, position: int, debounce: bool = True) -> None:
+        """Draw the cheap part at once; the explanation from the cache, or after a short pause."""
+        self.position = position
+        self._head()
+        view = self.app.cached_view(position)
+        if self._timer is not None:
+            self._timer.stop()
+            self._timer = None
+        if view is not None:
+            self._draw(view)
+        else:
+            self.query_one("#record-headline", Static).update(Text("explaining...", style="dim"))
+            if debounce:
+                self._timer = self.set_timer(DEBOUNCE_S, self._request)
+            else:
+                self._request()
+
+    def _neighbours(self) -> list[int]:
+        i = self.index
+        return [int(self.order[j]) for j in (i + 1, i - 1, i + 2) if 0 <= j < len(self.order)]
+
+    def _request(self) -> None:
+        self.app.request_view(self.position, self._received, prefetch=self._neighbours())
+
+    def _received(self, position: int, view: dict) -> None:
+        if position == self.position and self.is_mounted:
+            self._draw(view)
+
+    def action_scroll(self, direction: int) -> None:
+        body = self.query_one("#record-body", VerticalScroll)
+        (body.scroll_page_down if direction > 0 else body.scroll_page_up)()
+
+    def action_verdict(self) -> None:
+        self.app.ask_verdict(self.position)
+
+    def action_back(self) -> None:
+        self.app.pop_screen()
+
+    # -- drawing -------------------------------------------------------------------------------------
+    def _head(self) -> None:
+        d, p = self.app.cases, self.position
+        verdict = d.verdicts[p] or "none"
+        note = f" ({d.notes[p]})" if d.notes[p] else ""
+        flag = "FLAG" if d.flagged[p] else "not flagged"
+        self.query_one("#record-head", Static).update(
+            f"Record {d.keys[p]} · row {d.rows[p]} · {flag} · consensus {d.consensus[p]:.4f} · votes "
+            f"{d.votes[p]}/{len(d.methods)} · verdict: {verdict}{note} · {self.index + 1} of {len(self.order)}")
+
+    def _draw(self, e: dict) -> None:
+        self.view = e
+        self.query_one("#record-headline", Static).update(e["headline"])
+        self.query_one("#record-change", Static).update(_change(e))
+        self.query_one("#record-methods", Static).update(_methods(e))
+        self.query_one(ContributionBars).show(e)
+        self.query_one("#record-values", Static).update(_values(e))
+        hits = e["column_hits"]
+        self.query_one("#record-hits", Static).update(
+            "\n".join(f"{h['column']}: {h['rule']} ({_fmt(h['value'])} is "
+                      f"{'above' if h['side'] == 'upper' else 'below'} {_fmt(h['limit'])})" for h in hits)
+            or "none: no single column is out of the ordinary by the per-column rules")
+        self.query_one("#record-peers", Static).update(_peers(e))
+
+
+def _change(e: dict) -> str:
+    nearest = e.get("nearest_ordinary")
+    if nearest:
+        change = " and ".join(f"{c['feature']} {_fmt(c['to'])} instead of {_fmt(c['from'])}"
+                              for c in nearest["changes"])
+        return (f"Smallest change that makes it ordinary (robust_distance): {change} (distance "
+                f"{nearest['distance_before']:.1f} -> {nearest['distance_after']:.1f}, cutoff "
+                f"{nearest['cutoff']:.2f}).")
+    if e["methods"].get("robust_distance", {}).get("flag"):
+        return "No change to the features robust_distance uses brings it under its cutoff."
+    return "robust_distance does not flag it: no change needed there."
+
+
+def _methods(e: dict) -> Table:
+    t = Table(box=None, padding=(0, 1), show_edge=False)
+    for h, j in (("method", "left"), ("score", "right"), ("cutoff", "right"), ("flag", "left"),
+                 ("top features", "left")):
+        t.add_column(h, justify=j)
+    for key, m in e["methods"].items():
+        tops = ", ".join(f"{c['feature']} {c['share']:.0%}" for c in e["contributions"].get(key, [])[:2])
+        verdict = "yes: above" if m["flag"] else "no: below"
+        t.add_row(key, f"{m['score']:.4g}", f"{m['cutoff']:.4g}", verdict, tops,
+                  style="bold" if m["flag"] else "")
+    return t
+
+
+def _values(e: dict) -> Table:
+    t = Table(box=None, padding=(0, 1), show_edge=False)
+    for h, j in (("feature", "left"), ("value", "right"), ("typical", "left"), ("z", "right"), ("", "left")):
+        t.add_column(h, justify=j)
+    top = {f["feature"]: f["direction"] for f in e["top_features"]}
+    for v in e["values"]:
+        mark = {"higher": "▲ higher", "lower": "▼ lower", "rarer": "◆ rare"}.get(top.get(v["feature"]), "")
+        value = _fmt(v["value"]) + (" (imputed)" if v["imputed"] else "")
+        t.add_row(v["feature"], value, _typical(v["typical"]), f"{v['robust_z']:+.1f}", mark,
+                  style="bold" if mark else "")
+    return t
+
+
+def _peers(e: dict) -> Table | str:
+    peers = e["peers"]["records"]
+    if not peers:
+        return "no unflagged peers"
+    names = [t["feature"] for t in e["top_features"][:4]] or list(peers[0]["values"])[:4]
+    t = Table(box=None, padding=(0, 1), show_edge=False)
+    t.add_column("record")
+    for n in names:
+        t.add_column(n[:12], justify="right")
+    own = {v["feature"]: v["value"] for v in e["values"]}
+    t.add_row(f"this ({e['key']})", *[_fmt(own.get(n)) for n in names], style="bold")
+    for p in peers:
+        t.add_row(f"{p['key']} d={p['distance']:.2f}", *[_fmt(p["values"].get(n)) for n in names])
+    return t

@@ -1,0 +1,71 @@
+"""The verdict modal: a letter picks the state, then type the note; enter saves at once."""
+
+from __future__ import annotations
+
+from textual import events
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.screen import ModalScreen
+from textual.widget import Widget
+from textual.widgets import Input, Label, Static
+
+LETTERS = {"o": "open", "c": "confirmed", "b": "benign", "f": "follow-up"}
+
+
+class StatePicker(Widget, can_focus=True):
+    """The four states in one line; the chosen one has (x), the others ( )."""
+
+    DEFAULT_CSS = "StatePicker { height: 1; }"
+
+    def __init__(self, state: str, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.state = state
+
+    def render(self) -> str:
+        return "   ".join(f"{'(x)' if s == self.state else '( )'} [{k}] {s}" for k, s in LETTERS.items())
+
+    def on_key(self, event: events.Key) -> None:
+        key = (event.character or "").lower()
+        if key in LETTERS:
+            self.state = LETTERS[key]
+            self.refresh()
+            event.stop()
+            self.screen.query_one("#verdict-note", Input).focus()
+        elif event.key in ("left", "right"):
+            states = list(LETTERS.values())
+            self.state = states[(states.index(self.state) + (1 if event.key == "right" else -1)) % len(states)]
+            self.refresh()
+            event.stop()
+        elif event.key == "enter":
+            event.stop()
+            self.screen.save()
+
+
+class VerdictScreen(ModalScreen[tuple[str, str] | None]):
+    BINDINGS = [Binding("escape", "cancel", "Cancel")]
+
+    def __init__(self, key: str, row: int, verdict: str | None, note: str | None, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.key, self.row, self.verdict, self.note = key, row, verdict, note
+
+    def compose(self) -> ComposeResult:
+        with Vertical(id="verdict-box"):
+            yield Label(f"Verdict on record {self.key} (row {self.row}); now: {self.verdict or 'none'}")
+            yield StatePicker(self.verdict or "confirmed", id="verdict-state")
+            yield Input(value=self.note or "", placeholder="note (optional)", id="verdict-note")
+            yield Static("letter: state · type the note · enter saves · esc cancels", classes="dim")
+
+    def on_mount(self) -> None:
+        self.query_one(StatePicker).focus()
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        event.stop()
+        self.save()
+
+    def save(self) -> None:
+        # The note box starts with the current note, so saving without touching it keeps the note.
+        self.dismiss((self.query_one(StatePicker).state, self.query_one("#verdict-note", Input).value))
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)

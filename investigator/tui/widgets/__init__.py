@@ -1,0 +1,1 @@
+"""Widgets of the investigation workspace, one per module."""

@@ -1,0 +1,30 @@
+"""The scan's progress: a bar, the engine's current stage, and how to cancel."""
+
+from __future__ import annotations
+
+from textual.app import ComposeResult
+from textual.containers import Horizontal
+from textual.widgets import Label, ProgressBar
+
+
+class ScanProgress(Horizontal):
+    DEFAULT_CSS = """
+    ScanProgress { height: 1; display: none; }
+    ScanProgress.running { display: block; }
+    ScanProgress Label { width: 1fr; padding-left: 1; }
+    """
+
+    def compose(self) -> ComposeResult:
+        yield ProgressBar(total=100, show_eta=False, id="scan-bar")
+        yield Label("", id="scan-stage")
+
+    def on_mount(self) -> None:
+        self.watch(self.app, "progress", self._show)
+
+    def _show(self, progress: tuple[str, float] | None) -> None:
+        """Follows the app's ``progress``: (stage, fraction) while a scan runs, None otherwise."""
+        self.set_class(progress is not None, "running")
+        if progress is not None:
+            stage, fraction = progress
+            self.query_one(ProgressBar).update(progress=round(100 * fraction))
+            self.query_one("#scan-stage", Label).update(f"{stage} (esc cancels)")
