@@ -42,6 +42,9 @@ def _add_scan_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--digits", metavar="COL", help="Benford's law first-digit tests on these amount columns")
     p.add_argument("--duplicates", metavar="A,B",
                    help="report groups of records with the same values on these columns")
+    p.add_argument("--map", metavar="auto|umap|pca|none", default=None,
+                   help="add 2-D map coordinates (auto: UMAP, or PCA for tiny data); the map command defaults "
+                   "to auto, every other command to none")
     p.add_argument("--exact", action="store_true",
                    help="exact neighbour search even on large data "
                    "(slower; by default it samples above 20,000 rows)")
@@ -81,6 +84,13 @@ def build_parser() -> argparse.ArgumentParser:
     _add_scan_options(check)
     _add_output_options(check, "NEW")
 
+    mapping = sub.add_parser("map", help="draw the 2-D map of the records as a PNG",
+                             description="Scan DATA and draw its 2-D map: ordinary records faint, flagged "
+                             "records by consensus, small groups outlined and labelled.")
+    mapping.add_argument("data", metavar="DATA", help="CSV/TSV, Parquet or XLSX file")
+    _add_scan_options(mapping)
+    mapping.add_argument("--out", metavar="FILE.png", required=True, help="the PNG to write")
+
     explain = sub.add_parser("explain", help="explain why one record stands out",
                              description="Scan DATA and explain one record: which features made it stand "
                              "out and in which direction, its peers, what would make it ordinary.")
@@ -115,7 +125,7 @@ def _options(args) -> dict:
         "id": args.id, "features": args.features, "exclude": args.exclude,
         "methods": args.methods or None, "log": args.log, "cutoff": args.cutoff,
         "contamination": args.contamination, "seed": args.seed, "sheet": args.sheet, "exact": args.exact,
-        "resamples": args.resamples, "limits": args.limits, "digits": args.digits,
+        "resamples": args.resamples, "limits": args.limits, "digits": args.digits, "map": args.map,
         "duplicates": args.duplicates,
         "keep_reference_outliers": getattr(args, "keep_reference_outliers", False),
     }
@@ -161,6 +171,29 @@ def _cmd_explain(args) -> int:
     return 0
 
 
+def _cmd_map(args) -> int:
+    from pathlib import Path
+
+    from .engine import scan
+    from .errors import InputError
+    from .options import ScanOptions
+    from .progress import StderrBar
+    from .structure.plot import draw_map
+
+    out = Path(args.out)
+    if out.suffix.lower() != ".png" or not out.parent.exists():
+        raise InputError(f"--out {out}: give a .png file in an existing folder")
+    opts = {k: v for k, v in _options(args).items() if v is not None}
+    opts.setdefault("map", "auto")
+    if opts["map"] == "none":
+        raise InputError("--map none: the map command needs a map; use auto, umap or pca")
+    result = scan(args.data, options=ScanOptions(**opts), progress=StderrBar())
+    draw_map(result.map, result.flagged, result.consensus, result.groups, out,
+             subtitle=f"{result.table.name}: {result.n_records:,} records, {int(result.flagged.sum()):,} flagged")
+    print(f"Map written to {out} ({result.run['map']['method']})")
+    return 0
+
+
 def _cmd_demo(args) -> int:
     import tempfile
     from pathlib import Path
@@ -186,7 +219,7 @@ def _cmd_demo(args) -> int:
     return 0
 
 
-COMMANDS = {"scan": _cmd_scan, "check": _cmd_scan, "explain": _cmd_explain, "demo": _cmd_demo}
+COMMANDS = {"scan": _cmd_scan, "check": _cmd_scan, "map": _cmd_map, "explain": _cmd_explain, "demo": _cmd_demo}
 
 
 def main(argv: list[str] | None = None) -> int:

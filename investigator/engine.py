@@ -103,11 +103,23 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
         notices += results["hotelling"].method.notices_
     progress("combining", 0.92)
     combination = combine_results(results, options)
+    grouping = coords = map_info = None
+    kinds: list[np.ndarray] = []
+    if reference is None:
+        progress("groups", 0.93)
+        grouping, combination, kinds = _structure(features.values, results, combination, options, notices)
+        if options.map != "none":
+            from .structure.map import embed
+
+            progress("map", 0.95)
+            mapped = embed(features.values, options.map, seed=options.seed, keep=combination.flagged)
+            coords, map_info = mapped.coords, mapped.describe()
+            notices += list(mapped.notices)
     stability = None
     if options.resamples:
         from .explain.stability import flag_stability
 
-        stability = flag_stability(features, options, progress, X_ref=X_ref)
+        stability = flag_stability(features, options, progress, X_ref=X_ref, kinds=kinds)
     rules = ColumnRules().fit(ref_features)
     for name in rules.skipped_:
         notices.append(f"column '{name}': MAD is zero, so the modified z-score rule is skipped there")
@@ -119,11 +131,75 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
         run["reference"] = {"input": {**reference.source.as_dict(), "rows": ref_info["rows"]},
                             "used": int(reference.n_rows), **{k: v for k, v in ref_info.items() if k != "rows"}}
     run["screens"] = extras["screens"] or None
+    if grouping is not None:
+        run["structure"] = grouping.describe()
+    if map_info is not None:
+        run["map"] = map_info
     progress("done", 1.0)
-    return ScanResult(table, options, columns, features, preparer, search, graph, results, combination,
-                      rules, hits, run, stability, reference=reference,
-                      reference_features=ref_features if reference is not None else None,
-                      out_of_spec=extras["out_of_spec"])
+    result = ScanResult(table, options, columns, features, preparer, search, graph, results, combination,
+                        rules, hits, run, stability, reference=reference,
+                        reference_features=ref_features if reference is not None else None,
+                        out_of_spec=extras["out_of_spec"], groups=grouping, map=coords)
+    if grouping is not None:
+        result.group_cases = _group_cases(result, grouping)
+    return result
+
+
+def _structure(X: np.ndarray, results: dict, combination, options: ScanOptions, notices: list[str]):
+    """Small groups, large clusters (kinds of normal) and each flagged record's pattern.
+
+    With two or more kinds of normal, robust_distance (one ellipse for all records) would flag the smaller
+    kinds for being far from the largest; it is refitted with one MCD per kind and measures each record
+    against the nearest kind, and the combination is redone.
+    """
+    from .structure.groups import find_groups
+
+    grouping = find_groups(X, combination.flagged, seed=options.seed)
+    notices += list(grouping.notices)
+    kinds = [grouping.members(g) for g in grouping.large_ids]
+    rd = results.get("robust_distance")
+    if len(kinds) < 2 or rd is None:
+        return grouping, combination, []
+    rd.method.fit_kinds(X, kinds)
+    rd.method._fit_scale(rd.method.reference_scores_)
+    scores = rd.method.score(X)
+    results["robust_distance"] = MethodResult(rd.key, rd.method, scores, rd.method.flags(scores),
+                                              rd.method.unify(scores))
+    labels = np.full(len(X), -1)
+    for k, m in enumerate(kinds):
+        labels[m] = k
+    for key, r in list(results.items()):
+        if key in ("robust_distance", "hotelling"):
+            continue
+        # The density and isolation scores of a sparser kind run higher; each kind is judged by its own.
+        z, flags = r.method.calibrate_kinds(r.scores, labels)
+        from .methods.base import gaussian_scaling
+
+        results[key] = MethodResult(key, r.method, r.scores, flags, gaussian_scaling(z), z)
+    sizes = ", ".join(f"{len(m):,}" for m in kinds)
+    notices.append(f"the records form {len(kinds)} large clusters (kinds of normal, {sizes} records); "
+                   "robust_distance measures each record against the nearest of them, and the other methods' "
+                   "cutoffs are set within each")
+    combination = combine_results(results, options)
+    return find_groups(X, combination.flagged, seed=options.seed), combination, kinds
+
+
+def _group_cases(result: ScanResult, grouping) -> list[dict]:
+    """Each small group as one case: size, members and what they share that the rest does not."""
+    from .structure.profile import group_profile
+
+    cases = []
+    for gid in grouping.small_ids:
+        members = grouping.members(gid)
+        mask = np.zeros(result.n_records, dtype=bool)
+        mask[members] = True
+        cases.append({
+            "group": int(gid), "size": int(len(members)),
+            "members": [{"row": int(i) + 1, "key": result.keys[i]} for i in members],
+            "flagged": int(result.flagged[members].sum()),
+            "profile": group_profile(mask, result.features, result.table.frame),
+        })
+    return cases
 
 
 def _reference_only_methods(options: ScanOptions, methods: list) -> list:
@@ -222,7 +298,7 @@ def combine_results(results: dict[str, MethodResult], options: ScanOptions):
     # hotelling is reported beside the others but does not vote: it measures the same Mahalanobis distance
     # as robust_distance with a classical fit, and would count that view twice.
     voting = {k: r for k, r in results.items() if k in METHODS}
-    return combine({k: r.method.standardise(r.scores) for k, r in voting.items()},
+    return combine({k: r.method.standardise(r.scores) if r.z is None else r.z for k, r in voting.items()},
                    {k: r.flags for k, r in voting.items()}, options.contamination)
 
 

@@ -7,6 +7,8 @@ from dataclasses import asdict, dataclass
 from .errors import InputError
 from .methods import METHOD_KEYS
 
+MAP_METHODS = ("none", "auto", "umap", "pca")
+
 
 def _names(value, option: str) -> tuple[str, ...] | None:
     if value is None:
@@ -38,6 +40,7 @@ class ScanOptions:
     duplicates: tuple[str, ...] | None = None
     limits: str | None = None
     keep_reference_outliers: bool = False
+    map: str = "none"
 
     def __post_init__(self) -> None:
         set_ = object.__setattr__
@@ -96,6 +99,9 @@ class ScanOptions:
         if not 0 <= resamples <= 1000 or fractional:
             raise InputError(f"--resamples must be a whole number from 0 to 1000, not '{self.resamples}'")
         set_(self, "resamples", resamples)
+
+        if self.map not in MAP_METHODS:
+            raise InputError(f"--map must be one of {', '.join(MAP_METHODS)}, not '{self.map}'")
 
     def as_dict(self) -> dict:
         out = asdict(self)

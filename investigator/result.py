@@ -25,6 +25,7 @@ class MethodResult:
     scores: np.ndarray
     flags: np.ndarray
     unified: np.ndarray
+    z: np.ndarray | None = None  # set when kinds of normal are calibrated apart; else method.standardise
 
 
 @dataclass
@@ -56,6 +57,9 @@ class ScanResult:
     out_of_spec: list[list[dict]] | None = None  # with --limits: per record, the limits it breaks
     verdicts: list[str | None] | None = None  # with a review store: each record's current verdict
     notes: list[str | None] | None = None
+    groups: object | None = None  # structure.groups.Grouping: small groups, large clusters, patterns
+    map: np.ndarray | None = None  # n x 2 map coordinates (with --map)
+    group_cases: list[dict] | None = None  # each small group as one case, with its profile
     _explanations: dict | None = field(default=None, init=False, repr=False)
     _typical: list | None = field(default=None, init=False, repr=False)
 
@@ -144,6 +148,11 @@ class ScanResult:
             extra["out_of_spec"] = self.out_of_spec[i]
         if self.verdicts is not None:
             extra["verdict"], extra["note"] = self.verdicts[i], self.notes[i]
+        if self.groups is not None:
+            g = self.groups.record(i)
+            extra.update(pattern=g["pattern"], group=g["group"], group_size=g["group_size"])
+        if self.map is not None:
+            extra["map"] = [float(self.map[i, 0]), float(self.map[i, 1])]
         return {
             "row": i + 1,
             "key": self.keys[i],
@@ -189,10 +198,18 @@ class ScanResult:
                                   for hits in self.out_of_spec]
         if self.verdicts is not None:
             out["verdict"], out["note"] = self.verdicts, self.notes
+        if self.map is not None:
+            out["map_x"], out["map_y"] = self.map[:, 0], self.map[:, 1]
+        if self.groups is not None:
+            out["pattern"] = list(self.groups.pattern)
+            out["group"] = [int(g) if g > 0 else None for g in self.groups.group]
         return pd.DataFrame(out)
 
     def to_dict(self) -> dict:
-        return {"run": self.run, "records": self.records()}
+        out = {"run": self.run, "records": self.records()}
+        if self.group_cases is not None:
+            out["groups"] = self.group_cases
+        return out
 
     def write(self, path: str | Path) -> Path:
         """Write the result; the format follows the extension (.json, .csv, .parquet)."""

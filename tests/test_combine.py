@@ -64,16 +64,16 @@ def test_flags_survive_a_failing_density_method():
     assert set(result.ranking()[:20]) == set(planted)
 
 
-def test_consensus_ranks_a_larger_clustered_share_first():
-    # 10% clustered outliers: the quantile cutoffs of isolation and neighbor_distance rise with them (see
-    # docs/methods.md), but robust_distance flags all of them and the consensus still ranks them first.
+def test_a_cluster_of_a_tenth_of_the_records_is_a_kind_of_normal():
+    # 40 of 400 records sitting together are 10% of the data: by the documented rule (docs/structure.md:
+    # at least 5% and 25 records) that is a second kind of normal, not 40 outliers.
     rng = np.random.default_rng(3)
     frame = pd.DataFrame(np.vstack([rng.normal(size=(360, 3)), rng.normal(8, 1, size=(40, 3))]),
                          columns=list("abc"))
     result = investigator.scan(frame, log="none")
     planted = np.arange(360, 400)
-    assert result.flags("robust_distance")[planted].all()
-    assert set(result.ranking()[:40]) == set(planted)
+    assert len(result.groups.large_ids) == 2
+    assert result.flagged[planted].mean() < 0.2
 
 
 @pytest.mark.parametrize("methods", ["robust_distance,isolation", "isolation"])

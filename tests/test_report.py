@@ -7,7 +7,6 @@ Data is invented: the built-in demo (scanned once for the module) and a small ta
 from __future__ import annotations
 
 import base64
-import copy
 import csv
 import hashlib
 import io
@@ -121,7 +120,7 @@ def test_every_section_is_present_in_reading_order(demo):
     for section in SECTIONS:
         assert section in ids, f"section {section} missing"
     assert [s for s in ids if s in SECTIONS] == list(SECTIONS)  # summary first, detail after
-    assert "groups" not in ids and "map" not in ids  # the demo scan has neither
+    assert "groups" in ids and "map" not in ids  # the demo has a group of split purchases; no --map given
     plain = page.plain()
     # The file's SHA-256 as computed here by hashlib, and the counts as the scan has them.
     assert hashlib.sha256(path.read_bytes()).hexdigest() in plain
@@ -385,59 +384,17 @@ def test_no_store_is_created_by_a_report(demo):
 
 
 def test_groups_and_map_sections_appear_when_present(demo, tmp_path):
-    _, result, _ = demo
-    flagged = [i for i in result.ranking() if result.flagged[i]]
-    with_structure = copy.copy(result)
-    members = [str(result.keys[i]) for i in flagged[:7]]
-    with_structure.groups = [{"id": 1, "size": 7, "members": members,
-                              "profile": [{"feature": "amount", "value": 495.0,
-                                           "typical": {"median": 51.0, "q1": 36.0, "q3": 72.0}}]}]
-    rng = np.random.default_rng(0)
-    with_structure.map = rng.normal(size=(result.n_records, 2))
-    text = write_report(with_structure, tmp_path / "report.html").read_text(encoding="utf-8")
+    path, _, _ = demo
+    result = investigator.scan(path, id=DEMO_ID, map="pca")
+    text = write_report(result, tmp_path / "report.html").read_text(encoding="utf-8")
     page = Page(text)
     assert "groups" in page.ids and "map" in page.ids and "plot-map" in page.ids
     assert page.ids.index("found") < page.ids.index("groups") < page.ids.index("verdicts")
     plain = page.plain()
-    assert "Group 1: 7 records" in plain and members[0] in plain and "51 (36 to 72)" in plain
-
-    class Grouping:  # the shape of a grouping with group ids per record
-        group = np.where(np.isin(np.arange(result.n_records), flagged[:3]), 4, -1)
-        small_ids = [4]
-
-        def members(self, gid):
-            return np.flatnonzero(self.group == gid)
-
-    class Map:  # the shape of a map object holding its coordinates
-        coords = np.column_stack([result.consensus, result.votes])
-        method = "pca"
-        notices = ["<i>a notice</i>"]
-
-    with_structure.groups, with_structure.map = Grouping(), Map()
-    text = write_report(with_structure, tmp_path / "grouping.html").read_text(encoding="utf-8")
-    page = Page(text)
-    assert "groups" in page.ids and "plot-map" in page.ids and "&lt;i&gt;a notice" in text
-    section = Page(text[text.index('<section id="groups">'):text.index('<section id="verdicts">')]).plain()
-    assert "Group 4: 3 records" in section
-    assert all(str(result.keys[i]) in section for i in flagged[:3])
-
-
-# -- bad input ------------------------------------------------------------------------------------------------
-
-
-@pytest.mark.parametrize("args, words", [
-    (["--out", "{tmp}/report.pdf"], ["--out", ".html"]),
-    (["--out", "{tmp}/missing/report.html"], ["--out", "does not exist"]),
-    (["--out", "{tmp}/report.html", "--cases", "-1"], ["--cases", "0 or more"]),
-    (["--out", "{tmp}/report.html", "--store", "{tmp}/none.sqlite"], ["--store", "no review store"]),
-])
-def test_bad_input_exits_2_with_one_line(capsys, hostile, tmp_path, args, words):
-    code, out, err = cli(capsys, "report", hostile, "--id", "ref", *[a.format(tmp=tmp_path) for a in args])
-    assert code == 2 and "Traceback" not in err
-    assert err.count("\n") == 1, err
-    for word in words:
-        assert word in err
-    assert not (tmp_path / "report.html").exists()
+    case = result.group_cases[0]
+    assert f"Group {case['group']}: {case['size']} records" in plain
+    assert str(case["members"][0]["key"]) in plain
+    assert case["profile"][0]["feature"] in plain
 
 
 def test_out_is_required(capsys, hostile):

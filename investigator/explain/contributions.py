@@ -28,9 +28,12 @@ import numpy as np
 
 def robust_distance_contributions(method, X: np.ndarray) -> np.ndarray:
     cols = method.columns_
-    R = X[:, cols] - method.mcd_.location
     out = np.zeros(X.shape)
-    out[:, cols] = R * (R @ method.precision_)
+    kinds = method.kind_of(X) if len(method.fits_) > 1 else np.zeros(len(X), dtype=int)
+    for k in np.unique(kinds):  # each record against the fit it is measured by (its kind of normal)
+        rows = kinds == k
+        R = X[rows][:, cols] - method.fits_[k].location
+        out[np.ix_(rows, cols)] = R * (R @ method.precisions_[k])
     return out
 
 

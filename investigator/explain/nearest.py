@@ -34,8 +34,8 @@ def nearest_ordinary(result, i: int) -> dict | None:
     pos = {j: n for n, j in enumerate(m.columns_)}
     idx = np.array([pos[j] for j in cols])
     x = result.features.values[i]
-    r = x[m.columns_] - m.mcd_.location
-    P = m.precision_
+    location, P = m.fit_for(x)
+    r = x[m.columns_] - location
     b = (P @ r)[idx]
     d2 = float(r @ P @ r)
     c = float(m.cutoff_) * (1 - MARGIN)
@@ -89,12 +89,13 @@ def _describe(result, i, features, deltas, method, d2_before) -> dict:
         changes.append({"feature": spec.name, "from": before, "to": after, "change": after - before,
                         "change_scaled": float(delta)})
         x[j] += delta
-    r = x[method.columns_] - method.mcd_.location
+    location, P = method.fit_for(result.features.values[i])
+    r = x[method.columns_] - location
     return {
         "method": "robust_distance",
         "features_changed": len(changes),
         "changes": changes,
         "distance_before": d2_before,
-        "distance_after": float(r @ method.precision_ @ r),
+        "distance_after": float(r @ P @ r),
         "cutoff": float(method.cutoff_),
     }

@@ -19,7 +19,8 @@ STABLE = 0.9
 UNSTABLE = 0.5
 
 
-def flag_stability(features, options, progress: Progress = silent, X_ref: np.ndarray | None = None) -> np.ndarray:
+def flag_stability(features, options, progress: Progress = silent, X_ref: np.ndarray | None = None,
+                   kinds: list | None = None) -> np.ndarray:
     """Share of resampled runs flagging each record; with ``X_ref`` (reference mode) the subsamples are drawn
     from the reference records and every record of ``features`` is scored against them."""
     from ..engine import build_methods, combine_results, fit_and_score
@@ -37,10 +38,28 @@ def flag_stability(features, options, progress: Progress = silent, X_ref: np.nda
         methods = build_methods(options, features, [], seed=seed)
         if X_ref is None:
             results, _, _ = fit_and_score(methods, X, options, reference=reference, seed=seed)
+            if kinds and "robust_distance" in results:
+                _refit_kinds(results, X, reference, kinds)
         else:
             results, _, _ = fit_and_score(methods, X, options, seed=seed, X_ref=X_ref[reference])
         counts += combine_results(results, options).flagged
     return counts / options.resamples
+
+
+def _refit_kinds(results, X, reference, kinds) -> None:
+    """As in the scan: one MCD per kind of normal, fitted on the kind's members in this subsample."""
+    from ..result import MethodResult
+
+    rd = results["robust_distance"]
+    in_run = np.zeros(len(X), dtype=bool)
+    in_run[reference] = True
+    members = [m[in_run[m]] for m in kinds]
+    if min(len(m) for m in members) <= len(rd.method.columns_) + 1:
+        return
+    rd.method.fit_kinds(X, members)
+    scores = rd.method.score(X)
+    results["robust_distance"] = MethodResult(rd.key, rd.method, scores, rd.method.flags(scores),
+                                              rd.method.unify(scores))
 
 
 def stability_label(share: float) -> str:

@@ -98,6 +98,23 @@ class Method:
     def _unregularise(self, t: float) -> float:
         return float(np.exp(t))
 
+    def calibrate_kinds(self, scores: np.ndarray, kinds: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """z-values and flags with each kind of normal judged by its own scores (``kinds``: per record the
+        index of its large cluster, -1 for none, which keeps the overall calibration). Returns (z, flags) and
+        keeps each kind's cutoff in ``kind_cutoffs_``."""
+        z, flags = self.standardise(scores), self.flags(scores)
+        self.kind_cutoffs_ = {}
+        saved = (self.center_, self.spread_, getattr(self, "t_cutoff_", None), self.cutoff_)
+        for k in np.unique(kinds[kinds >= 0]):
+            rows = kinds == k
+            self._fit_scale(scores[rows])
+            cutoff = (float(np.quantile(scores[rows], 1.0 - self.contamination)) if self.contamination is not None
+                      else self._default_cutoff()[0])
+            z[rows], flags[rows] = self.standardise(scores[rows]), scores[rows] > cutoff
+            self.kind_cutoffs_[int(k)] = cutoff
+        self.center_, self.spread_, self.t_cutoff_, self.cutoff_ = saved
+        return z, flags
+
     def standardise(self, scores: np.ndarray) -> np.ndarray:
         """Scores as robust z-values: 0 for a typical record, the cutoff's normal quantile at the cutoff."""
         return (self._regularise(scores) - self.center_) / self.spread_
@@ -110,9 +127,12 @@ class Method:
         return scores > self.cutoff_
 
     def describe(self) -> dict:
-        return {
+        out = {
             "parameters": self.parameters(),
             "cutoff": float(self.cutoff_),
             "cutoff_rule": self.cutoff_rule_,
             "score": self.score_units,
         }
+        if getattr(self, "kind_cutoffs_", None):
+            out["cutoff_by_kind"] = {str(k + 1): v for k, v in self.kind_cutoffs_.items()}
+        return out

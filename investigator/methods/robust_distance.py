@@ -23,7 +23,8 @@ class RobustDistance(Method):
     columns : indices of the feature columns to use (default: all).
 
     Fitted attributes: ``mcd_`` (:class:`MCDFit`), ``columns_``, ``precision_`` (inverse covariance),
-    ``cutoff_``, ``reference_scores_``.
+    ``cutoff_``, ``reference_scores_``; ``fits_``/``precisions_`` hold one fit per kind of normal after
+    :meth:`fit_kinds` (otherwise just ``mcd_``).
     """
 
     key = "robust_distance"
@@ -37,22 +38,50 @@ class RobustDistance(Method):
         self.columns = columns
 
     def parameters(self) -> dict:
-        return {
+        out = {
             "support": int(self.mcd_.h),
             "starts": "exact enumeration" if self.mcd_.exact else self.n_starts,
             "reweighting": "records within the 0.975 chi-square quantile of the raw fit",
             "features_used": int(len(self.columns_)),
             "ridge": self.mcd_.ridge,
         }
+        if len(self.fits_) > 1:
+            out["kinds"] = [int(f.h) for f in self.fits_]  # one MCD per large cluster: their supports
+        return out
 
     def _fit(self, X, neighbors=None):
         self.columns_ = np.arange(X.shape[1]) if self.columns is None else np.asarray(self.columns)
         Xc = X[:, self.columns_]
         self.mcd_: MCDFit = FastMCD(n_starts=self.n_starts, seed=self.seed).fit(Xc)
         self.precision_ = np.linalg.inv(self.mcd_.covariance)
+        self.fits_ = [self.mcd_]
+        self.precisions_ = [self.precision_]
         return self.score(X)
 
+    def fit_kinds(self, X: np.ndarray, members: list[np.ndarray]) -> RobustDistance:
+        """Refit one MCD per large cluster ("kind of normal") of reference records; a record is then measured
+        against the nearest kind, so members of one kind are not flagged for being far from another."""
+        self.fits_ = [FastMCD(n_starts=self.n_starts, seed=self.seed).fit(X[m][:, self.columns_]) for m in members]
+        self.precisions_ = [np.linalg.inv(f.covariance) for f in self.fits_]
+        self.reference_scores_ = self.score(X)
+        return self
+
+    def _all_kinds(self, X) -> np.ndarray:
+        Xc = X[:, self.columns_]
+        return np.column_stack([_sq_distances(Xc, f.location, f.covariance) for f in self.fits_])
+
+    def kind_of(self, X) -> np.ndarray:
+        """Index into ``fits_`` of the kind each record is measured against (its nearest)."""
+        return np.argmin(self._all_kinds(X), axis=1)
+
+    def fit_for(self, x) -> tuple[np.ndarray, np.ndarray]:
+        """Location and precision of the fit one record is measured against."""
+        k = int(self.kind_of(np.atleast_2d(x))[0]) if len(self.fits_) > 1 else 0
+        return self.fits_[k].location, self.precisions_[k]
+
     def score(self, X, neighbors=None):
+        if len(getattr(self, "fits_", ())) > 1:
+            return self._all_kinds(X).min(axis=1)
         return _sq_distances(X[:, self.columns_], self.mcd_.location, self.mcd_.covariance)
 
     @property

@@ -391,6 +391,8 @@ def _group_dicts(result, groups) -> list[dict]:
     group ids (``small_ids``, ``members(id)``, ``size_of(id)``)."""
     if groups is None:
         return []
+    if getattr(result, "group_cases", None):  # the scan's own group cases, with members and profiles
+        return [{**g, "members": [m["key"] for m in g["members"]]} for g in result.group_cases]
     if hasattr(groups, "small_ids") and hasattr(groups, "members"):
         keys = result.keys
         out = []
