@@ -44,7 +44,7 @@ def _add_scan_options(p: argparse.ArgumentParser) -> None:
                    help="report groups of records with the same values on these columns")
     p.add_argument("--map", metavar="auto|umap|pca|none", default=None,
                    help="add 2-D map coordinates (auto: UMAP, or PCA for tiny data); the map command defaults "
-                   "to auto, every other command to none")
+                   "to auto, every other command to none (give it to report to include the map)")
     p.add_argument("--exact", action="store_true",
                    help="exact neighbour search even on large data "
                    "(slower; by default it samples above 20,000 rows)")

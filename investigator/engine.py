@@ -288,7 +288,11 @@ def fit_and_score(methods: list, X: np.ndarray, options: ScanOptions, reference:
         progress(method.key, 0.2 + 0.7 * i / len(methods))
         ref_graph = search.reference_graph_ if method.needs_neighbors else None
         method.fit(R, ref_graph)
-        scores = method.score(X, graph) if method.needs_neighbors else method.score(X)
+        plain = rows is not None and len(rows) == n  # a plain scan: the records are the reference
+        if plain and (not method.needs_neighbors or graph is search.reference_graph_):
+            scores = method.reference_scores_.copy()
+        else:
+            scores = method.score(X, graph) if method.needs_neighbors else method.score(X)
         results[method.key] = MethodResult(method.key, method, scores, method.flags(scores),
                                            method.unify(scores))
     return results, search, graph

@@ -23,6 +23,7 @@ from scipy import stats
 ENUMERATE_AT_MOST = 5000  # h-subsets; below this the exact MCD is cheaper than the search
 SUBSAMPLE = 1500  # FastMCD draws its starts on a subsample of this size for large n (paper: 5 x 300)
 PART = 300  # ... split into parts of this size
+FINAL_BEST = 3  # candidates iterated to convergence on all records of a large table
 _RCOND = 1e-12
 _BATCH = 50  # starts whose C-steps run together as one batch of array operations
 
@@ -171,13 +172,18 @@ class FastMCD:
         if not candidates:
             raise _Singular
         candidates = sorted(set(candidates))[: self.n_best]
-        best = []
+        if sub is None:
+            best = [self._converge(X, np.array(s, dtype=np.intp), h, ridge) for _, s in candidates]
+            return np.array(min(best)[1], dtype=np.intp)
+        # Carry the subsample's candidates to all records with two C-steps each, then iterate only the
+        # best few to convergence: on large data each step costs a pass over every record.
+        carried = []
         for _, subset in candidates:
-            subset = np.array(subset, dtype=np.intp)
-            if sub is not None:
-                # Carry the subsample's subset to all records: one C-step there gives an h-subset of all n.
-                subset, _ = self._c_step(X, sub[subset], h, ridge)
-            best.append(self._converge(X, subset, h, ridge))
+            subset, _ = self._c_step(X, sub[np.array(subset, dtype=np.intp)], h, ridge)
+            subset, logdet = self._c_step(X, subset, h, ridge)
+            carried.append((logdet, tuple(np.sort(subset))))
+        carried = sorted(set(carried))[:FINAL_BEST]
+        best = [self._converge(X, np.array(s, dtype=np.intp), h, ridge) for _, s in carried]
         return np.array(min(best)[1], dtype=np.intp)
 
     def _starts(self, Xs: np.ndarray, hs: int, n_starts: int, rng, ridge: float) -> list:
