@@ -259,8 +259,9 @@ async def test_a_file_that_fails_to_load_shows_the_error_and_asks_for_another(de
 
 
 # -- the UI keeps responding while a scan runs --------------------------------------------------------------
-@run_async
-async def test_keys_are_handled_while_a_scan_runs(tmp_path, monkeypatch):
+def held_scan(tmp_path, monkeypatch):
+    """An app whose scan worker is held inside the engine until ``release`` is set, so a test does not
+    depend on how fast this machine scans."""
     import threading
 
     import investigator.engine as engine
@@ -269,8 +270,6 @@ async def test_keys_are_handled_while_a_scan_runs(tmp_path, monkeypatch):
     frame = pd.DataFrame(rng.normal(size=(20_000, 8)), columns=[f"x{i}" for i in range(8)])
     path = tmp_path / "large.csv"
     frame.to_csv(path, index=False)
-    # The scan worker is held inside the engine until the keys below have been handled, so the test does not
-    # depend on how fast this machine scans.
     release = threading.Event()
     real = engine.run_scan
 
@@ -280,12 +279,21 @@ async def test_keys_are_handled_while_a_scan_runs(tmp_path, monkeypatch):
         return real(table, options, progress, *args, **kwargs)
 
     monkeypatch.setattr(engine, "run_scan", held)
-    app = InvestigatorApp(path, ScanOptions())
+    return InvestigatorApp(path, ScanOptions()), release
+
+
+async def start_held(app, pilot):
+    await settle(app, pilot)
+    await pilot.press("s")
+    await wait_until(pilot, lambda: app.progress is not None and app.progress[0] == "held by the test")
+    return next(w for w in app.workers if w.name == "scan")
+
+
+@run_async
+async def test_keys_are_handled_while_a_scan_runs(tmp_path, monkeypatch):
+    app, release = held_scan(tmp_path, monkeypatch)
     async with app.run_test(size=(100, 30)) as pilot:
-        await settle(app, pilot)
-        await pilot.press("s")
-        await wait_until(pilot, lambda: app.progress is not None and app.progress[0] == "held by the test")
-        scan = next(w for w in app.workers if w.name == "scan")
+        scan = await start_held(app, pilot)
         table = app.screen.query_one("#columns-table")
         before = table.cursor_row
         await pilot.press("down", "down")
@@ -302,37 +310,15 @@ async def test_keys_are_handled_while_a_scan_runs(tmp_path, monkeypatch):
 
 @run_async
 async def test_a_running_scan_can_be_cancelled(tmp_path, monkeypatch):
-    import threading
+    from investigator.tui.jobs import ScanCancelled
 
-    import investigator.engine as engine
-
-    rng = np.random.default_rng(7)
-    frame = pd.DataFrame(rng.normal(size=(20_000, 8)), columns=[f"x{i}" for i in range(8)])
-    path = tmp_path / "large.csv"
-    frame.to_csv(path, index=False)
-    # The scan worker is held inside the engine until the keys below have been handled, so the test does not
-    # depend on how fast this machine scans.
-    release = threading.Event()
-    real = engine.run_scan
-
-    def held(table, options, progress, *args, **kwargs):
-        progress("held by the test", 0.05)
-        release.wait(timeout=60)
-        return real(table, options, progress, *args, **kwargs)
-
-    monkeypatch.setattr(engine, "run_scan", held)
-    app = InvestigatorApp(path, ScanOptions())
+    app, release = held_scan(tmp_path, monkeypatch)
     async with app.run_test(size=(100, 30)) as pilot:
-        await settle(app, pilot)
-        await pilot.press("s")
-        await wait_until(pilot, lambda: app.progress is not None and app.progress[0] == "held by the test")
-        scan = next(w for w in app.workers if w.name == "scan")
+        scan = await start_held(app, pilot)
         await pilot.press("escape")  # cancel: the scan stops at the engine's next progress report
         release.set()
         await wait_until(pilot, lambda: not scan.is_running)
         await settle(app, pilot)
-        from investigator.tui.jobs import ScanCancelled
-
         assert isinstance(scan.error, ScanCancelled)
         assert app.result is None and app.current_mode == "columns"
 
