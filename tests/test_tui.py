@@ -367,3 +367,46 @@ async def test_pattern_column_and_filter_when_the_result_has_groups(demo):
         assert sorted(table.order.tolist()) == sorted(flagged[3:].tolist())
         await pilot.press("g")  # in a group
         assert sorted(table.order.tolist()) == sorted(flagged[:3].tolist())
+
+
+@run_async
+async def test_a_group_opens_as_one_case_and_takes_a_verdict(demo):
+    app = demo_app(demo)
+    async with app.run_test(size=(120, 40)) as pilot:
+        await settle(app, pilot)
+        table = app.screen.query_one(CasesTable)
+        grouped = [i for i in table.order.tolist() if app.result.groups.pattern[i] == "group"]
+        assert grouped, "the demo's split purchase is a group"
+        while table.position != grouped[0]:
+            await pilot.press("down")
+        await pilot.press("o")
+        await settle(app, pilot)
+        assert type(app.screen).__name__ == "GroupScreen"
+        case = app.screen.case
+        text = screen_text(app)
+        assert f"Group {case['group']}: {case['size']} records" in text
+        assert case["profile"][0]["feature"] in text and str(app.result.keys[grouped[0]]) in text
+        await pilot.press("v", "c", *"split purchase", "enter")
+        await settle(app, pilot)
+        with ReviewStore(default_store_path(demo), create=False) as store:
+            entry = store.get(f"group:{case['group']}")
+        assert entry.verdict == "confirmed" and entry.note == "split purchase" and entry.kind == "group"
+        assert "Verdict: confirmed" in screen_text(app)
+        await pilot.press("escape")
+        await settle(app, pilot)
+        assert type(app.screen).__name__ == "CasesScreen"
+
+
+@run_async
+async def test_the_first_run_hint_is_remembered_once_dismissed(demo):
+    app = InvestigatorApp(demo, ScanOptions(id=DEMO_ID), autoscan=True)
+    async with app.run_test(size=(120, 40)) as pilot:
+        await settle(app, pilot)
+        assert app.show_hint and "consensus 0-1" in screen_text(app)
+        await pilot.press("i")
+        await settle(app, pilot)
+        assert "consensus 0-1" not in screen_text(app)
+    again = InvestigatorApp(demo, ScanOptions(id=DEMO_ID), autoscan=True)
+    async with again.run_test(size=(120, 40)) as pilot:
+        await settle(again, pilot)
+        assert not again.show_hint and "consensus 0-1" not in screen_text(again)

@@ -43,7 +43,7 @@ class InvestigatorApp(App):
     map_points = reactive(None, always_update=True)   # (coords, source)
 
     def __init__(self, path: str | Path, options=None, *, autoscan: bool = False, store=None,
-                 show_hint: bool = True) -> None:
+                 show_hint: bool | None = None) -> None:
         """``options``: a ScanOptions, or a dict of its fields (validated in the load worker, so a bad option
         shows as a one-line error in the UI and the first frame does not wait for the engine's imports)."""
         super().__init__()
@@ -51,6 +51,10 @@ class InvestigatorApp(App):
         self.base_options = options
         self.autoscan = autoscan
         self.store_option = store
+        if show_hint is None:  # shown until the user dismisses it once ('i'), then remembered
+            from .settings import hint_seen
+
+            show_hint = not hint_seen()
         self.show_hint = show_hint
         self.choices = None      # columns_model.ColumnChoices
         self.token: jobs.CancelToken | None = None
@@ -235,11 +239,46 @@ class InvestigatorApp(App):
         self.notify(f"Saved: {entry.key or 'row ' + str(entry.row)} is {entry.verdict} "
                     f"(in {self.store_path().name})")
 
+    def open_group(self, position: int) -> None:
+        """Open the small group the record at ``position`` belongs to as one case, with its profile."""
+        from .screens.group import GroupScreen
+
+        grouping = getattr(self.result, "groups", None)
+        cases = getattr(self.result, "group_cases", None) or []
+        gid = int(grouping.group[position]) if grouping is not None else -1
+        case = next((c for c in cases if c["group"] == gid), None)
+        if case is None:
+            self.notify("This record is not in a group of unusual records.", timeout=4)
+            return
+        self.push_screen(GroupScreen(case, jobs.group_verdict(case, self.store_path())))
+
+    def ask_group_verdict(self, screen) -> None:
+        from .screens.verdict import VerdictScreen
+
+        case = screen.case
+        ask = VerdictScreen(f"group {case['group']} ({case['size']} records)", None, screen.verdict, None)
+
+        def save(answer) -> None:
+            if not answer:
+                return
+            state, note = answer
+            try:
+                entry = jobs.save_group_verdict(case, state, note, self.store_path(),
+                                                self.result.run.get("started"), self.result.table.source.sha256)
+            except Exception as exc:  # a store problem: one line, the UI goes on
+                self.notify(f"Verdict not saved: {self._message(exc)}", severity="error", timeout=10)
+                return
+            screen.set_verdict(entry.verdict)
+            self.notify(f"Saved: group {case['group']} is {entry.verdict} (in {self.store_path().name})")
+
+        self.push_screen(ask, save)
+
     # -- navigation ----------------------------------------------------------------------------------
     def action_show(self, mode: str) -> None:
         self.switch_mode(mode)
 
     def action_help(self) -> None:
+        from .screens.group import GroupScreen
         from .screens.help import HelpScreen
         from .screens.record import RecordScreen
         from .screens.verdict import VerdictScreen
@@ -249,5 +288,6 @@ class InvestigatorApp(App):
         self.push_screen(HelpScreen({
             "Everywhere": self.BINDINGS, "Columns": ColumnsScreen.BINDINGS,
             "Cases": CasesTable.BINDINGS + CasesScreen.BINDINGS, "Record": RecordScreen.BINDINGS,
-            "Map": MapCanvas.BINDINGS + MapScreen.BINDINGS, "Verdict": VerdictScreen.BINDINGS,
+            "Map": MapCanvas.BINDINGS + MapScreen.BINDINGS, "Group": GroupScreen.BINDINGS,
+            "Verdict": VerdictScreen.BINDINGS,
         }))

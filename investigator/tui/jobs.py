@@ -82,6 +82,29 @@ def save_verdict(table, position: int, state: str, note: str | None, store: Path
     return entry, matching.verdicts(), matching.notes()
 
 
+def save_group_verdict(case: dict, state: str, note: str | None, store: Path, run_id: str | None,
+                       data_sha256: str | None):
+    """Save a verdict on a group case (``group:<id>``, its members' keys kept with it)."""
+    from ..review.store import ReviewStore, check_verdict, group_case
+
+    state = check_verdict(state)
+    members = [m["key"] for m in case["members"]]
+    with ReviewStore(store) as review:
+        return review.set(group_case(f"group:{case['group']}", members), state, note, run_id=run_id,
+                          data_sha256=data_sha256)
+
+
+def group_verdict(case: dict, store: Path) -> str | None:
+    """The group's current verdict, if the store has one."""
+    from ..review.store import ReviewStore
+
+    if not Path(store).exists():
+        return None
+    with ReviewStore(store, create=False) as review:
+        entry = review.get(f"group:{case['group']}")
+    return entry.verdict if entry is not None else None
+
+
 def store_for(path: str | Path, store: str | Path | None) -> Path:
     from ..review.store import default_store_path
 

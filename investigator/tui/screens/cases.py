@@ -31,6 +31,7 @@ class CasesScreen(Screen):
         Binding("slash", "search", "Search key"),
         Binding("x", "clear", "Clear filters"),
         Binding("v", "verdict", "Verdict"),
+        Binding("o", "group", "Open group"),
         Binding("i", "hint", "Hint", show=False),
         Binding("escape", "leave_search", show=False),
     ]
@@ -168,6 +169,14 @@ class CasesScreen(Screen):
         if self.table.position is not None:
             self.app.ask_verdict(self.table.position)
 
+    def action_group(self) -> None:
+        if self.table.position is not None:
+            self.app.open_group(self.table.position)
+
     def action_hint(self) -> None:
         self.app.show_hint = not self.app.show_hint
         self.query_one("#hint").set_class(not self.app.show_hint, "hidden")
+        if not self.app.show_hint:
+            from ..settings import mark_hint_seen
+
+            mark_hint_seen()

@@ -45,13 +45,14 @@ class StatePicker(Widget, can_focus=True):
 class VerdictScreen(ModalScreen[tuple[str, str] | None]):
     BINDINGS = [Binding("escape", "cancel", "Cancel")]
 
-    def __init__(self, key: str, row: int, verdict: str | None, note: str | None, **kwargs) -> None:
+    def __init__(self, key: str, row: int | None, verdict: str | None, note: str | None, **kwargs) -> None:
         super().__init__(**kwargs)
         self.key, self.row, self.verdict, self.note = key, row, verdict, note
 
     def compose(self) -> ComposeResult:
         with Vertical(id="verdict-box"):
-            yield Label(f"Verdict on record {self.key} (row {self.row}); now: {self.verdict or 'none'}")
+            what = f"record {self.key} (row {self.row})" if self.row is not None else self.key
+            yield Label(f"Verdict on {what}; now: {self.verdict or 'none'}")
             yield StatePicker(self.verdict or "confirmed", id="verdict-state")
             yield Input(value=self.note or "", placeholder="note (optional)", id="verdict-note")
             yield Static("letter: state · type the note · enter saves · esc cancels", classes="dim")

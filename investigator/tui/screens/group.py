@@ -1,0 +1,69 @@
+"""Group: a small group of records that are unusual together, opened as one case with its profile."""
+
+from __future__ import annotations
+
+from rich.table import Table
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import VerticalScroll
+from textual.screen import Screen
+from textual.widgets import Footer, Header, Static
+
+from ...explain.text import _fmt
+
+MEMBERS_SHOWN = 50
+
+
+class GroupScreen(Screen):
+    """One group case (``result.group_cases`` entry): what its members share, and who they are."""
+
+    BINDINGS = [
+        Binding("v", "verdict", "Verdict on the group"),
+        Binding("escape", "back", "Back"),
+    ]
+
+    def __init__(self, case: dict, verdict: str | None = None, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.case = case
+        self.verdict = verdict
+
+    def compose(self) -> ComposeResult:
+        yield Header()
+        with VerticalScroll(id="group-body"):
+            yield Static(self._head(), id="group-head")
+            yield Static("What the members share that the rest does not", classes="section")
+            yield Static(self._profile(), id="group-profile")
+            yield Static("Members", classes="section")
+            yield Static(self._members(), id="group-members")
+        yield Footer()
+
+    def _head(self) -> str:
+        c = self.case
+        return (f"Group {c['group']}: {c['size']} records, {c['flagged']} flagged - a pattern (records unusual "
+                f"together), not a lone record. Verdict: {self.verdict or 'none'}")
+
+    def _profile(self) -> Table:
+        table = Table(box=None, pad_edge=False)
+        for col in ("feature", "group", "rest", "difference"):
+            table.add_column(col, justify="left" if col == "feature" else "right")
+        for p in self.case["profile"][:8]:
+            diff = p.get("difference")
+            table.add_row(str(p["feature"]), _fmt(p.get("group")), _fmt(p.get("rest")),
+                          "" if diff is None else f"{diff:+.1f}")
+        return table
+
+    def _members(self) -> str:
+        members = self.case["members"]
+        shown = ", ".join(f"{m['key']} (row {m['row']})" for m in members[:MEMBERS_SHOWN])
+        more = f" and {len(members) - MEMBERS_SHOWN} more" if len(members) > MEMBERS_SHOWN else ""
+        return shown + more
+
+    def set_verdict(self, verdict: str) -> None:
+        self.verdict = verdict
+        self.query_one("#group-head", Static).update(self._head())
+
+    def action_verdict(self) -> None:
+        self.app.ask_group_verdict(self)
+
+    def action_back(self) -> None:
+        self.app.pop_screen()
