@@ -410,3 +410,20 @@ async def test_the_first_run_hint_is_remembered_once_dismissed(demo):
     async with again.run_test(size=(120, 40)) as pilot:
         await settle(again, pilot)
         assert not again.show_hint and "consensus 0-1" not in screen_text(again)
+
+
+@run_async
+async def test_the_map_opens_a_group_as_one_case(demo):
+    app = demo_app(demo)
+    async with app.run_test(size=(100, 30)) as pilot:
+        await settle(app, pilot)
+        await pilot.press("3")
+        await settle(app, pilot)
+        canvas = app.screen.query_one(MapCanvas)
+        await pilot.press("n")  # the flagged record of highest consensus: on the demo, one of the split purchase
+        chosen = canvas.selected()
+        assert app.result.groups.pattern[chosen] == "group"
+        await pilot.press("o")
+        await settle(app, pilot)
+        assert type(app.screen).__name__ == "GroupScreen"
+        assert app.screen.case["group"] == int(app.result.groups.group[chosen])

@@ -14,7 +14,7 @@ LEGEND = "⠂ ordinary  ◆ flagged alone  1-9 flagged, in group  + cursor"
 
 class MapScreen(Screen):
     AUTO_FOCUS = "#map-canvas"
-    BINDINGS = [Binding("v", "verdict", "Verdict")]
+    BINDINGS = [Binding("v", "verdict", "Verdict"), Binding("o", "group", "Open group")]
 
     def compose(self) -> ComposeResult:
         yield Header()
@@ -44,10 +44,16 @@ class MapScreen(Screen):
         flag = "FLAG" if d.flagged[p] else "not flagged"
         self.query_one("#map-status", Static).update(
             f"At the cursor: {d.keys[p]} (row {d.rows[p]}) · {flag} · consensus {d.consensus[p]:.4f} · "
-            f"votes {d.votes[p]}/{len(d.methods)} · verdict {d.verdicts[p] or 'none'} · enter opens it")
+            f"votes {d.votes[p]}/{len(d.methods)} · verdict {d.verdicts[p] or 'none'} · enter opens it"
+            + (" · o opens its group" if self.app.group_labels is not None and self.app.group_labels[p] > 0 else ""))
 
     def on_map_canvas_opened(self, event: MapCanvas.Opened) -> None:
         self.app.open_record(event.position, self.app.cases.ranking)
+
+    def action_group(self) -> None:
+        p = self.query_one(MapCanvas).selected()
+        if p is not None:
+            self.app.open_group(p)
 
     def action_verdict(self) -> None:
         p = self.query_one(MapCanvas).selected()
