@@ -29,6 +29,13 @@ def demo_app(path, autoscan: bool = True) -> InvestigatorApp:
     return InvestigatorApp(path, ScanOptions(id=DEMO_ID), autoscan=autoscan, show_hint=True)
 
 
+async def open_map(app, pilot) -> MapCanvas:
+    await settle(app, pilot)
+    await pilot.press("3")
+    await settle(app, pilot)
+    return app.screen.query_one(MapCanvas)
+
+
 async def goto_column(app, pilot, name: str) -> None:
     table = app.screen.query_one("#columns-table")
     names = [r.name for r in app.loaded.rows]
@@ -152,10 +159,7 @@ async def test_record_shows_the_contributions_of_the_selected_row(demo):
 async def test_map_cursor_opens_the_right_record(demo):
     app = demo_app(demo)
     async with app.run_test(size=(100, 30)) as pilot:
-        await settle(app, pilot)
-        await pilot.press("3")
-        await settle(app, pilot)
-        canvas = app.screen.query_one(MapCanvas)
+        canvas = await open_map(app, pilot)
         assert canvas.coords is not None and canvas.coords.shape == (app.result.n_records, 2)
         await pilot.press("n")  # the flagged record of highest consensus
         first = int(app.result.ranking()[app.result.flagged[app.result.ranking()]][0])
@@ -416,10 +420,7 @@ async def test_the_first_run_hint_is_remembered_once_dismissed(demo):
 async def test_the_map_opens_a_group_as_one_case(demo):
     app = demo_app(demo)
     async with app.run_test(size=(100, 30)) as pilot:
-        await settle(app, pilot)
-        await pilot.press("3")
-        await settle(app, pilot)
-        canvas = app.screen.query_one(MapCanvas)
+        canvas = await open_map(app, pilot)
         await pilot.press("n")  # the flagged record of highest consensus: on the demo, one of the split purchase
         chosen = canvas.selected()
         assert app.result.groups.pattern[chosen] == "group"
