@@ -46,8 +46,9 @@ def _add_scan_options(p: argparse.ArgumentParser) -> None:
                    help="add 2-D map coordinates (auto: UMAP, or PCA for tiny data); the map command defaults "
                    "to auto, every other command to none (give it to report to include the map)")
     p.add_argument("--exact", action="store_true",
-                   help="exact neighbour search even on large data "
-                   "(slower; by default it samples above 20,000 rows)")
+                   help="no sampling on large data: exact neighbour search (sampled by default above 20,000 "
+                   "records), MCD searched on all records (above 100,000) and peers among all ordinary "
+                   "records (above 100,000); slower, see run.approximations")
 
 
 def _add_output_options(p: argparse.ArgumentParser, data: str) -> None:

@@ -43,7 +43,7 @@ def build_methods(options: ScanOptions, features: Features, notices: list[str],
                     f"{', '.join(left)} (categories, or over half the records at one value); the other "
                     "methods use them"
                 )
-            built.append(METHODS[key](seed=seed, columns=np.array(use), **common))
+            built.append(METHODS[key](seed=seed, columns=np.array(use), exact=options.exact, **common))
         elif key == "isolation":
             built.append(METHODS[key](seed=seed, **common))
         else:
@@ -130,6 +130,10 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     if reference is not None:
         run["reference"] = {"input": {**reference.source.as_dict(), "rows": ref_info["rows"]},
                             "used": int(reference.n_rows), **{k: v for k, v in ref_info.items() if k != "rows"}}
+    from .approximations import approximations
+
+    n_ordinary = n if reference is not None else int((~combination.flagged).sum())
+    run["approximations"] = approximations(n, n_ordinary, options, search, results)
     run["screens"] = extras["screens"] or None
     if grouping is not None:
         run["structure"] = grouping.describe()

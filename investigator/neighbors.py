@@ -94,9 +94,12 @@ class NeighborSearch:
         if rows is None:
             dist, idx = self.index_.kneighbors(X.astype(self.dtype_), n_neighbors=k)
             return NeighborGraph(idx, dist.astype(float), self.reference_rows_)
-        position = np.full(int(max(rows.max(), self.reference_rows_.max())) + 1, -1)
-        position[self.reference_rows_] = np.arange(len(self.reference_rows_))
-        own = position[rows]
+        # Each queried record's place in the reference (-1: not in it), by binary search so that the cost
+        # follows the records asked for, however large their row numbers (a partition of a big dataset).
+        order = np.argsort(self.reference_rows_, kind="stable")
+        ref = self.reference_rows_[order]
+        at = np.minimum(np.searchsorted(ref, rows), len(ref) - 1)
+        own = np.where(ref[at] == rows, order[at], -1)
         out_i = np.empty((len(X), k), dtype=np.intp)
         out_d = np.empty((len(X), k))
         for start in range(0, len(X), _CHUNK):

@@ -62,6 +62,7 @@ class ScanResult:
     group_cases: list[dict] | None = None  # each small group as one case, with its profile
     _explanations: dict | None = field(default=None, init=False, repr=False)
     _typical: list | None = field(default=None, init=False, repr=False)
+    _pool: object | None = field(default=None, init=False, repr=False)
 
     # -- plain arrays --------------------------------------------------------------------------------
     @property
@@ -172,7 +173,7 @@ class ScanResult:
     def to_frame(self) -> pd.DataFrame:
         """One row per record: row, key, consensus, votes, flagged, score_<method>, flag_<method>, ..."""
         out = {
-            "row": np.arange(1, self.n_records + 1),
+            "row": self.table.row_numbers,
             "key": self.keys,
             "consensus": self.consensus,
             "votes": self.votes,

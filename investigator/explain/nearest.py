@@ -15,8 +15,6 @@ robust_distance uses, and not imputed cells.
 
 from __future__ import annotations
 
-from itertools import combinations
-
 import numpy as np
 
 MARGIN = 1e-9  # land just under the cutoff, not on it
@@ -49,10 +47,7 @@ def nearest_ordinary(result, i: int) -> dict | None:
         best = ([int(cols[j])], np.array([delta[j]]))
     else:
         Pr = P @ r
-        for u, v in combinations(range(len(cols)), 2):
-            change = _along(P, Pr, [idx[u], idx[v]], d2, c)
-            if change is not None and (best is None or np.linalg.norm(change) < np.linalg.norm(best[1])):
-                best = ([int(cols[u]), int(cols[v])], change)
+        best = _best_pair(P, Pr, idx, cols, d2, c)
         if best is None:
             # Neither one nor two features suffice: add features in order of their Shapley contribution
             # until the move reaches the cutoff (all features always do: the centre itself is ordinary).
@@ -66,6 +61,27 @@ def nearest_ordinary(result, i: int) -> dict | None:
     if best is None:
         return None
     return _describe(result, i, best[0], best[1], m, d2)
+
+
+def _best_pair(P, Pr, idx, cols, d2, c):
+    """The pair of features with the smallest move reaching c, all pairs at once (2 x 2 solves in closed
+    form); None when no pair can reach it. Ties keep the first pair in feature order."""
+    if len(idx) < 2:
+        return None
+    u, v = np.triu_indices(len(idx), k=1)
+    a, b, e = P[idx[u], idx[u]], P[idx[u], idx[v]], P[idx[v], idx[v]]
+    g1, g2 = Pr[idx[u]], Pr[idx[v]]
+    det = a * e - b * b
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s1, s2 = -(e * g1 - b * g2) / det, -(a * g2 - b * g1) / det  # step = -A^-1 g
+        red = -(s1 * g1 + s2 * g2)
+        ok = (det > 0) & (red > d2 - c)
+        t = np.where(ok, 1 - np.sqrt(np.maximum(1 - (d2 - c) / red, 0)), np.inf)
+    size = np.where(ok, t * np.hypot(s1, s2), np.inf)
+    if not np.isfinite(size).any():
+        return None
+    q = int(np.argmin(size))
+    return [int(cols[u[q]]), int(cols[v[q]])], np.array([t[q] * s1[q], t[q] * s2[q]])
 
 
 def _along(P, Pr, E, d2, c):

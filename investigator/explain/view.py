@@ -8,7 +8,9 @@ range in the column's own units, or the commonest level), the robust z-score the
 that point at it (share >= 25%, or the method's top feature).
 
 Peers: the k nearest ordinary records in the scaled feature space (brute force, so exact), never the record
-itself, with the features where the record differs most from the peers' median.
+itself, with the features where the record differs most from the peers' median. Above ``PEER_SAMPLE_ABOVE``
+ordinary records they are searched among a reproducible random sample of ``PEER_SAMPLE`` of them (not with
+``exact``); the run record lists this under ``approximations``.
 """
 
 from __future__ import annotations
@@ -26,6 +28,8 @@ from .nearest import nearest_ordinary
 POINTS_AT = 0.25
 TOP = 5
 TYPICAL_Z = 0.5  # within half a robust standard deviation of the median: neither higher nor lower
+PEER_SAMPLE_ABOVE = 100_000  # ordinary records; above this, peers come from a random sample of them
+PEER_SAMPLE = 50_000
 
 
 @dataclass
@@ -41,6 +45,13 @@ class Pool:
 
 
 def ordinary_pool(result) -> Pool:
+    """The pool of ordinary records (computed once per result)."""
+    if result._pool is None:
+        result._pool = _pool(result)
+    return result._pool
+
+
+def _pool(result) -> Pool:
     if result.reference is not None:
         ref = result.reference
         return Pool(result.reference_features, np.arange(ref.n_rows), ref.row_numbers, ref.keys, "reference")
@@ -78,12 +89,23 @@ def raw_value(features: Features, i: int, j: int):
     return float(features.raw[i, j])
 
 
+def peer_candidates(pool: Pool, options) -> np.ndarray:
+    """The pool's records peers are searched among: all of them up to ``PEER_SAMPLE_ABOVE``, else a
+    reproducible random sample of ``PEER_SAMPLE`` (unless ``exact``), which keeps the search linear in the
+    number of flagged records."""
+    members = pool.positions
+    if options.exact or len(members) <= PEER_SAMPLE_ABOVE:
+        return members
+    rng = np.random.default_rng([options.seed, 13])
+    return np.sort(rng.choice(members, size=PEER_SAMPLE, replace=False))
+
+
 def find_peers(result, positions: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
     """Rows (in the pool's features) and distances of the k nearest ordinary records to each record."""
     from sklearn.neighbors import NearestNeighbors
 
     pool = ordinary_pool(result)
-    members = pool.positions
+    members = peer_candidates(pool, result.options)
     same = pool.source == "scan"  # the record itself may be in the pool and must not be its own peer
     k = min(k, len(members) - 1 if same and len(members) > 1 else len(members))
     if k <= 0:

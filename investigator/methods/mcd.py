@@ -20,6 +20,8 @@ from math import comb
 import numpy as np
 from scipy import stats
 
+SAMPLE_ABOVE = 100_000  # records; above this the raw MCD is searched on a random sample (not with exact)
+SAMPLE_SIZE = 50_000
 ENUMERATE_AT_MOST = 5000  # h-subsets; below this the exact MCD is cheaper than the search
 SUBSAMPLE = 1500  # FastMCD draws its starts on a subsample of this size for large n (paper: 5 x 300)
 PART = 300  # ... split into parts of this size
@@ -40,6 +42,7 @@ class MCDFit:
     h: int
     exact: bool
     ridge: float  # 0 unless the covariance was singular
+    sample: int | None = None  # records the raw fit was searched on, when a sample (None: all records)
 
 
 def _mean_cov(X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -80,14 +83,21 @@ class FastMCD:
     n_starts : random (p+1)-subsets to start C-steps from (the paper uses 500).
     n_best : candidates iterated to convergence.
     seed : seed for the starts; the same seed gives the same fit.
+    sample_above, sample_size : above ``sample_above`` records the raw MCD (the h-subset search) runs on a
+        reproducible random sample of ``sample_size`` of them; the consistency correction and the
+        reweighting then use every record. The raw fit of a random sample estimates the same location and
+        scatter, with a standard error that shrinks as 1/sqrt(sample) (Rousseeuw & Van Driessen 1999 note
+        that the location and scatter are asymptotically normal); ``sample_above=None`` never samples.
     """
 
     def __init__(self, support_fraction: float | None = None, n_starts: int = 500, n_best: int = 10,
-                 seed: int = 0) -> None:
+                 seed: int = 0, sample_above: int | None = SAMPLE_ABOVE, sample_size: int = SAMPLE_SIZE) -> None:
         self.support_fraction = support_fraction
         self.n_starts = n_starts
         self.n_best = n_best
         self.seed = seed
+        self.sample_above = sample_above
+        self.sample_size = sample_size
 
     def h_for(self, n: int, p: int) -> int:
         if self.support_fraction is None:
@@ -96,6 +106,14 @@ class FastMCD:
 
     def fit(self, X: np.ndarray, *, enumerate_at_most: int = ENUMERATE_AT_MOST) -> MCDFit:
         n, p = X.shape
+        if self.sample_above is not None and n > self.sample_above:
+            rng = np.random.default_rng([self.seed, 17])
+            rows = np.sort(rng.choice(n, size=self.sample_size, replace=False))
+            raw = FastMCD(self.support_fraction, self.n_starts, self.n_best, self.seed, None).fit(X[rows])
+            mask = np.zeros(n, dtype=bool)
+            mask[rows[raw.raw_support]] = True
+            return self._reweight(X, raw.raw_location, raw.raw_covariance, mask, raw.raw_logdet, raw.h,
+                                  raw.ridge, sample=len(rows))
         h = self.h_for(n, p)
         _, S_all = _mean_cov(X)
         exact = n <= 40 and comb(n, h) <= enumerate_at_most  # comb() itself is slow for large n
@@ -111,11 +129,19 @@ class FastMCD:
             subset = self._enumerate(X, h) if exact else self._search(X, h, ridge)
             mu, S = _mean_cov(X[subset])
         raw_S = _regularised(S, ridge)
-        raw_logdet = _logdet(raw_S)
+        mask = np.zeros(n, dtype=bool)
+        mask[subset] = True
+        fit = self._reweight(X, mu, raw_S, mask, _logdet(raw_S), h, ridge)
+        fit.exact = exact
+        return fit
+
+    def _reweight(self, X, mu, raw_S, mask, raw_logdet, h, ridge, sample=None) -> MCDFit:
+        """Consistency correction and reweighting of a raw fit, over every record of X."""
+        p = X.shape[1]
         d2 = _sq_distances(X, mu, raw_S)
         # Consistency: scale so the median distance matches the chi-square median (as scikit-learn does).
         raw_corrected = raw_S * (np.median(d2) / stats.chi2.ppf(0.5, p))
-        d2 = _sq_distances(X, mu, raw_corrected)
+        d2 = d2 * (stats.chi2.ppf(0.5, p) / np.median(d2))
         q = stats.chi2.ppf(0.975, p)
         keep = d2 <= q
         loc, cov = _mean_cov(X[keep])
@@ -123,11 +149,9 @@ class FastMCD:
         # population; this factor undoes that truncation (Croux & Haesbroeck 1999, consistency factor).
         cov = _regularised(cov * (0.975 / stats.chi2.cdf(q, p + 2)), ridge)
         if _is_singular(cov):
-            ridge = ridge or self._ridge_for(S_all)
+            ridge = ridge or self._ridge_for(_mean_cov(X)[1])
             cov = _regularised(cov, ridge)
-        mask = np.zeros(n, dtype=bool)
-        mask[subset] = True
-        return MCDFit(loc, cov, mu, raw_corrected, mask, keep, raw_logdet, h, exact, ridge)
+        return MCDFit(loc, cov, mu, raw_corrected, mask, keep, raw_logdet, h, False, ridge, sample)
 
     @staticmethod
     def _ridge_for(S: np.ndarray) -> float:

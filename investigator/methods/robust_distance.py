@@ -6,7 +6,7 @@ import numpy as np
 from scipy import special, stats
 
 from .base import Method
-from .mcd import FastMCD, MCDFit, _sq_distances
+from .mcd import SAMPLE_ABOVE, FastMCD, MCDFit, _sq_distances
 
 
 class RobustDistance(Method):
@@ -21,6 +21,7 @@ class RobustDistance(Method):
     seed : seed of the FastMCD starts.
     n_starts : number of random starts.
     columns : indices of the feature columns to use (default: all).
+    exact : never search the raw MCD on a sample (by default it does above ``mcd.SAMPLE_ABOVE`` records).
 
     Fitted attributes: ``mcd_`` (:class:`MCDFit`), ``columns_``, ``precision_`` (inverse covariance),
     ``cutoff_``, ``reference_scores_``; ``fits_``/``precisions_`` hold one fit per kind of normal after
@@ -31,11 +32,15 @@ class RobustDistance(Method):
     score_units = "squared robust Mahalanobis distance"
 
     def __init__(self, *, cutoff: float = 0.975, contamination: float | None = None, seed: int = 0,
-                 n_starts: int = 500, columns: np.ndarray | None = None) -> None:
+                 n_starts: int = 500, columns: np.ndarray | None = None, exact: bool = False) -> None:
         super().__init__(cutoff=cutoff, contamination=contamination)
         self.seed = seed
         self.n_starts = n_starts
         self.columns = columns
+        self.exact = exact
+
+    def _mcd(self) -> FastMCD:
+        return FastMCD(n_starts=self.n_starts, seed=self.seed, sample_above=None if self.exact else SAMPLE_ABOVE)
 
     def parameters(self) -> dict:
         out = {
@@ -45,6 +50,8 @@ class RobustDistance(Method):
             "features_used": int(len(self.columns_)),
             "ridge": self.mcd_.ridge,
         }
+        if self.mcd_.sample:
+            out["raw_fit_sample"] = int(self.mcd_.sample)
         if len(self.fits_) > 1:
             out["kinds"] = [int(f.h) for f in self.fits_]  # one MCD per large cluster: their supports
         return out
@@ -52,7 +59,7 @@ class RobustDistance(Method):
     def _fit(self, X, neighbors=None):
         self.columns_ = np.arange(X.shape[1]) if self.columns is None else np.asarray(self.columns)
         Xc = X[:, self.columns_]
-        self.mcd_: MCDFit = FastMCD(n_starts=self.n_starts, seed=self.seed).fit(Xc)
+        self.mcd_: MCDFit = self._mcd().fit(Xc)
         self.precision_ = np.linalg.inv(self.mcd_.covariance)
         self.fits_ = [self.mcd_]
         self.precisions_ = [self.precision_]
@@ -61,7 +68,7 @@ class RobustDistance(Method):
     def fit_kinds(self, X: np.ndarray, members: list[np.ndarray]) -> RobustDistance:
         """Refit one MCD per large cluster ("kind of normal") of reference records; a record is then measured
         against the nearest kind, so members of one kind are not flagged for being far from another."""
-        self.fits_ = [FastMCD(n_starts=self.n_starts, seed=self.seed).fit(X[m][:, self.columns_]) for m in members]
+        self.fits_ = [self._mcd().fit(X[m][:, self.columns_]) for m in members]
         self.precisions_ = [np.linalg.inv(f.covariance) for f in self.fits_]
         self.reference_scores_ = self.score(X)
         return self
