@@ -69,9 +69,24 @@ def build_parser() -> argparse.ArgumentParser:
     scan = sub.add_parser("scan", help="score every record and write the result",
                           description="Score every record of DATA with several methods and the per-column "
                           "rules, combine them, print a summary and optionally write the result.")
-    scan.add_argument("data", metavar="DATA", help="CSV/TSV, Parquet or XLSX file")
+    scan.add_argument("data", metavar="DATA", help="CSV/TSV, Parquet or XLSX file, or a Parquet dataset "
+                      "(a folder or a quoted glob such as 'sales/*.parquet')")
     _add_scan_options(scan)
     _add_output_options(scan, "DATA")
+    large = scan.add_argument_group("past one machine (see docs/large.md)")
+    large.add_argument("--engine", choices=("memory", "dask"), default="memory",
+                       help="memory (default): load everything; dask: fit on a random sample, score every "
+                       "partition of a Parquet dataset on a Dask cluster, write --out FOLDER")
+    large.add_argument("--scheduler", metavar="ADDRESS",
+                       help="with --engine dask: the scheduler of an existing cluster (e.g. tcp://host:8786); "
+                       "default: start a local cluster, one worker per core")
+    large.add_argument("--fit-sample", metavar="N", type=int, default=200_000,
+                       help="with --engine dask: records the models are fitted on (default 200,000)")
+    large.add_argument("--workers", metavar="N", type=int,
+                       help="with --engine dask and no --scheduler: local worker processes (default: cores)")
+    large.add_argument("--worker-memory", metavar="SIZE",
+                       help="with --engine dask and no --scheduler: memory limit per local worker, e.g. 2GB "
+                       "(default: an equal share of the machine's memory)")
 
     check = sub.add_parser("check", help="score new records against a trusted reference",
                            description="Fit the preparation and every method on the REFERENCE records "
@@ -139,6 +154,13 @@ def _cmd_scan(args) -> int:
 
     opts = {k: v for k, v in _options(args).items() if v is not None}
     options = ScanOptions(**opts)
+    if getattr(args, "engine", "memory") == "dask":
+        return _scan_on_dask(args, options)
+    from .errors import InputError
+
+    for flag in ("scheduler", "workers", "worker_memory"):
+        if getattr(args, flag, None) is not None:
+            raise InputError(f"--{flag.replace('_', '-')} applies to --engine dask only; add --engine dask")
     if args.out:
         from pathlib import Path
 
@@ -157,6 +179,22 @@ def _cmd_scan(args) -> int:
         print(result.summary(top=args.top))
         if args.out:
             print(f"Result written to {args.out}")
+    return 0
+
+
+def _scan_on_dask(args, options) -> int:
+    from .dask_scan import scan_dataset
+    from .progress import StderrBar, silent
+
+    if args.store:
+        from .errors import InputError
+
+        raise InputError("--store is not available with --engine dask; verdicts are recorded on in-memory scans")
+    result = scan_dataset(args.data, options, out=args.out, scheduler=args.scheduler, fit_sample=args.fit_sample,
+                          workers=args.workers, worker_memory=args.worker_memory, top=args.top,
+                          progress=silent if args.quiet else StderrBar())
+    if not args.quiet:
+        print(result.summary())
     return 0
 
 

@@ -81,6 +81,11 @@ class Features:
     def n_features(self) -> int:
         return len(self.names)
 
+    def subset(self, rows: np.ndarray) -> Features:
+        """The features of the records at ``rows`` (0-based positions)."""
+        return Features(self.names, self.specs, self.values[rows], self.transformed[rows], self.imputed[rows],
+                        self.raw[rows], {j: v[rows] for j, v in self.levels.items()})
+
     def numeric_mask(self) -> np.ndarray:
         return np.array([s.role == NUMERIC for s in self.specs])
 

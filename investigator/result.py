@@ -155,7 +155,7 @@ class ScanResult:
         if self.map is not None:
             extra["map"] = [float(self.map[i, 0]), float(self.map[i, 1])]
         return {
-            "row": i + 1,
+            "row": int(self.table.row_numbers[i]),
             "key": self.keys[i],
             "scores": {k: _num(r.scores[i]) for k, r in self.methods.items()},
             "flags": {k: bool(r.flags[i]) for k, r in self.methods.items()},
@@ -187,11 +187,12 @@ class ScanResult:
                               for hits in self.column_hits]
         out["imputed"] = ["; ".join(self.features.names[j] for j in np.flatnonzero(m))
                           for m in self.features.imputed]
-        from .explain.view import top_features_text
+        from .explain.view import top_features_texts
 
-        explained = self.explanations()
-        out["top_features"] = [top_features_text(explained[i]) if i in explained else ""
-                               for i in range(self.n_records)]
+        flagged = np.flatnonzero(self.flagged)
+        texts = np.full(self.n_records, "", dtype=object)
+        texts[flagged] = top_features_texts(self, flagged)
+        out["top_features"] = texts
         if self.stability is not None:
             out["stability"] = self.stability
         if self.out_of_spec is not None:

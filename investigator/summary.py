@@ -92,4 +92,34 @@ def summary_text(result, top: int = 10) -> str:
     return "\n".join(lines)
 
 
-__all__ = ["CAUTION", "summary_text"]
+def dataset_summary_text(scan) -> str:
+    """The summary of a Dask scan (:class:`investigator.dask_scan.DatasetScan`)."""
+    run, top = scan.run, scan.top
+    src, fit = run["input"], run["fit"]
+    lines = [f"Scanned {src['path']} on Dask ({run['cluster']['scheduler']})",
+             f"{src['rows']:,} records in {src['partitions']} partitions ({src['files']} files), key: {src['key']}",
+             f"Fitted on a random sample of {fit['sample']:,} records"]
+    feats = [s["name"] + {"log": " (log)", "rarity": " (category)"}.get(s["transform"], "") for s in run["features"]]
+    lines.append(f"Features ({len(feats)}): " + ", ".join(feats))
+    if run["notices"]:
+        lines.append("Notices (from the sample):")
+        lines += [f"  - {n}" for n in run["notices"]]
+    nb = run.get("neighbors")
+    search = f"; neighbours: {nb['search']}, k={nb['k']}" if nb else ""
+    lines.append("Methods: " + ", ".join(run["methods"]) + search)
+    lines.append("Rule: " + run["rule"])
+    n, flagged = src["rows"], run["flagged"]
+    lines.append(f"Flagged: {flagged:,} of {n:,} records ({flagged / n:.1%})")
+    if len(top):
+        lines += ["", f"Top {len(top)} flagged records by consensus:",
+                  f"  {'row':>9}  {'key':<14} {'consensus':>9} {'votes':>5}  top features"]
+        m = len(run["methods"]) - ("hotelling" in run["methods"])
+        for r in top.itertuples(index=False):
+            lines.append(f"  {r.row:>9}  {_short(r.key):<14} {r.consensus:>9.3f} {r.votes:>2}/{m:<2}  "
+                         f"{r.top_features}")
+    lines += ["", f"Results: {scan.out} (Parquet, one file per partition; run record in {scan.out}/_run.json)",
+              "", CAUTION]
+    return "\n".join(lines)
+
+
+__all__ = ["CAUTION", "dataset_summary_text", "summary_text"]

@@ -107,7 +107,12 @@ def load_table(data, *, sheet: str | None = None, id_column: str | None = None,
                 frame[col] = frame[col].map(lambda v: v if v is None or isinstance(v, float) else str(v))
         table = Table(frame=frame, source=Source(path=None, format="dataframe"))
     else:
-        table = _read_file(Path(data), sheet=sheet, id_column=id_column)
+        from .dataset import is_dataset
+
+        if is_dataset(data):
+            table = _read_dataset(data, sheet)
+        else:
+            table = _read_file(Path(data), sheet=sheet, id_column=id_column)
     _check_rows(table, min_rows)
     if id_column is not None:
         _check_key(table, id_column)
@@ -194,6 +199,41 @@ def _read_text(path: Path, raw: bytes, digest: str, id_column: str | None):
         raise InputError(f"{path}: the file is empty; it needs a header row and data rows") from None
     source = Source(str(path), "tsv" if delimiter == "\t" else "csv", digest, encoding, delimiter)
     return frame, source, notices
+
+
+def _read_dataset(data, sheet: str | None) -> Table:
+    """A Parquet dataset (folder or glob) in memory: its files in natural order, one table."""
+    from .dataset import parquet_files
+
+    if sheet is not None:
+        raise InputError(f"{data}: --sheet only applies to .xlsx files")
+    files = parquet_files(data)
+    frames, digest = [], hashlib.sha256()
+    for path in files:
+        frame = _read_parquet(path)
+        if frames and list(frame.columns) != list(frames[0].columns):
+            raise InputError(f"{path}: its columns differ from those of {files[0].name}; every file of a "
+                             "dataset needs the same columns in the same order")
+        frames.append(frame)
+        digest.update(hashlib.sha256(path.read_bytes()).digest())
+    frame = pd.concat(frames, ignore_index=True) if len(frames) > 1 else frames[0]
+    frame.columns = [str(c) for c in frame.columns]
+    return Table(frame=frame, source=Source(str(data), "parquet dataset", digest.hexdigest()))
+
+
+def _read_parquet_schema(path: Path) -> list[str]:
+    """Column names of a Parquet file, checked as a header is; a clear error for a damaged file."""
+    try:
+        import pyarrow.parquet as pq
+
+        names = [str(c) for c in pq.read_schema(path).names]
+    except Exception as exc:  # pyarrow raises several types for damaged files
+        reason = str(exc).strip().splitlines()[0][:120] if str(exc).strip() else type(exc).__name__
+        raise InputError(
+            f"{path}: not a readable Parquet file ({reason}); check the file is complete or re-export it"
+        ) from None
+    _check_header(names, str(path))
+    return names
 
 
 def _read_parquet(path: Path) -> pd.DataFrame:
@@ -292,11 +332,16 @@ def _check_key(table: Table, column: str) -> None:
         raise InputError(
             f"{table.name}: --id column '{column}' not found; columns are: {_list(frame.columns)}"
         )
-    values = frame[column]
+    _check_key_values(frame[column], column, table.name)
+
+
+def _check_key_values(values: pd.Series, column: str, name: str) -> None:
+    """Every record has a key and no two share one (rows are 1-based positions of ``values``)."""
+    values = values.reset_index(drop=True)
     missing = values.isna().to_numpy().nonzero()[0]
     if len(missing):
         raise InputError(
-            f"{table.name}: --id column '{column}' is empty in row {missing[0] + 1}; every record needs a "
+            f"{name}: --id column '{column}' is empty in row {missing[0] + 1}; every record needs a "
             "key (fill it in, or leave --id out to key records by row)"
         )
     dup = values.duplicated(keep=False).to_numpy().nonzero()[0]
@@ -304,7 +349,7 @@ def _check_key(table: Table, column: str) -> None:
         first = values.iloc[dup[0]]
         rows = [str(i + 1) for i in dup if values.iloc[i] == first][:3]
         raise InputError(
-            f"{table.name}: --id column '{column}' has the value '{_show(first)}' in rows {', '.join(rows)}; "
+            f"{name}: --id column '{column}' has the value '{_show(first)}' in rows {', '.join(rows)}; "
             "a key must be unique (choose another column, or leave --id out to key records by row)"
         )
 

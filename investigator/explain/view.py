@@ -41,7 +41,12 @@ class Pool:
     positions: np.ndarray  # rows of ``features`` in the pool
     rows: np.ndarray  # 1-based data rows in their file
     keys: list
-    source: str  # "scan" or "reference"
+    source: str  # "scan", "reference", or "sample" (the fit sample of a partitioned scan)
+
+    @property
+    def may_hold_the_record(self) -> bool:
+        """Pool and scanned records come from one file, so a record must not be its own peer."""
+        return self.source in ("scan", "sample")
 
 
 def ordinary_pool(result) -> Pool:
@@ -106,7 +111,7 @@ def find_peers(result, positions: np.ndarray, k: int) -> tuple[np.ndarray, np.nd
 
     pool = ordinary_pool(result)
     members = peer_candidates(pool, result.options)
-    same = pool.source == "scan"  # the record itself may be in the pool and must not be its own peer
+    same = pool.may_hold_the_record
     k = min(k, len(members) - 1 if same and len(members) > 1 else len(members))
     if k <= 0:
         return np.zeros((len(positions), 0), dtype=int), np.zeros((len(positions), 0))
@@ -115,7 +120,7 @@ def find_peers(result, positions: np.ndarray, k: int) -> tuple[np.ndarray, np.nd
     cand = members[idx]
     if not same:
         return cand, dist
-    keep = cand != positions[:, None]
+    keep = pool.rows[cand] != result.table.row_numbers[positions][:, None]  # the record itself, by its row
     keep[:, -1] &= ~keep[:, :-1].all(axis=1)  # drop the last when the record itself is not among them
     return cand[keep].reshape(len(positions), k), dist[keep].reshape(len(positions), k)
 
@@ -153,19 +158,14 @@ def _one(result, i, n, contrib, peer_pos, peer_dist, typical) -> dict:
         spec = result.features.specs[j]
         pointing = [key for key, row in zip(contrib, share_rows, strict=True)
                     if row[j] >= POINTS_AT or (row.max() > 0 and row.argmax() == j)]
-        if spec.role == CATEGORICAL:
-            direction = "rarer" if z[j] > 0 else "common"
-        elif abs(z[j]) < TYPICAL_Z:
-            direction = "typical"
-        else:
-            direction = "higher" if z[j] > 0 else "lower"
+        direction = _direction(spec, z[j])
         top.append({
             "feature": spec.name, "value": raw_value(result.features, i, j), "direction": direction,
             "typical": typical[j], "robust_z": float(z[j]), "share": float(mean_share[j]),
             "methods": pointing, "imputed": bool(result.features.imputed[i, j]),
         })
     return {
-        "row": i + 1,
+        "row": int(result.table.row_numbers[i]),
         "key": result.keys[i],
         "flagged": bool(result.flagged[i]),
         "votes": int(result.votes[i]),
@@ -206,8 +206,36 @@ def _peers(result, i, peer_pos, peer_dist) -> dict:
     return {"records": rows, "differences": differences, "from": pool.source}
 
 
+def _direction(spec, z: float) -> str:
+    if spec.role == CATEGORICAL:
+        return "rarer" if z > 0 else "common"
+    if abs(z) < TYPICAL_Z:
+        return "typical"
+    return "higher" if z > 0 else "lower"
+
+
+SIGNS = {"higher": "+", "lower": "-", "typical": "~", "rarer": "rare", "common": "common"}
+
+
 def top_features_text(explanation: dict, limit: int = 3) -> str:
     """E.g. "amount (+, 61%); hour (+, 22%)" for CSV/Parquet."""
-    signs = {"higher": "+", "lower": "-", "typical": "~", "rarer": "rare", "common": "common"}
-    return "; ".join(f"{t['feature']} ({signs[t['direction']]}, {t['share']:.0%})"
+    return "; ".join(f"{t['feature']} ({SIGNS[t['direction']]}, {t['share']:.0%})"
                      for t in explanation["top_features"][:limit])
+
+
+def top_features_texts(result, positions, limit: int = 3) -> list[str]:
+    """:func:`top_features_text` of the records at ``positions``, computed for all of them at once from the
+    contributions alone (no peers, no smallest change): what a one-row-per-record output needs."""
+    positions = np.asarray(positions, dtype=int)
+    if len(positions) == 0:
+        return []
+    contrib = method_contributions(result, positions)
+    mean_share = np.mean([shares(np.maximum(v, 0)) for v in contrib.values()], axis=0)
+    order = np.argsort(-mean_share, axis=1, kind="stable")[:, :limit]
+    Z, specs, names = result.features.values[positions], result.features.specs, result.features.names
+    out = []
+    for n in range(len(positions)):
+        parts = [f"{names[j]} ({SIGNS[_direction(specs[j], Z[n, j])]}, {mean_share[n, j]:.0%})"
+                 for j in order[n] if mean_share[n, j] > 0]
+        out.append("; ".join(parts))
+    return out

@@ -102,17 +102,28 @@ class Method:
         """z-values and flags with each kind of normal judged by its own scores (``kinds``: per record the
         index of its large cluster, -1 for none, which keeps the overall calibration). Returns (z, flags) and
         keeps each kind's cutoff in ``kind_cutoffs_``."""
-        z, flags = self.standardise(scores), self.flags(scores)
-        self.kind_cutoffs_ = {}
+        self.kind_cutoffs_, self.kind_scales_ = {}, {}
         saved = (self.center_, self.spread_, getattr(self, "t_cutoff_", None), self.cutoff_)
         for k in np.unique(kinds[kinds >= 0]):
             rows = kinds == k
             self._fit_scale(scores[rows])
             cutoff = (float(np.quantile(scores[rows], 1.0 - self.contamination)) if self.contamination is not None
                       else self._default_cutoff()[0])
-            z[rows], flags[rows] = self.standardise(scores[rows]), scores[rows] > cutoff
             self.kind_cutoffs_[int(k)] = cutoff
+            self.kind_scales_[int(k)] = (self.center_, self.spread_)
         self.center_, self.spread_, self.t_cutoff_, self.cutoff_ = saved
+        return self.apply_kinds(scores, kinds)
+
+    def apply_kinds(self, scores: np.ndarray, kinds: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(z, flags) of any records given their kind of normal (-1: the overall calibration), with the
+        per-kind calibration fitted by :meth:`calibrate_kinds`."""
+        z, flags = self.standardise(scores), self.flags(scores)
+        saved = (self.center_, self.spread_)
+        for k, (center, spread) in self.kind_scales_.items():
+            rows = kinds == k
+            self.center_, self.spread_ = center, spread
+            z[rows], flags[rows] = self.standardise(scores[rows]), scores[rows] > self.kind_cutoffs_[k]
+        self.center_, self.spread_ = saved
         return z, flags
 
     def standardise(self, scores: np.ndarray) -> np.ndarray:
