@@ -7,10 +7,8 @@ fitted: every record is scored against fixed-size fitted models.
 
 from __future__ import annotations
 
-from .explain.view import PEER_SAMPLE, PEER_SAMPLE_ABOVE
+from .explain import view
 from .methods import mcd
-from .neighbors import SAMPLE_ABOVE as NEIGHBOR_ABOVE
-from .neighbors import SAMPLE_SIZE as NEIGHBOR_SAMPLE
 from .structure import groups as groups_module
 from .structure import map as map_module
 
@@ -23,9 +21,9 @@ def approximations(n_fit: int, n_ordinary: int, options, search=None, methods: d
     if search is not None:
         out.append({
             "part": "neighbour search (local_density, neighbor_distance)",
-            "approximation": f"neighbours among a reproducible random sample of {NEIGHBOR_SAMPLE:,} reference "
-                             "records, searched in float32 (Sugiyama & Borgwardt 2013)",
-            "above": NEIGHBOR_ABOVE, "used": search.mode_ == "sampled", "exact_turns_off": True,
+            "approximation": f"neighbours among a reproducible random sample of {search.sample_size:,} "
+                             "reference records, searched in float32 (Sugiyama & Borgwardt 2013)",
+            "above": search.sample_above, "used": search.mode_ == "sampled", "exact_turns_off": True,
         })
     rd = methods.get("robust_distance")
     if rd is not None:
@@ -45,8 +43,9 @@ def approximations(n_fit: int, n_ordinary: int, options, search=None, methods: d
         })
     out.append({
         "part": "peers in explanations",
-        "approximation": f"peers searched among a reproducible random sample of {PEER_SAMPLE:,} ordinary records",
-        "above": PEER_SAMPLE_ABOVE, "used": n_ordinary > PEER_SAMPLE_ABOVE and not options.exact,
+        "approximation": f"peers searched among a reproducible random sample of {view.PEER_SAMPLE:,} ordinary "
+                         "records",
+        "above": view.PEER_SAMPLE_ABOVE, "used": n_ordinary > view.PEER_SAMPLE_ABOVE and not options.exact,
         "exact_turns_off": True,
     })
     out.append({

@@ -93,8 +93,9 @@ def connect(scheduler: str | None = None, workers: int | None = None, worker_mem
     n = workers or os.cpu_count() or 1
     memory = worker_memory or "auto"
     try:
+        # Everything listens on this machine only (the status pages too, on a free port).
         cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, memory_limit=memory,
-                               dashboard_address=None, silence_logs=logging.ERROR)
+                               host="127.0.0.1", dashboard_address="127.0.0.1:0", silence_logs=logging.ERROR)
     except ValueError as exc:
         raise InputError(f"--worker-memory {worker_memory}: {exc}; give a size such as 2GB") from None
     limit = cluster.workers[next(iter(cluster.workers))].memory_manager.memory_limit if cluster.workers else None
@@ -118,7 +119,7 @@ def open_dataset(data):
         if _read_parquet_schema(path) != names:
             raise InputError(f"{path}: its columns differ from those of {files[0].name}; every file of a "
                              "dataset needs the same columns in the same order")
-    return files, dd.read_parquet([str(p) for p in files], split_row_groups=False)
+    return files, dd.read_parquet([str(p) for p in files])
 
 
 def draw_sample(lengths: list[int], size: int, seed: int) -> list[np.ndarray]:
@@ -159,6 +160,9 @@ def scan_dataset(data, options: ScanOptions, *, out, scheduler: str | None = Non
     started = datetime.now(UTC).replace(microsecond=0).isoformat()
     progress("opening the dataset", 0.01)
     files, ddf = open_dataset(data)
+    if options.id is not None and options.id not in ddf.columns:
+        raise InputError(f"{data}: --id column '{options.id}' not found; columns are: "
+                         f"{', '.join(map(str, ddf.columns[:12]))}")
     own = client is None
     if own:
         client, cluster_info = connect(scheduler, workers, worker_memory)
@@ -169,14 +173,15 @@ def scan_dataset(data, options: ScanOptions, *, out, scheduler: str | None = Non
         if sum(lengths) < MIN_ROWS:
             raise InputError(f"{data}: has only {sum(lengths)} data rows; a scan needs at least {MIN_ROWS}")
         if options.id is not None:
-            if options.id not in ddf.columns:
-                raise InputError(f"{data}: --id column '{options.id}' not found; columns are: "
-                                 f"{', '.join(map(str, ddf.columns[:12]))}")
             _check_key_values(ddf[options.id].compute(), options.id, str(data))
         progress("drawing the fit sample", 0.05)
         picks = draw_sample(lengths, fit_sample, options.seed)
         offsets = np.concatenate([[0], np.cumsum(lengths)[:-1]]).astype(int).tolist()
-        frame = ddf.map_partitions(_take, picks, meta=ddf._meta).compute().reset_index(drop=True)
+        # Each partition's share of the sample comes to the client on its own: gathering them as one
+        # collection would first concatenate the whole sample on a single worker.
+        pieces = client.gather(client.compute(ddf.map_partitions(_take, picks, meta=ddf._meta).to_delayed()))
+        frame = pd.concat(pieces, ignore_index=True)
+        del pieces
         rows = np.concatenate([p + o for p, o in zip(picks, offsets, strict=True)]) + 1
         source = Source(str(data), "parquet dataset")
         sample = Table(frame, source, options.id, [], rows)

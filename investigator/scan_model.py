@@ -30,6 +30,7 @@ from .result import MethodResult, ScanResult
 from .table import Source, Table
 
 SKIP_KINDS = ("robust_distance", "hotelling")
+MODEL_PEERS = 10_000  # ordinary sample records a partition's explanations find peers among
 
 
 @dataclass
@@ -66,6 +67,8 @@ class ScanModel:
         pool = ordinary_pool(fit)
         typical = typical_ranges(fit)
         members = peer_candidates(pool, options)
+        if len(members) > MODEL_PEERS:  # the model travels to every worker: a smaller pool keeps it light
+            members = np.sort(np.random.default_rng([options.seed, 23]).choice(members, MODEL_PEERS, replace=False))
         keys = [pool.keys[i] for i in members]
         pool = Pool(pool.features.subset(members), np.arange(len(members)), pool.rows[members], keys, "sample")
         threshold = None
