@@ -28,8 +28,8 @@ distributed = pytest.importorskip("distributed")
 
 @pytest.fixture(scope="module")
 def client():
-    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address="127.0.0.1:0",
-                                       silence_logs=logging.ERROR)
+    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                       dashboard_address="127.0.0.1:0", silence_logs=logging.ERROR)
     with distributed.Client(cluster) as c:
         yield c
     cluster.close()
