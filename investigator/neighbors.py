@@ -100,7 +100,8 @@ class NeighborSearch:
         ref = self.reference_rows_[order]
         at = np.minimum(np.searchsorted(ref, rows), len(ref) - 1)
         own = np.where(ref[at] == rows, order[at], -1)
-        out_i = np.empty((len(X), k), dtype=np.intp)
+        # Indices point into the reference; int32 holds any reference and halves the graph's memory.
+        out_i = np.empty((len(X), k), dtype=np.int32 if len(self.reference_rows_) < 2**31 else np.intp)
         out_d = np.empty((len(X), k))
         for start in range(0, len(X), _CHUNK):
             stop = min(start + _CHUNK, len(X))
