@@ -11,7 +11,7 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
-__all__ = ["InputError", "ScanOptions", "ScanResult", "__version__", "check", "scan"]
+__all__ = ["InputError", "ScanOptions", "ScanResult", "__version__", "check", "scan", "scan_dataset"]
 
 
 def __getattr__(name: str):
@@ -20,6 +20,10 @@ def __getattr__(name: str):
         from . import engine
 
         return getattr(engine, name)
+    if name == "scan_dataset":  # the Dask path (docs/large.md)
+        from .dask_scan import scan_dataset
+
+        return scan_dataset
     if name == "ScanResult":
         from .result import ScanResult
 

@@ -142,17 +142,23 @@ def _score(frame: pd.DataFrame, model, offsets: list[int], meta: pd.DataFrame, p
     return out.astype(meta.dtypes.to_dict())
 
 
-def scan_dataset(data, options: ScanOptions, *, out, scheduler: str | None = None, fit_sample: int = FIT_SAMPLE,
-                 workers: int | None = None, worker_memory: str | None = None, top: int = 10,
-                 progress: Progress = silent, client=None) -> DatasetScan:
-    """Scan the Parquet dataset ``data`` on Dask and write the results to the folder ``out``.
+def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: str | None = None,
+                 fit_sample: int = FIT_SAMPLE, workers: int | None = None, worker_memory: str | None = None,
+                 top: int = 10, progress: Progress = silent, client=None, **option_values) -> DatasetScan:
+    """Scan the Parquet dataset ``data`` (folder or glob) on Dask and write the results to the folder ``out``.
 
-    ``client``: an existing ``distributed.Client`` to use (then ``scheduler``, ``workers`` and
-    ``worker_memory`` are ignored). Raises :class:`InputError` on bad input; nothing is written then.
+    Scan options come as ``options=ScanOptions(...)`` or as keywords (``id``, ``methods``, ``cutoff``, ...).
+    ``scheduler``: address of an existing cluster (default: a LocalCluster for the run). ``client``: an
+    existing ``distributed.Client`` to use instead (then ``scheduler``, ``workers`` and ``worker_memory`` are
+    ignored). Raises :class:`InputError` on bad input; nothing is written then.
     """
     from .scan_model import ScanModel
     from .table import MIN_ROWS, Source, Table, _check_key_values
 
+    if options is None:
+        options = ScanOptions(**option_values)
+    elif option_values:
+        raise TypeError("give either options=ScanOptions(...) or keyword options, not both")
     check_dask_options(options)
     out = check_out_folder(out)
     if not isinstance(fit_sample, int) or fit_sample < 100:
