@@ -35,6 +35,9 @@ def summary_text(result, top: int = 10) -> str:
     search = f"; neighbours: {nb['search']}, k={nb['k']}" if nb else ""
     lines.append("Methods: " + ", ".join(result.methods) + search)
     lines.append("Rule: " + run["rule"])
+    sampled = [a["part"] for a in run.get("approximations") or [] if a["used"] and a["exact_turns_off"]]
+    if sampled:
+        lines.append(f"Sampled for size: {'; '.join(sampled)} (run.approximations says how; --exact turns it off)")
     if "reference" in run:
         ref = run["reference"]
         lines.append(f"Reference: {ref['input'].get('path', 'a data frame')}, {ref['used']:,} of "

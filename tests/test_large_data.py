@@ -64,9 +64,12 @@ def test_mcd_on_a_sample_recovers_the_generating_location_and_scatter():
 
 def test_the_run_record_names_each_approximation_and_when_it_switches_on():
     frame, _ = planted_outliers(25_000, 3, seed=1)
-    default = _approximations(investigator.scan(frame))
+    default_result = investigator.scan(frame)
+    default = _approximations(default_result)
     exact_result = investigator.scan(frame, exact=True)
     exact = _approximations(exact_result)
+    assert "Sampled for size: neighbour search" in default_result.summary()
+    assert "Sampled for size" not in exact_result.summary()
     assert default["neighbour search"]["used"] and default["neighbour search"]["above"] == 20_000
     assert not exact["neighbour search"]["used"] and exact_result.run["neighbors"]["search"] == "exact"
     assert not default["robust_distance"]["used"] and default["robust_distance"]["above"] == 100_000
