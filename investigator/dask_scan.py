@@ -9,8 +9,9 @@
    broadcast it to every worker once (``Client.scatter``).
 4. Score every partition in parallel with ``map_partitions``; each partition knows its first row, so row
    numbers and neighbour self-exclusion are those of the whole dataset.
-5. Write the scored records as a partitioned Parquet dataset, one file per input partition, with the run
-   record beside them (``_run.json``, which Parquet readers skip) and a summary from the written results.
+5. Each partition's task also writes its file and returns its counts and top records, so the records are
+   read once for scoring and the progress shows partitions done. The run record goes beside the files
+   (``_run.json``, which Parquet readers skip); the summary is built from the partitions' counts.
 
 Without a scheduler address a ``dask.distributed.LocalCluster`` is started: one single-threaded worker
 process per core, each with an equal share of the machine's memory unless ``worker_memory`` is given.
@@ -196,13 +197,24 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
         meta = model.score_frame(frame.iloc[:50], int(rows[0]) - 1).iloc[:0]
         progress("scoring the partitions", 0.4)
         shared = client.scatter(model, broadcast=True)
-        scored = ddf.map_partitions(_score, shared, offsets, meta, meta=meta)
+        scored = ddf.map_partitions(_score, shared, offsets, meta, meta=meta).to_delayed()
         tmp = out.with_name(out.name + ".part")
         if tmp.exists():
             shutil.rmtree(tmp)
-        scored.to_parquet(str(tmp), write_index=False, name_function=lambda i: f"part.{i:05d}.parquet")
-        progress("summarising", 0.95)
-        top_frame, counts = _summarise(tmp, list(model.methods), top)
+        tmp.mkdir()
+        # One task per partition scores it, writes its file and returns its counts and top records, so the
+        # results are read once and progress can be shown partition by partition.
+        from dask import delayed
+        from dask.distributed import as_completed
+
+        columns = ["row", "key", "consensus", "consensus_z", "votes", "top_features"]
+        writes = [delayed(_write_part)(part, str(tmp / f"part.{i:05d}.parquet"), list(model.methods), columns, top)
+                  for i, part in enumerate(scored)]
+        summaries = []
+        for done, future in enumerate(as_completed(client.compute(writes)), 1):
+            summaries.append(future.result())
+            progress(f"scored {done:,} of {len(writes):,} partitions", 0.4 + 0.55 * done / len(writes))
+        top_frame, counts = _combine_summaries(summaries, top)
         run = _run_record(model, data, files, lengths, fit_sample, cluster_info, counts, started, out)
         (tmp / RUN_FILE).write_text(json.dumps(run, indent=1, default=_plain) + "\n", encoding="utf-8")
         if out.exists():
@@ -218,18 +230,24 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
     return DatasetScan(out, run, top_frame)
 
 
-def _summarise(folder: Path, methods: list[str], top: int) -> tuple[pd.DataFrame, dict]:
-    """Counts and the top flagged records, read back from the written results (only the columns needed)."""
-    import dask.dataframe as dd
+def _write_part(frame: pd.DataFrame, path: str, methods: list[str], columns: list[str], top: int) -> dict:
+    """Write one scored partition; return its counts and its ``top`` flagged records by consensus_z."""
+    frame.to_parquet(path, index=False)
+    counts = {"flagged": int(frame["flagged"].sum()), **{f"flag_{k}": int(frame[f"flag_{k}"].sum()) for k in methods}}
+    best = frame.loc[frame["flagged"], columns].nlargest(top, "consensus_z")
+    return {"counts": counts, "top": best}
 
-    flags = [f"flag_{k}" for k in methods]
-    results = dd.read_parquet(str(folder), columns=["row", "key", "consensus", "consensus_z", "votes", "flagged",
-                                                    "top_features", *flags])
-    counts = results[["flagged", *flags]].sum().compute()
-    flagged = results[results["flagged"]]
-    top_frame = flagged.nlargest(top, "consensus_z").compute().sort_values(["consensus_z", "row"],
-                                                                           ascending=[False, True])
-    return top_frame.reset_index(drop=True), {k: int(v) for k, v in counts.items()}
+
+def _combine_summaries(summaries: list[dict], top: int) -> tuple[pd.DataFrame, dict]:
+    counts: dict[str, int] = {}
+    for s in summaries:
+        for k, v in s["counts"].items():
+            counts[k] = counts.get(k, 0) + v
+    tops = [s["top"] for s in summaries if len(s["top"])]
+    if not tops:
+        return summaries[0]["top"].iloc[:0], counts
+    best = pd.concat(tops, ignore_index=True).sort_values(["consensus_z", "row"], ascending=[False, True])
+    return best.head(top).reset_index(drop=True), counts
 
 
 def _run_record(model, data, files, lengths, fit_sample, cluster_info, counts, started, out) -> dict:
