@@ -139,6 +139,8 @@ def _take(frame: pd.DataFrame, picks: list[np.ndarray], partition_info=None) -> 
 
 
 def _score(frame: pd.DataFrame, model, offsets: list[int], meta: pd.DataFrame, partition_info=None):
+    if len(frame) == 0:  # an empty file is a partition with nothing to score
+        return meta.copy()
     out = model.score_frame(frame, offsets[partition_info["number"]])
     return out.astype(meta.dtypes.to_dict())
 

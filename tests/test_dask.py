@@ -78,6 +78,7 @@ def test_dask_equals_in_memory_with_a_key_categories_gaps_and_contamination(tmp_
     frame["site"] = rng.choice(["north", "south", "east", "rare"], size=3_000, p=[0.4, 0.4, 0.19, 0.01])
     frame.loc[rng.choice(3_000, 40, replace=False), "f1"] = np.nan
     data = _write_parts(tmp_path / "ds", frame, 5)
+    frame.iloc[:0].to_parquet(data / "part.5.parquet", index=False)  # an empty file: a partition of no records
     options = ScanOptions(id="claim", contamination=0.02)
     scan_dataset(data, options, out=tmp_path / "out", client=client)
     memory = investigator.scan(data, options=options)
