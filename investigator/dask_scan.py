@@ -134,6 +134,30 @@ def draw_sample(lengths: list[int], size: int, seed: int) -> list[np.ndarray]:
     return [chosen[(chosen >= a) & (chosen < b)] - a for a, b in zip(starts[:-1], starts[1:], strict=True)]
 
 
+def _rows_where(values: pd.Series, offsets: list[int], test, partition_info=None) -> pd.Series:
+    """1-based dataset rows of a partition's values that pass ``test``."""
+    hit = np.flatnonzero(test(values).to_numpy())
+    return pd.Series(hit + offsets[partition_info["number"]] + 1, dtype="int64")
+
+
+def _check_keys(keys, offsets: list[int], column: str, name: str) -> None:
+    """Every record has a key and no two share one, checked on the cluster; only offenders reach the client."""
+    meta = pd.Series([], dtype="int64")
+    missing = keys.map_partitions(_rows_where, offsets, pd.Series.isna, meta=meta).head(1, npartitions=-1)
+    if len(missing):
+        raise InputError(f"{name}: --id column '{column}' is empty in row {missing.iloc[0]}; every record needs a "
+                         "key (fill it in, or leave --id out to key records by row)")
+    counts = keys.value_counts()
+    repeated = counts[counts > 1].compute()
+    if len(repeated):
+        value = repeated.index[0]
+        rows = keys.map_partitions(_rows_where, offsets, lambda v: v == value, meta=meta).compute()
+        first = sorted(rows)[:3]
+        raise InputError(f"{name}: --id column '{column}' has the value '{value}' in rows "
+                         f"{', '.join(map(str, first))}; a key must be unique (choose another column, or leave "
+                         "--id out to key records by row)")
+
+
 def _take(frame: pd.DataFrame, picks: list[np.ndarray], partition_info=None) -> pd.DataFrame:
     return frame.iloc[picks[partition_info["number"]]]
 
@@ -156,7 +180,7 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
     ignored). Raises :class:`InputError` on bad input; nothing is written then.
     """
     from .scan_model import ScanModel
-    from .table import MIN_ROWS, Source, Table, _check_key_values
+    from .table import MIN_ROWS, Source, Table
 
     if options is None:
         options = ScanOptions(**option_values)
@@ -181,11 +205,11 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
         lengths = [int(v) for v in ddf.map_partitions(len).compute()]
         if sum(lengths) < MIN_ROWS:
             raise InputError(f"{data}: has only {sum(lengths)} data rows; a scan needs at least {MIN_ROWS}")
+        offsets = np.concatenate([[0], np.cumsum(lengths)[:-1]]).astype(int).tolist()
         if options.id is not None:
-            _check_key_values(ddf[options.id].compute(), options.id, str(data))
+            _check_keys(ddf[options.id], offsets, options.id, str(data))
         progress("drawing the fit sample", 0.05)
         picks = draw_sample(lengths, fit_sample, options.seed)
-        offsets = np.concatenate([[0], np.cumsum(lengths)[:-1]]).astype(int).tolist()
         # Each partition's share of the sample comes to the client on its own: gathering them as one
         # collection would first concatenate the whole sample on a single worker.
         pieces = client.gather(client.compute(ddf.map_partitions(_take, picks, meta=ddf._meta).to_delayed()))
