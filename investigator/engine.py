@@ -302,12 +302,14 @@ def fit_and_score(methods: list, X: np.ndarray, options: ScanOptions, reference:
     return results, search, graph
 
 
-def combine_results(results: dict[str, MethodResult], options: ScanOptions):
+def combine_results(results: dict[str, MethodResult], options: ScanOptions, *, by_rank: bool = True):
+    """The combination of the methods' results. ``by_rank=False`` leaves out the ranking that
+    ``contamination`` flags by (a block of a larger dataset applies the fitted threshold instead)."""
     # hotelling is reported beside the others but does not vote: it measures the same Mahalanobis distance
     # as robust_distance with a classical fit, and would count that view twice.
     voting = {k: r for k, r in results.items() if k in METHODS}
     return combine({k: r.method.standardise(r.scores) if r.z is None else r.z for k, r in voting.items()},
-                   {k: r.flags for k, r in voting.items()}, options.contamination)
+                   {k: r.flags for k, r in voting.items()}, options.contamination if by_rank else None)
 
 
 def _versions() -> dict:

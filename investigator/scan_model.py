@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .combine import combine, rule_sentence
+from .combine import rule_sentence
 from .methods.base import gaussian_scaling
 from .options import ScanOptions
 from .result import MethodResult, ScanResult
@@ -86,6 +86,8 @@ class ScanModel:
 
     def score(self, frame: pd.DataFrame, first_row: int) -> ScanResult:
         """Score the records of ``frame``, which are rows first_row + 1, first_row + 2, ... of the dataset."""
+        from .engine import combine_results
+
         frame = frame.reset_index(drop=True)
         rows0 = first_row + np.arange(len(frame))
         table = Table(frame, self.source, self.key_column, [], rows0 + 1)
@@ -101,12 +103,11 @@ class ScanModel:
                 results[key] = MethodResult(key, m, scores, flags, gaussian_scaling(z), z)
             else:
                 results[key] = MethodResult(key, m, scores, m.flags(scores), m.unify(scores))
-        voting = {k: r for k, r in results.items() if k != "hotelling"}
-        combination = combine({k: r.method.standardise(r.scores) if r.z is None else r.z for k, r in voting.items()},
-                              {k: r.flags for k, r in voting.items()})
+        combination = combine_results(results, self.options, by_rank=False)
         if self.z_threshold is not None:
             combination.flagged = combination.z >= self.z_threshold
-            combination.rule = rule_sentence(len(voting), self.options.contamination)
+            combination.rule = rule_sentence(len(self.methods) - ("hotelling" in self.methods),
+                                             self.options.contamination)
         out_of_spec = None
         if self.limits is not None:
             from .limits import spec_hits
