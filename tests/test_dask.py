@@ -201,3 +201,20 @@ def test_a_duplicate_key_across_partitions_names_the_rows(tmp_path, client):
     with pytest.raises(investigator.InputError, match=r"--id column 'id' is empty in row 251;"):
         scan_dataset(data, ScanOptions(id="id"), out=tmp_path / "out", client=client)
     assert not (tmp_path / "out").exists()
+
+
+def test_the_demo_with_two_kinds_of_normal_scores_alike_on_dask(tmp_path, client):
+    # The demo data have two large clusters: on Dask each record is judged by the nearest kind, in memory by
+    # its HDBSCAN cluster. Raw scores do not depend on that; the flags may, and here they agree.
+    from investigator.demo import DEMO_ID, write_demo
+
+    table = load_table(write_demo(tmp_path))
+    data = _write_parts(tmp_path / "ds", table.frame, 4)
+    memory = investigator.scan(data, id=DEMO_ID)
+    assert "2 large clusters" in " ".join(memory.run["notices"])
+    result = scan_dataset(data, out=tmp_path / "out", client=client, id=DEMO_ID)
+    got, expected = _read(tmp_path / "out"), memory.to_frame()
+    for key in memory.methods:
+        np.testing.assert_allclose(got[f"score_{key}"], expected[f"score_{key}"], rtol=1e-9, atol=1e-9, err_msg=key)
+    assert (got["flagged"] == expected["flagged"]).mean() >= 0.99
+    assert len(result.run["methods"]["robust_distance"]["parameters"]["kinds"]) == 2  # one MCD per kind
