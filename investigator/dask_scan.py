@@ -220,6 +220,7 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
         sample = Table(frame, source, options.id, [], rows)
         progress("fitting on the sample", 0.1)
         model = ScanModel.fit(sample, options)
+        # The output's columns and types, from a few sample records (their row numbers do not matter here).
         meta = model.score_frame(frame.iloc[:50], int(rows[0]) - 1).iloc[:0]
         progress("scoring the partitions", 0.4)
         shared = client.scatter(model, broadcast=True)
