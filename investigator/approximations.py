@@ -7,6 +7,7 @@ fitted: every record is scored against fixed-size fitted models.
 
 from __future__ import annotations
 
+from . import kinds as kinds_module
 from .explain import view
 from .methods import mcd
 from .structure import groups as groups_module
@@ -51,7 +52,8 @@ def approximations(n_fit: int, n_ordinary: int, options, search=None, methods: d
     out.append({
         "part": "groups and kinds of normal",
         "approximation": f"HDBSCAN on up to {groups_module.GROUP_SET:,} records (every flagged record kept) and "
-                         f"kinds of normal on {groups_module.KINDS_SAMPLE:,}; the others are assigned",
+                         f"kinds of normal found on {kinds_module.SAMPLE:,} drawn by content, then fitted on all their "
+                         "members",
         "above": groups_module.GROUP_SET, "used": n_fit > groups_module.GROUP_SET, "exact_turns_off": False,
     })
     if options.map != "none":

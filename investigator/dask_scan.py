@@ -281,7 +281,7 @@ def _run_record(model, data, files, lengths, fit_sample, cluster_info, counts, s
     fit_run = model.run
     total = int(sum(lengths))
     keep = ("columns", "features", "parameters", "seed", "versions", "neighbors", "methods", "column_rules",
-            "rule", "notices", "approximations", "structure")
+            "rule", "notices", "approximations", "structure", "kinds")
     import dask
 
     run = {

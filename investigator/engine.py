@@ -10,40 +10,40 @@ import numpy as np
 from .combine import combine
 from .errors import InputError
 from .features import FeaturePreparer, Features
+from .kinds import KindsOfNormal, calibrate_kinds, find_kinds
 from .methods import METHODS
 from .methods.column_rules import ColumnRules
+from .methods.mcd import SAMPLE_ABOVE as MCD_SAMPLE_ABOVE
+from .methods.mcd import FastMCD
 from .neighbors import NeighborSearch
 from .options import ScanOptions
 from .progress import Progress, silent
 from .result import MethodResult, ScanResult
-from .roles import assign_roles
+from .roles import NUMERIC, assign_roles
 from .table import Table, load_table
 
 
 def build_methods(options: ScanOptions, features: Features, notices: list[str],
                   seed: int | None = None) -> list:
-    """The configured method objects; robust_distance leaves out features too discrete for the MCD."""
+    """The configured method objects; robust_distance uses every numeric feature."""
     seed = options.seed if seed is None else seed
     common = {"cutoff": options.cutoff, "contamination": options.contamination}
     built = []
     for key in options.methods:
         if key == "robust_distance":
-            # The MCD assumes continuous, roughly elliptical data. Category rarities and numeric features
-            # whose MAD is zero (over half the records share one value) make its core covariance singular
-            # or meaningless; the other methods still use them.
-            use = [j for j, s in enumerate(features.specs) if s.scale_method == "MAD"]
-            left = [s.name for s in features.specs if s.scale_method != "MAD"]
-            if not use:
-                notices.append("robust_distance did not run: it needs a numeric feature whose values vary "
-                               "for over half the records")
+            # The MCD measures numbers; category rarities are left to the other methods. Discrete and tied
+            # numbers stay: a singular core is regularised (MRCD), not dropped.
+            use = numeric_columns(features)
+            left = [s.name for s in features.specs if s.role != NUMERIC]
+            if not len(use):
+                notices.append("robust_distance did not run: it needs at least one numeric feature")
                 continue
             if left:
                 notices.append(
-                    f"robust_distance uses {len(use)} of {len(features.specs)} features; it leaves out "
-                    f"{', '.join(left)} (categories, or over half the records at one value); the other "
-                    "methods use them"
+                    f"robust_distance uses the {len(use)} numeric features of {len(features.specs)}; the "
+                    f"categories ({', '.join(left)}) are used by the other methods"
                 )
-            built.append(METHODS[key](seed=seed, columns=np.array(use), exact=options.exact, **common))
+            built.append(METHODS[key](seed=seed, columns=use, exact=options.exact, **common))
         elif key == "isolation":
             built.append(METHODS[key](seed=seed, **common))
         else:
@@ -51,6 +51,10 @@ def build_methods(options: ScanOptions, features: Features, notices: list[str],
     if not built:
         raise InputError("no method could run on these features; choose other features or methods")
     return built
+
+
+def numeric_columns(features: Features) -> np.ndarray:
+    return np.array([j for j, s in enumerate(features.specs) if s.role == NUMERIC], dtype=int)
 
 
 def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
@@ -92,22 +96,33 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     X_ref = ref_features.values if reference is not None else None
     results, search, graph = fit_and_score(methods, features.values, options, X_ref=X_ref, progress=progress)
     if search is not None and search.k_ < search.k:
-        notices.append(f"only {n} records: neighbour methods use k = {search.k_} instead of {search.k}")
+        notices.append(f"only {len(search.locations_)} distinct records: neighbour methods use k = {search.k_} "
+                       f"distinct neighbours instead of {search.k}")
     rd = results.get("robust_distance")
-    if rd is not None and rd.method.mcd_.ridge:
+    if rd is not None and rd.method.mcd_.regularised:
+        fit = rd.method.mcd_
+        where = fit.filled or fit.reweighted_filled
         notices.append(
-            "robust_distance: the core covariance is singular (features collinear within the core "
-            f"records); a ridge of {rd.method.mcd_.ridge:.1e} keeps distances finite"
+            "robust_distance: over half the records lie on one hyperplane (ties or copies), so the MCD core "
+            "is singular; the core was found as the MRCD finds it (Boudt et al. 2020"
+            + (f", rho = {fit.rho:.3g}" if fit.rho else "") + ")"
+            + (f", and in the {where} direction{'s' if where > 1 else ''} where it does not vary, distances use "
+               "the spread of all records" if where else "")
         )
     if "hotelling" in results:
         notices += results["hotelling"].method.notices_
     progress("combining", 0.92)
-    combination = combine_results(results, options)
-    grouping = coords = map_info = None
-    kinds: list[np.ndarray] = []
+    combination = combine_results(results, options,
+                                  combined_far=reference_combined_fence(results) if reference is not None else None)
+    grouping = coords = map_info = kinds = None
     if reference is None:
         progress("groups", 0.93)
-        grouping, combination, kinds = _structure(features.values, results, combination, options, notices)
+        kinds, results, combination = _kinds_of_normal(features, results, combination, options, notices)
+        from .structure.groups import find_groups
+
+        grouping = find_groups(features.values, combination.flagged, seed=options.seed,
+                               kinds=None if kinds is None else kinds.labels)
+        notices += list(grouping.notices)
         if options.map != "none":
             from .structure.map import embed
 
@@ -127,6 +142,8 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     extras = _extras(table, options, notices)
     run = _run_record(table, options, columns, preparer, search, results, combination, rules, notices,
                       started)
+    if kinds is not None:
+        run["kinds"] = kinds.describe()
     if reference is not None:
         run["reference"] = {"input": {**reference.source.as_dict(), "rows": ref_info["rows"]},
                             "used": int(reference.n_rows), **{k: v for k, v in ref_info.items() if k != "rows"}}
@@ -143,49 +160,57 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     result = ScanResult(table, options, columns, features, preparer, search, graph, results, combination,
                         rules, hits, run, stability, reference=reference,
                         reference_features=ref_features if reference is not None else None,
-                        out_of_spec=extras["out_of_spec"], groups=grouping, map=coords)
+                        out_of_spec=extras["out_of_spec"], groups=grouping, map=coords, kinds=kinds)
     if grouping is not None:
         result.group_cases = _group_cases(result, grouping)
     return result
 
 
-def _structure(X: np.ndarray, results: dict, combination, options: ScanOptions, notices: list[str]):
-    """Small groups, large clusters (kinds of normal) and each flagged record's pattern.
+def kinds_fitter(options: ScanOptions, seed: int | None = None) -> FastMCD:
+    """The MCD the kinds of normal are fitted with (robust_distance's configuration)."""
+    return FastMCD(seed=options.seed if seed is None else seed,
+                   sample_above=None if options.exact else MCD_SAMPLE_ABOVE)
 
-    With two or more kinds of normal, robust_distance (one ellipse for all records) would flag the smaller
-    kinds for being far from the largest; it is refitted with one MCD per kind and measures each record
-    against the nearest kind, and the combination is redone.
-    """
-    from .structure.groups import find_groups
 
-    grouping = find_groups(X, combination.flagged, seed=options.seed)
-    notices += list(grouping.notices)
-    kinds = [grouping.members(g) for g in grouping.large_ids]
-    rd = results.get("robust_distance")
-    if len(kinds) < 2 or rd is None:
-        return grouping, combination, []
-    rd.method.fit_kinds(X, kinds)
-    rd.method._fit_scale(rd.method.reference_scores_)
-    scores = rd.method.score(X)
-    results["robust_distance"] = MethodResult(rd.key, rd.method, scores, rd.method.flags(scores),
-                                              rd.method.unify(scores))
-    labels = np.full(len(X), -1)
-    for k, m in enumerate(kinds):
-        labels[m] = k
-    for key, r in list(results.items()):
-        if key in ("robust_distance", "hotelling"):
+def _kinds_of_normal(features: Features, results: dict, combination, options: ScanOptions,
+                     notices: list[str]):
+    """Find the kinds of normal; with two or more, every method judges each record within its kind
+    (robust_distance measures it against its kind's fit) and the combination is redone."""
+    columns = numeric_columns(features)
+    kinds = find_kinds(features.values, columns, kinds_fitter(options), seed=options.seed, notices=notices)
+    if kinds is None:
+        return None, results, combination
+    results = apply_kinds(results, kinds, features.values)
+    sizes = ", ".join(f"{s:,}" for s in kinds.sizes())
+    notices.append(f"the records form {kinds.n_kinds} kinds of normal ({sizes} records); every record belongs "
+                   "to the kind it is nearest to, and every method's cutoff is set within each kind")
+    return kinds, results, combine_results(results, options)
+
+
+def apply_kinds(results: dict, kinds: KindsOfNormal, X: np.ndarray, labels: np.ndarray | None = None,
+                calibrate_on: np.ndarray | None = None) -> dict:
+    """New results with each record judged within its kind: robust_distance's score is the distance to its
+    kind's fit, and every method's z-values, flags and cutoffs come from a per-kind calibration. The
+    calibration is fitted here on the records at ``calibrate_on`` (default: all of them) unless a result
+    already carries one (scoring new records with a fitted model). ``labels``: the records' kinds
+    (default: the kinds' own labels). Nothing is changed in place."""
+    labels = kinds.labels if labels is None else labels
+    out = {}
+    for key, r in results.items():
+        if not r.method.votes:  # hotelling: a classical fit against the reference, no kinds
+            out[key] = r
             continue
-        # The density and isolation scores of a sparser kind run higher; each kind is judged by its own.
-        z, flags = r.method.calibrate_kinds(r.scores, labels)
-        from .methods.base import gaussian_scaling
-
-        results[key] = MethodResult(key, r.method, r.scores, flags, gaussian_scaling(z), z)
-    sizes = ", ".join(f"{len(m):,}" for m in kinds)
-    notices.append(f"the records form {len(kinds)} large clusters (kinds of normal, {sizes} records); "
-                   "robust_distance measures each record against the nearest of them, and the other methods' "
-                   "cutoffs are set within each")
-    combination = combine_results(results, options)
-    return find_groups(X, combination.flagged, seed=options.seed), combination, kinds
+        if key == "robust_distance":
+            scores = kinds.distances(X)[np.arange(len(X)), labels]
+        else:
+            scores = r.scores
+        calibration = r.kinds
+        if calibration is None:
+            rows = np.arange(len(X)) if calibrate_on is None else calibrate_on
+            calibration = calibrate_kinds(r.method, scores[rows], labels[rows])
+        z, flags, cutoffs = calibration.apply(r.method, scores, labels)
+        out[key] = MethodResult(key, r.method, scores, flags, z, cutoffs, calibration.far(labels), calibration)
+    return out
 
 
 def _group_cases(result: ScanResult, grouping) -> list[dict]:
@@ -273,43 +298,55 @@ def fit_and_score(methods: list, X: np.ndarray, options: ScanOptions, reference:
                   seed: int | None = None, progress: Progress = silent, X_ref: np.ndarray | None = None):
     """Fit every method on reference records and score all records of ``X``.
 
-    The reference is either the rows ``reference`` of X (default: all of X; a record that is also a
-    reference record is never its own neighbour), or a separate matrix ``X_ref`` (novelty scoring).
-    Returns the per-method results, the neighbour search and the records' neighbour graph.
+    The reference is either the rows ``reference`` of X (default: all of X; a record is never its own
+    neighbour), or a separate matrix ``X_ref`` (novelty scoring). Returns the per-method results, the
+    neighbour search and the records' neighbour graph.
     """
-    n = len(X)
     separate = X_ref is not None
-    rows = None if separate else (np.arange(n) if reference is None else reference)
-    R = X_ref if separate else X[rows]
+    R = X_ref if separate else (X if reference is None else X[reference])
+    plain = not separate and reference is None  # a plain scan: the records are the reference
     k = max((m.needs_neighbors for m in methods), default=0)
     search = graph = None
     if k:
-        search = NeighborSearch(k, exact=options.exact, seed=options.seed if seed is None else seed)
-        search.fit(R, rows=rows)
-        graph = search.query(X, rows=None if separate else np.arange(n))
+        search = NeighborSearch(k, exact=options.exact, seed=options.seed if seed is None else seed).fit(R)
+        if plain and search.mode_ == "exact":
+            graph = search.reference_graph_
+        else:
+            graph = search.query(X, same_table=not separate)
     results: dict[str, MethodResult] = {}
     for i, method in enumerate(methods):
         progress(method.key, 0.2 + 0.7 * i / len(methods))
-        ref_graph = search.reference_graph_ if method.needs_neighbors else None
-        method.fit(R, ref_graph)
-        plain = rows is not None and len(rows) == n  # a plain scan: the records are the reference
+        method.fit(R, search if method.needs_neighbors else None)
         if plain and (not method.needs_neighbors or graph is search.reference_graph_):
             scores = method.reference_scores_.copy()
         else:
             scores = method.score(X, graph) if method.needs_neighbors else method.score(X)
-        results[method.key] = MethodResult(method.key, method, scores, method.flags(scores),
-                                           method.unify(scores))
+        results[method.key] = MethodResult.overall(method, scores)
     return results, search, graph
 
 
-def combine_results(results: dict[str, MethodResult], options: ScanOptions, *, by_rank: bool = True):
+def combine_results(results: dict[str, MethodResult], options: ScanOptions, *, by_rank: bool = True,
+                    combined_far: float | None = None):
     """The combination of the methods' results. ``by_rank=False`` leaves out the ranking that
-    ``contamination`` flags by (a block of a larger dataset applies the fitted threshold instead)."""
+    ``contamination`` flags by (a block of a larger dataset applies the fitted threshold instead).
+    ``combined_far``: the far-out level of the combined evidence, fitted on the reference records (default:
+    on the records combined, which in a plain scan are the reference)."""
     # hotelling is reported beside the others but does not vote: it measures the same Mahalanobis distance
     # as robust_distance with a classical fit, and would count that view twice.
-    voting = {k: r for k, r in results.items() if k in METHODS}
-    return combine({k: r.method.standardise(r.scores) if r.z is None else r.z for k, r in voting.items()},
-                   {k: r.flags for k, r in voting.items()}, options.contamination if by_rank else None)
+    voting = {k: r for k, r in results.items() if r.method.votes}
+    return combine({k: r.z for k, r in voting.items()}, {k: r.flags for k, r in voting.items()},
+                   {k: r.far for k, r in voting.items()}, options.contamination if by_rank else None,
+                   cutoff=options.cutoff, combined_far=combined_far)
+
+
+def reference_combined_fence(results: dict[str, MethodResult]) -> float:
+    """The far-out level of the combined evidence among the reference records themselves (novelty
+    scoring: new records must not set the level they are judged by)."""
+    from .combine import combined_fence, trimmed_mean
+
+    voting = [r.method for r in results.values() if r.method.votes]
+    Z = np.column_stack([m.standardise(m.reference_scores_) for m in voting])
+    return combined_fence(trimmed_mean(Z))
 
 
 def _versions() -> dict:

@@ -10,8 +10,8 @@ Fitted on reference records, applied to any records (a plain scan fits and appli
   not rescaled: a level e^3 = 20 times rarer than a typical record's counts as much as 3 robust standard
   deviations on a numeric feature, and levels at least as common as the typical one all count 0;
 * missing values take the column median (in transformed units) and every imputed cell is kept in a mask;
-* every feature is robustly scaled: centred on its median and divided by 1.4826 x MAD (IQR / 1.349 or the
-  standard deviation when the MAD is zero).
+* every numeric feature is robustly scaled: centred on its median and divided by the first non-zero spread
+  of the chain in :func:`robust_scale` (1.4826 x MAD, IQR / 1.349, sqrt(pi/2) x mean absolute deviation).
 
 Constant and duplicate columns are dropped with a notice.
 """
@@ -30,6 +30,8 @@ from .table import Table
 MISSING_LEVEL = "(missing)"
 MAD_TO_SD = 1.482602218505602  # 1 / Phi^-1(3/4): MAD of a normal sample estimates 0.6745 sigma
 IQR_TO_SD = 1.3489795003921634  # IQR of the standard normal
+ROUNDING = 1e-12  # relative to the largest value: spreads below this are rounding, not spread
+MEAN_AD_TO_SD = 1.2533141373155003  # sqrt(pi / 2): a normal's mean absolute deviation is sigma sqrt(2 / pi)
 LOG_SKEW = 0.15
 
 
@@ -97,18 +99,34 @@ def quartile_skewness(x: np.ndarray) -> float:
     return 0.0 if q3 == q1 else float((q3 + q1 - 2 * q2) / (q3 - q1))
 
 
-def robust_center_scale(t: np.ndarray) -> tuple[float, float, str]:
-    """Median and a robust spread; falls back from MAD to IQR to SD so a spread is never zero."""
+def robust_scale(t: np.ndarray) -> tuple[float, float, str]:
+    """Median and a robust spread that is never zero for values that vary: the first of
+
+    1. 1.4826 x MAD (the median absolute deviation, consistent for the standard deviation of a normal);
+    2. IQR / 1.349 (the interquartile range of a normal is 1.349 sigma);
+    3. sqrt(pi / 2) x the mean absolute deviation from the median (for a normal, E|X - mu| = sigma sqrt(2 / pi));
+       its use when the MAD is zero is common practice for the modified z-score;
+    4. 1 ("unit"), for values that are all equal,
+
+    that is above zero. The rule used is returned beside the spread ("MAD", "IQR", "mean absolute
+    deviation", "unit"). Ties and integer codes make 1 and 2 zero whenever over half (or three quarters)
+    of the values are one value; 3 is zero only when every value is.
+    """
+    t = np.asarray(t, dtype=float)
     center = float(np.median(t))
-    mad = float(np.median(np.abs(t - center))) * MAD_TO_SD
-    if mad > 0:
+    dev = np.abs(t - center)
+    # A spread at the level of floating-point rounding of the values is no spread (a projection of tied
+    # values carries noise of 1e-16).
+    tiny = ROUNDING * float(np.max(np.abs(t))) if len(t) else 0.0
+    mad = float(np.median(dev)) * MAD_TO_SD
+    if mad > tiny:
         return center, mad, "MAD"
     q1, q3 = np.quantile(t, [0.25, 0.75])
-    if q3 > q1:
+    if q3 - q1 > tiny:
         return center, float(q3 - q1) / IQR_TO_SD, "IQR"
-    sd = float(np.std(t))
-    if sd > 0:
-        return center, sd, "SD"
+    mean_ad = float(np.mean(dev)) * MEAN_AD_TO_SD
+    if mean_ad > tiny:
+        return center, mean_ad, "mean absolute deviation"
     return center, 1.0, "unit"
 
 
@@ -205,7 +223,7 @@ class FeaturePreparer:
             t = self._apply_numeric(spec, x)
         finite = t[np.isfinite(t)]
         spec.fill = float(np.median(finite))
-        spec.center, spec.scale, spec.scale_method = robust_center_scale(finite)
+        spec.center, spec.scale, spec.scale_method = robust_scale(finite)
         if spec.missing:
             self.notices_.append(
                 f"column '{info.name}': {spec.missing} missing value{'s' if spec.missing > 1 else ''} "
@@ -297,4 +315,4 @@ class FeaturePreparer:
                         level_arrays)
 
 
-__all__ = ["DATE", "FeaturePreparer", "FeatureSpec", "Features", "robust_center_scale"]
+__all__ = ["DATE", "FeaturePreparer", "FeatureSpec", "Features", "robust_scale"]

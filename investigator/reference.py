@@ -55,12 +55,14 @@ def clean_reference(reference: Table, preparer: FeaturePreparer, options: ScanOp
     from .methods.robust_distance import RobustDistance
 
     features = preparer.transform(reference)
-    use = [j for j, s in enumerate(features.specs) if s.scale_method == "MAD"]
+    use = [j for j, s in enumerate(features.specs) if s.role == NUMERIC]
     info = {"method": "robust_distance", "excluded": 0, "records": []}
     if not use or len(reference.frame) <= len(use) + 1:
         notices.append("reference: phase I cleaning skipped (no feature the robust fit can use)")
         return reference, info
-    rd = RobustDistance(cutoff=options.cutoff, seed=options.seed, columns=np.array(use)).fit(features.values)
+    # The chi-square cutoff, not raised for heavy tails: a flag here only keeps a record out of the fit.
+    rd = RobustDistance(cutoff=options.cutoff, seed=options.seed, columns=np.array(use),
+                        adapt_cutoff=False).fit(features.values)
     flags = rd.flags(rd.reference_scores_)
     keys, rows = reference.keys, reference.row_numbers
     info["cutoff"] = float(rd.cutoff_)

@@ -10,7 +10,7 @@ import pandas as pd
 
 from .combine import Combination
 from .features import FeaturePreparer, Features
-from .methods.base import Method
+from .methods.base import Method, gaussian_scaling
 from .methods.column_rules import ColumnRules
 from .neighbors import NeighborGraph, NeighborSearch
 from .options import ScanOptions
@@ -20,12 +20,35 @@ from .table import Table
 
 @dataclass
 class MethodResult:
+    """One method's view of every record: raw ``scores``, ``flags`` (above the cutoff), ``z`` (the z-values
+    the combination averages), and per record the ``cutoff`` and ``far`` (the z-value beyond which it flags
+    alone) that applied, which differ between kinds of normal (``kinds``: the per-kind calibration, or None).
+    """
+
     key: str
     method: Method
     scores: np.ndarray
     flags: np.ndarray
-    unified: np.ndarray
-    z: np.ndarray | None = None  # set when kinds of normal are calibrated apart; else method.standardise
+    z: np.ndarray
+    cutoffs: np.ndarray
+    far: np.ndarray
+    kinds: object | None = None  # kinds.KindCalibration
+
+    @classmethod
+    def overall(cls, method: Method, scores: np.ndarray) -> MethodResult:
+        """The result under the method's own (overall) calibration."""
+        n = len(scores)
+        return cls(method.key, method, scores, method.flags(scores), method.standardise(scores),
+                   np.full(n, method.cutoff_), np.full(n, method.scale_.far))
+
+    @property
+    def unified(self) -> np.ndarray:
+        """Scores on the common [0, 1] scale (Kriegel et al. 2011 Gaussian scaling of z)."""
+        return gaussian_scaling(self.z)
+
+    @property
+    def far_beyond(self) -> np.ndarray:
+        return self.z > self.far
 
 
 @dataclass
@@ -60,6 +83,7 @@ class ScanResult:
     groups: object | None = None  # structure.groups.Grouping: small groups, large clusters, patterns
     map: np.ndarray | None = None  # n x 2 map coordinates (with --map)
     group_cases: list[dict] | None = None  # each small group as one case, with its profile
+    kinds: object | None = None  # kinds.KindsOfNormal: the large clusters, each with its own fit
     _explanations: dict | None = field(default=None, init=False, repr=False)
     _typical: list | None = field(default=None, init=False, repr=False)
     _pool: object | None = field(default=None, init=False, repr=False)
@@ -76,6 +100,21 @@ class ScanResult:
     @property
     def votes(self) -> np.ndarray:
         return self.combination.votes
+
+    @property
+    def rank(self) -> np.ndarray:
+        """1 = most unusual; records with the same combined evidence (exact copies) share a rank."""
+        return self.combination.rank
+
+    @property
+    def consensus_z(self) -> np.ndarray:
+        """The combined evidence the records are ordered by (trimmed mean of the methods' z-values)."""
+        return self.combination.z
+
+    @property
+    def flag_reason(self) -> np.ndarray:
+        """Per record: "votes", "far beyond <method>", "top share", or "" when not flagged."""
+        return self.combination.reason
 
     @property
     def flagged(self) -> np.ndarray:
@@ -154,14 +193,19 @@ class ScanResult:
             extra.update(pattern=g["pattern"], group=g["group"], group_size=g["group_size"])
         if self.map is not None:
             extra["map"] = [float(self.map[i, 0]), float(self.map[i, 1])]
+        if self.kinds is not None:
+            extra["kind"] = int(self.kinds.labels[i]) + 1
         return {
             "row": int(self.table.row_numbers[i]),
             "key": self.keys[i],
             "scores": {k: _num(r.scores[i]) for k, r in self.methods.items()},
             "flags": {k: bool(r.flags[i]) for k, r in self.methods.items()},
+            "rank": int(self.rank[i]),
             "consensus": _num(self.consensus[i]),
+            "consensus_z": _num(self.consensus_z[i]),
             "votes": int(self.votes[i]),
             "flagged": bool(self.flagged[i]),
+            "flag_reason": self.flag_reason[i] or None,
             "column_hits": self.column_hits[i],
             "imputed": [names[j] for j in np.flatnonzero(self.features.imputed[i])],
             **extra,
@@ -171,13 +215,17 @@ class ScanResult:
         return [self.record(i) for i in range(self.n_records)]
 
     def to_frame(self) -> pd.DataFrame:
-        """One row per record: row, key, consensus, votes, flagged, score_<method>, flag_<method>, ..."""
+        """One row per record: row, key, rank, consensus, consensus_z, votes, flagged, flag_reason,
+        score_<method>, flag_<method>, ..."""
         out = {
             "row": self.table.row_numbers,
             "key": self.keys,
+            "rank": self.rank,
             "consensus": self.consensus,
+            "consensus_z": self.consensus_z,
             "votes": self.votes,
             "flagged": self.flagged,
+            "flag_reason": list(self.flag_reason),
         }
         for k, r in self.methods.items():
             out[f"score_{k}"] = r.scores
@@ -202,6 +250,8 @@ class ScanResult:
             out["verdict"], out["note"] = self.verdicts, self.notes
         if self.map is not None:
             out["map_x"], out["map_y"] = self.map[:, 0], self.map[:, 1]
+        if self.kinds is not None:
+            out["kind"] = self.kinds.labels + 1
         if self.groups is not None:
             out["pattern"] = list(self.groups.pattern)
             out["group"] = [int(g) if g > 0 else None for g in self.groups.group]

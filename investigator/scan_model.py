@@ -18,18 +18,17 @@ scores and flags.
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
-from .combine import rule_sentence
-from .methods.base import gaussian_scaling
+from .combine import TOP_SHARE, rule_sentence
 from .options import ScanOptions
 from .result import MethodResult, ScanResult
 from .table import Source, Table
 
-SKIP_KINDS = ("robust_distance", "hotelling")
 MODEL_PEERS = 10_000  # ordinary sample records a partition's explanations find peers among
 
 
@@ -41,7 +40,9 @@ class ScanModel:
     search: object | None
     methods: dict
     rules: object
-    kinds: bool  # robust_distance holds one fit per kind of normal; the others calibrate per kind
+    kinds: object | None  # kinds.KindsOfNormal of the fit sample, or None
+    calibrations: dict  # per method key, its kinds.KindCalibration (empty without kinds)
+    combined_far: float | None  # the far-out level of the combined evidence on the fit sample
     z_threshold: float | None  # with contamination: the consensus z the fit sample's flagged reach
     pool: object  # explain.view.Pool of ordinary sample records (peers)
     typical: list  # typical ranges of the ordinary sample records
@@ -59,11 +60,7 @@ class ScanModel:
         from .progress import silent
 
         fit = run_scan(sample, options, progress or silent)
-        rows0 = sample.row_numbers - 1
         search = fit.neighbors
-        if search is not None:  # reference rows: positions in the sample -> positions in the dataset
-            search.reference_rows_ = rows0[search.reference_rows_]
-            search.reference_graph_.reference_rows = search.reference_rows_
         pool = ordinary_pool(fit)
         typical = typical_ranges(fit)
         members = peer_candidates(pool, options)
@@ -74,38 +71,41 @@ class ScanModel:
         threshold = None
         if options.contamination is not None:
             threshold = float(fit.combination.z[fit.flagged].min())
-        rd = fit.methods.get("robust_distance")
         limits = None
         if options.limits:
             from .limits import load_limits
 
             limits = load_limits(options.limits, sample)
+        calibrations = {k: r.kinds for k, r in fit.methods.items() if r.kinds is not None}
         return cls(options, fit.columns, fit.preparer, search, {k: r.method for k, r in fit.methods.items()},
-                   fit.rules, bool(rd is not None and len(rd.method.fits_) > 1), threshold, pool, typical,
+                   fit.rules, fit.kinds, calibrations, fit.combination.combined_far, threshold, pool, typical,
                    limits, sample.key_column, sample.source, fit.run, sample.n_rows)
 
     def score(self, frame: pd.DataFrame, first_row: int) -> ScanResult:
         """Score the records of ``frame``, which are rows first_row + 1, first_row + 2, ... of the dataset."""
-        from .engine import combine_results
+        from .engine import apply_kinds, combine_results
 
         frame = frame.reset_index(drop=True)
         rows0 = first_row + np.arange(len(frame))
         table = Table(frame, self.source, self.key_column, [], rows0 + 1)
         features = self.preparer.transform(table)
         X = features.values
-        graph = self.search.query(X, rows=rows0) if self.search is not None else None
-        labels = self.methods["robust_distance"].kind_of(X) if self.kinds else None
+        # A record of the sample is also in the neighbour reference: the same table, never its own neighbour.
+        graph = self.search.query(X, same_table=True) if self.search is not None else None
         results = {}
         for key, m in self.methods.items():
             scores = m.score(X, graph) if m.needs_neighbors else m.score(X)
-            if labels is not None and key not in SKIP_KINDS:
-                z, flags = m.apply_kinds(scores, labels)
-                results[key] = MethodResult(key, m, scores, flags, gaussian_scaling(z), z)
-            else:
-                results[key] = MethodResult(key, m, scores, m.flags(scores), m.unify(scores))
-        combination = combine_results(results, self.options, by_rank=False)
+            results[key] = MethodResult.overall(m, scores)
+            results[key].kinds = self.calibrations.get(key)
+        kinds = None
+        if self.kinds is not None:  # each record judged within the kind it is nearest to
+            labels = self.kinds.assign(X)
+            kinds = dataclasses.replace(self.kinds, labels=labels)
+            results = apply_kinds(results, kinds, X)
+        combination = combine_results(results, self.options, by_rank=False, combined_far=self.combined_far)
         if self.z_threshold is not None:
             combination.flagged = combination.z >= self.z_threshold
+            combination.reason = np.where(combination.flagged, TOP_SHARE, "").astype(object)
             combination.rule = rule_sentence(len(self.methods) - ("hotelling" in self.methods),
                                              self.options.contamination)
         out_of_spec = None
@@ -115,16 +115,15 @@ class ScanModel:
             out_of_spec = spec_hits(table, self.limits)
         result = ScanResult(table, self.options, self.columns, features, self.preparer, self.search, graph,
                             results, combination, self.rules, self.rules.hits(features), {},
-                            out_of_spec=out_of_spec)
+                            out_of_spec=out_of_spec, kinds=kinds)
         result._pool, result._typical = self.pool, self.typical
         return result
 
     def score_frame(self, frame: pd.DataFrame, first_row: int) -> pd.DataFrame:
-        """One output row per record (the columns of :meth:`ScanResult.to_frame`, plus ``consensus_z``, the
-        mean z-value that orders records whose consensus is 1)."""
+        """One output row per record (the columns of :meth:`ScanResult.to_frame`; ``rank`` is left out, since
+        a partition cannot know the other partitions' records: order by ``consensus_z``)."""
         result = self.score(frame, first_row)
-        out = result.to_frame()
-        out["consensus_z"] = result.combination.z
+        out = result.to_frame().drop(columns=["rank"])
         if self.key_column is not None and not pd.api.types.is_integer_dtype(out["key"]):
             out["key"] = out["key"].astype(str)
         return out

@@ -68,25 +68,25 @@ def summary_text(result, top: int = 10) -> str:
     order = [i for i in result.ranking() if result.flagged[i]][:top]
     if order:
         lines.append("")
-        lines.append(f"Top {len(order)} flagged records by consensus:")
+        lines.append(f"Top {len(order)} flagged records by rank (1 = most unusual):")
         runs = result.options.resamples
         stable_head = f" {'runs':>7}" if result.stability is not None else ""
-        lines.append(f"  {'row':>6}  {'key':<14} {'consensus':>9} {'votes':>5}{stable_head}  "
-                     "methods / column hits")
-        m = sum(1 for k in result.methods if k != "hotelling")  # hotelling does not vote
+        lines.append(f"  {'rank':>6} {'row':>6}  {'key':<14} {'consensus':>9} {'votes':>5}{stable_head}  "
+                     "why | methods above their cutoff | column hits")
+        m = sum(1 for r in result.methods.values() if r.method.votes)  # hotelling does not vote
         for i in order:
             strongest = sorted(
                 (k for k, r in result.methods.items() if r.flags[i]),
-                key=lambda k: -result.methods[k].unified[i],
+                key=lambda k: -result.methods[k].z[i],
             )
             cols = sorted({h["column"] for h in result.column_hits[i]})
-            detail = ", ".join(strongest) + (f" | {', '.join(cols)}" if cols else "")
+            detail = f"{result.flag_reason[i]} | " + ", ".join(strongest) + (f" | {', '.join(cols)}" if cols else "")
             stable = ""
             if result.stability is not None:
                 stable = f" {round(result.stability[i] * runs):>3}/{runs:<3}"
             lines.append(
-                f"  {i + 1:>6}  {_short(result.keys[i]):<14} {result.consensus[i]:>9.3f} "
-                f"{result.votes[i]:>2}/{m:<2}{stable}  {detail}"
+                f"  {result.rank[i]:>6} {int(result.table.row_numbers[i]):>6}  {_short(result.keys[i]):<14} "
+                f"{result.consensus[i]:>9.3f} {result.votes[i]:>2}/{m:<2}{stable}  {detail}"
             )
         if result.stability is not None:
             lines.append(f"  runs: resampled runs (of {runs}) that flag the record; below half is unstable")

@@ -9,6 +9,9 @@ import pandas as pd
 import pytest
 
 import investigator
+from investigator import kinds as kinds_module
+from investigator.kinds import find_kinds
+from investigator.methods.mcd import FastMCD
 from investigator.structure import find_groups, group_profile
 from investigator.structure import groups as groups_module
 
@@ -29,6 +32,12 @@ def planted(seed: int = 0, p: int = 4) -> np.ndarray:
     ])
 
 
+def grouped(X: np.ndarray, flagged: np.ndarray, seed: int = 0):
+    """The scan's structure step on prepared features X: kinds of normal, then groups."""
+    kinds = find_kinds(X, np.arange(X.shape[1]), FastMCD(seed=seed), seed=seed)
+    return find_groups(X, flagged, seed=seed, kinds=None if kinds is None else kinds.labels)
+
+
 def fringe(X: np.ndarray, rows: np.ndarray, k: int = 3) -> np.ndarray:
     """The k records of a cluster farthest from its own centre: what a scan plausibly also flags."""
     d = np.linalg.norm(X[rows] - np.median(X[rows], axis=0), axis=1)
@@ -43,7 +52,7 @@ def data(request):
     flagged = np.zeros(len(X), dtype=bool)
     flagged[EIGHT] = flagged[FIVE] = True
     flagged[fringe(X, A)] = flagged[fringe(X, B)] = True
-    return X, flagged, find_groups(X, flagged, seed=0)
+    return X, flagged, grouped(X, flagged, seed=0)
 
 
 def test_eight_near_duplicates_are_one_group_of_eight(data):
@@ -59,24 +68,24 @@ def test_eight_near_duplicates_are_one_group_of_eight(data):
 
 
 def test_five_lone_points_are_isolated_and_in_no_group(data):
-    # Reference: the planted truth; each of the five was placed alone.
+    # Reference: the planted truth; each of the five was placed alone. Every record belongs to the kind of
+    # normal it is nearest to, so their id is a large cluster's, never a group's.
     X, flagged, g = data
     assert list(g.pattern[FIVE]) == ["isolated"] * 5
-    assert (g.group[FIVE] == -1).all()
+    assert all(g.is_large(int(gid)) for gid in g.group[FIVE])
 
 
 def test_two_clusters_are_two_kinds_of_normal(data):
     # Reference: the planted truth; each ordinary record was drawn from cluster A or cluster B. Neither
-    # cluster may be taken for outliers of the other: each is its own large cluster, none of its members
-    # is in a group, and no member carries the other cluster's id.
+    # cluster may be taken for outliers of the other: each is its own large cluster, every one of its
+    # members belongs to it (nearest kind), none is in a group, and no member carries the other's id.
     X, flagged, g = data
     assert len(g.large_ids) == 2
     for rows, other in ((A, B), (B, A)):
         labels = g.group[rows]
         own = np.bincount(labels[labels > 0]).argmax()
         assert g.is_large(own)
-        assert (labels == own).mean() >= 0.95
-        assert set(labels) <= {own, -1}
+        assert (labels == own).all()
         assert own not in set(g.group[other])
         assert "group" not in set(g.pattern[rows])
         assert set(g.pattern[rows][~flagged[rows]]) == {None}
@@ -91,10 +100,10 @@ def test_a_flagged_second_cluster_is_still_a_kind_of_normal():
     X = planted()
     flagged = np.zeros(len(X), dtype=bool)
     flagged[B] = flagged[EIGHT] = flagged[FIVE] = True
-    g = find_groups(X, flagged, seed=0)
+    g = grouped(X, flagged, seed=0)
     labels = g.group[B]
     own = np.bincount(labels[labels > 0]).argmax()
-    assert g.is_large(own) and (labels == own).mean() >= 0.95
+    assert g.is_large(own) and (labels == own).all()
     assert "group" not in set(g.pattern[B])
     assert [g.members(s).tolist() for s in g.small_ids] == [EIGHT.tolist()]
 
@@ -103,19 +112,21 @@ def test_same_seed_same_groups_on_the_sampled_path(monkeypatch):
     # Large data are clustered on samples; shrink the thresholds so this 913-record table takes that path.
     # Reference: the planted truth (the flagged eight are never sampled away) and the run itself (same
     # seed, same result).
-    monkeypatch.setattr(groups_module, "KINDS_SAMPLE", 500)
+    monkeypatch.setattr(kinds_module, "SAMPLE", 500)
     monkeypatch.setattr(groups_module, "GROUP_SET", 400)
     X = planted(seed=3)
     flagged = np.zeros(len(X), dtype=bool)
     flagged[EIGHT] = flagged[FIVE] = True
     flagged[fringe(X, A, 10)] = True
-    first, again = find_groups(X, flagged, seed=5), find_groups(X, flagged, seed=5)
-    assert first.parameters["group_set"] == 400 and first.parameters["kinds_sample"] == 500
+    kinds = find_kinds(X, np.arange(4), FastMCD(seed=5), seed=5)
+    assert kinds.parameters["sample"] == 500 and kinds.n_kinds == 2
+    first, again = grouped(X, flagged, seed=5), grouped(X, flagged, seed=5)
+    assert first.parameters["group_set"] == 400
     np.testing.assert_array_equal(first.group, again.group)
     np.testing.assert_array_equal(first.pattern, again.pattern)
     assert [first.members(s).tolist() for s in first.small_ids] == [EIGHT.tolist()]
     assert list(first.pattern[FIVE]) == ["isolated"] * 5
-    other = find_groups(X, flagged, seed=6)  # another sample: the same group comes out
+    other = grouped(X, flagged, seed=6)  # another sample: the same group comes out
     assert [other.members(s).tolist() for s in other.small_ids] == [EIGHT.tolist()]
 
 
@@ -127,9 +138,9 @@ def test_a_lone_point_beside_the_group_is_not_a_member():
     X = np.vstack([X, [-10, 14, 0, 0]])
     flagged = np.zeros(len(X), dtype=bool)
     flagged[EIGHT] = flagged[FIVE] = flagged[-1] = True
-    g = find_groups(X, flagged, seed=0)
+    g = grouped(X, flagged, seed=0)
     assert [g.members(s).tolist() for s in g.small_ids] == [EIGHT.tolist()]
-    assert g.pattern[-1] == "isolated" and g.group[-1] == -1
+    assert g.pattern[-1] == "isolated" and g.is_large(int(g.group[-1]))
 
 
 def test_unflagged_dense_spot_is_not_a_group(data):
@@ -138,7 +149,7 @@ def test_unflagged_dense_spot_is_not_a_group(data):
     X, _, _ = data
     flagged = np.zeros(len(X), dtype=bool)
     flagged[EIGHT[0]] = flagged[FIVE[0]] = True
-    g = find_groups(X, flagged, seed=0)
+    g = grouped(X, flagged, seed=0)
     assert g.small_ids == []
     assert g.pattern[EIGHT[0]] == "isolated" and g.pattern[EIGHT[1]] is None
 

@@ -139,15 +139,17 @@ def test_top_features_for_the_output_table_match_the_full_explanations():
     assert fast == full
 
 
-def test_neighbour_self_exclusion_works_for_any_row_numbers():
-    # A partition of a huge dataset: its rows are far from 0; the result must not depend on that.
+def test_a_block_of_records_gets_the_neighbours_it_has_in_the_whole_table():
+    # A partition of a huge dataset is queried on its own: its records must get the neighbours they get when
+    # the whole table is queried (the reference, a sample of it, is the same).
     rng = np.random.default_rng(8)
     X = rng.normal(size=(30_000, 3))
-    far = 10**12 + np.arange(30_000)
-    near = NeighborSearch(5, seed=1).fit(X).query(X, rows=np.arange(30_000))
-    shifted = NeighborSearch(5, seed=1).fit(X, rows=far).query(X, rows=far)
-    assert np.array_equal(near.indices, shifted.indices)
-    np.testing.assert_array_equal(near.distances, shifted.distances)
+    search = NeighborSearch(5, seed=1).fit(X)
+    whole = search.query(X, same_table=True)
+    block = search.query(X[12_000:15_000], same_table=True)
+    np.testing.assert_array_equal(block.indices, whole.indices[12_000:15_000])
+    np.testing.assert_array_equal(block.distances, whole.distances[12_000:15_000])
+    np.testing.assert_array_equal(block.copies, whole.copies[12_000:15_000])
 
 
 # -- Parquet datasets in memory ------------------------------------------------------------------------

@@ -9,6 +9,7 @@ from sklearn.neighbors import LocalOutlierFactor
 
 import investigator
 from investigator.neighbors import NeighborSearch
+from investigator.sampling import canonical_order
 
 
 @pytest.fixture(scope="module")
@@ -38,9 +39,10 @@ def test_neighbor_distance_equals_brute_force_cdist(scanned):
 
 
 def test_isolation_equals_scikit_learn_isolation_forest(scanned):
-    # Reference: scikit-learn's IsolationForest with the same trees, subsample and seed (Liu et al. 2008).
+    # Reference: scikit-learn's IsolationForest with the same trees, subsample and seed (Liu et al. 2008),
+    # given the records in the same content order (the scan fits on that order, so rows' order cannot matter).
     result, Z = scanned
-    forest = IsolationForest(n_estimators=200, max_samples=256, random_state=0).fit(Z)
+    forest = IsolationForest(n_estimators=200, max_samples=256, random_state=0).fit(Z[canonical_order(Z)])
     np.testing.assert_allclose(result.scores("isolation"), -forest.score_samples(Z), rtol=1e-12)
 
 
@@ -48,9 +50,9 @@ def test_the_neighbour_search_runs_once_per_scan(monkeypatch):
     calls = []
     original = NeighborSearch.fit
 
-    def counting(self, X, rows=None):
+    def counting(self, X):
         calls.append(len(X))
-        return original(self, X, rows)
+        return original(self, X)
 
     monkeypatch.setattr(NeighborSearch, "fit", counting)
     rng = np.random.default_rng(2)
@@ -64,8 +66,8 @@ def test_sampled_search_with_the_whole_table_equals_the_exact_search():
     exact = NeighborSearch(10).fit(X)
     sampled = NeighborSearch(10, sample_above=100, sample_size=500).fit(X)
     assert sampled.mode_ == "sampled"
-    g_exact = exact.query(X, rows=np.arange(500))
-    g_sampled = sampled.query(X, rows=np.arange(500))
+    g_exact = exact.query(X, same_table=True)
+    g_sampled = sampled.query(X, same_table=True)
     # The sampled path searches in float32: the same neighbours, distances to float32 precision.
     np.testing.assert_allclose(g_sampled.distances, g_exact.distances, rtol=1e-5)
     assert (g_sampled.indices == g_exact.indices).mean() > 0.99
@@ -75,10 +77,11 @@ def test_sampled_search_never_makes_a_record_its_own_neighbour():
     rng = np.random.default_rng(4)
     X = rng.normal(size=(3000, 3))
     search = NeighborSearch(5, sample_above=1000, sample_size=400, seed=1).fit(X)
-    graph = search.query(X, rows=np.arange(3000))
-    own = search.reference_rows_[graph.indices]
-    assert not np.any(own == np.arange(3000)[:, None])
-    assert np.all(graph.distances > 0)
+    graph = search.query(X, same_table=True)
+    own = search.locate(X)  # each record's own location in the sample, -1 when it was not drawn
+    assert (own >= 0).sum() == 400
+    assert not np.any(graph.indices == own[:, None])
+    assert np.all(graph.distances > 0) and np.all(graph.copies == 0)
     assert np.all(np.diff(graph.distances, axis=1) >= 0)
 
 

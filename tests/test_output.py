@@ -58,8 +58,8 @@ def test_csv_and_parquet_columns(claims, tmp_path):
     result = investigator.scan(claims, id="ref")
     csv = pd.read_csv(result.write(tmp_path / "scan.csv"))
     parquet = pd.read_parquet(result.write(tmp_path / "scan.parquet"))
-    expected = ["row", "key", "consensus", "votes", "flagged"] + [f"score_{k}" for k in METHOD_KEYS] + [
-        f"flag_{k}" for k in METHOD_KEYS]
+    expected = ["row", "key", "rank", "consensus", "consensus_z", "votes", "flagged", "flag_reason"] + [
+        f"score_{k}" for k in METHOD_KEYS] + [f"flag_{k}" for k in METHOD_KEYS]
     for frame in (csv, parquet):
         assert list(frame.columns[: len(expected)]) == expected
         assert len(frame) == 150

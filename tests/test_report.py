@@ -207,9 +207,9 @@ def test_xlsx_stores_formula_like_cells_as_text(hostile, tmp_path):
     out = write_report(result, tmp_path / "cases.xlsx")
     sheet = load_workbook(out).active
     header = [c.value for c in sheet[1]]
-    assert header[:6] == ["rank", "row", "key", "consensus", "votes", "flagged"]
+    assert header[:9] == ["case", "rank", "row", "key", "consensus", "consensus_z", "votes", "flagged", "flag_reason"]
     assert {"top_features", "column_hits", "nearest_ordinary_change", "verdict", "note"} <= set(header)
-    keys = [sheet.cell(row=r, column=3).value for r in range(2, sheet.max_row + 1)]
+    keys = [sheet.cell(row=r, column=header.index("key") + 1).value for r in range(2, sheet.max_row + 1)]
     flagged = [str(result.keys[i]) for i in result.ranking() if result.flagged[i]]
     assert keys == [k if not k.startswith(FORMULA_START) else "'" + k for k in flagged]
     # OWASP "CSV Injection": formula-like cells get a leading apostrophe, and none is stored as a formula.
@@ -367,7 +367,7 @@ def test_verdicts_and_their_history_appear(capsys, demo, tmp_path):
     assert sqlite3.connect(store).execute("SELECT COUNT(*) FROM history").fetchone()[0] == before
     sheet = load_workbook(write_report(result, tmp_path / "cases.xlsx", store=store)).active
     header = [c.value for c in sheet[1]]
-    rows = {r[2]: r for r in sheet.iter_rows(min_row=2, values_only=True)}
+    rows = {r[header.index("key")]: r for r in sheet.iter_rows(min_row=2, values_only=True)}
     assert rows[first][header.index("verdict")] == "confirmed"
     assert rows[second][header.index("changed_since_verdict")] is True
     assert str(result.keys[ordinary]) in rows  # a record with a verdict is a case even when not flagged

@@ -41,18 +41,18 @@ def test_large_clusters_are_kinds_of_normal_not_outliers(two_kinds):
     # One ellipse for all records (a single MCD) puts most of the smaller cluster beyond the cutoff ...
     from scipy import stats
 
-    from investigator.methods.mcd import FastMCD, _sq_distances
+    from investigator.methods.mcd import FastMCD, sq_distances
 
     X = result.features.values
     single = FastMCD().fit(X)
-    far = _sq_distances(X, single.location, single.covariance) > stats.chi2.ppf(0.975, 4)
+    far = sq_distances(X, single.location, single.covariance) > stats.chi2.ppf(0.975, 4)
     assert far[600:900].mean() > 0.5
     # ... while the scan flags no more than the usual tail of either cluster (2.5% per method nominally; a
     # 300-record MCD runs a little above it).
     assert result.flagged[:600].mean() < 0.05 and result.flagged[600:900].mean() < 0.05
     assert result.flags("robust_distance")[600:900].mean() < 0.08
     assert "kinds of normal" in " ".join(result.run["notices"])
-    assert len(result.methods["robust_distance"].method.fits_) == 2
+    assert result.kinds.n_kinds == 2 and len(result.kinds.fits) == 2  # one MCD per kind
 
 
 def test_a_group_is_one_case_with_a_profile(two_kinds, tmp_path):

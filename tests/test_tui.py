@@ -421,8 +421,11 @@ async def test_the_map_opens_a_group_as_one_case(demo):
     app = demo_app(demo)
     async with app.run_test(size=(100, 30)) as pilot:
         canvas = await open_map(app, pilot)
-        await pilot.press("n")  # the flagged record of highest consensus: on the demo, one of the split purchase
-        chosen = canvas.selected()
+        for _ in range(15):  # flagged records by consensus: the split purchase comes after the keying errors
+            await pilot.press("n")
+            chosen = canvas.selected()
+            if app.result.groups.pattern[chosen] == "group":
+                break
         assert app.result.groups.pattern[chosen] == "group"
         await pilot.press("o")
         await settle(app, pilot)

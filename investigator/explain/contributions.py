@@ -7,8 +7,9 @@
   correlation the others would predict.
 * neighbor_distance: the squared Euclidean distance to the k-th nearest neighbour (the distance the score is)
   split per feature, (x_j - o_j)^2; sums to the squared score.
-* local_density: the mean squared Euclidean distance to the record's k neighbours (the neighbourhood LOF
-  compares) split per feature, mean over neighbours of (x_j - o_j)^2; sums to that mean.
+* local_density: the mean squared Euclidean distance to the records of the neighbourhood LOF compares (its k
+  distinct neighbouring locations, each as often as records sit there, and its own copies at distance 0)
+  split per feature, mean over them of (x_j - o_j)^2; sums to that mean.
 * isolation: for every tree, each split on the record's path counts 1 / (nodes on the path, leaf included)
   for its feature (a short path, an easy isolation, weighs more), summed over trees and normalised to
   shares; in the spirit of
@@ -26,25 +27,43 @@ from __future__ import annotations
 import numpy as np
 
 
-def robust_distance_contributions(method, X: np.ndarray) -> np.ndarray:
+def robust_fit_labels(result, positions: np.ndarray) -> tuple[list[tuple[np.ndarray, np.ndarray]], np.ndarray]:
+    """The fits robust_distance measured the records at ``positions`` against: a list of (location,
+    precision) and, per record, the index of its fit (its kind of normal, or 0)."""
+    kinds = result.kinds
+    if kinds is None:
+        m = result.methods["robust_distance"].method
+        return [(m.mcd_.location, m.precision_)], np.zeros(len(positions), dtype=int)
+    return ([(f.location, np.linalg.inv(f.covariance)) for f in kinds.fits],
+            np.asarray(kinds.labels)[positions])
+
+
+def robust_distance_contributions(result, positions: np.ndarray, X: np.ndarray) -> np.ndarray:
+    method = result.methods["robust_distance"].method
     cols = method.columns_
     out = np.zeros(X.shape)
-    kinds = method.kind_of(X) if len(method.fits_) > 1 else np.zeros(len(X), dtype=int)
-    for k in np.unique(kinds):  # each record against the fit it is measured by (its kind of normal)
-        rows = kinds == k
-        R = X[rows][:, cols] - method.fits_[k].location
-        out[np.ix_(rows, cols)] = R * (R @ method.precisions_[k])
+    fits, labels = robust_fit_labels(result, positions)
+    for k in np.unique(labels):  # each record against the fit it is measured by (its kind of normal)
+        rows = labels == k
+        location, precision = fits[k]
+        R = X[rows][:, cols] - location
+        out[np.ix_(rows, cols)] = R * (R @ precision)
     return out
 
 
-def neighbor_distance_contributions(method, X: np.ndarray, neighbors, reference: np.ndarray) -> np.ndarray:
-    other = reference[neighbors.indices[:, method.k_ - 1]]
-    return (X - other) ** 2
+def neighbor_distance_contributions(method, X: np.ndarray, neighbors, locations: np.ndarray) -> np.ndarray:
+    _, col = neighbors.kth(method.k_)
+    copy = col < 0  # the k-th neighbour is an exact copy: nothing separates the record from it
+    other = locations[neighbors.indices[np.arange(len(X)), np.maximum(col, 0)]]
+    return np.where(copy[:, None], 0.0, (X - other) ** 2)
 
 
-def local_density_contributions(method, X: np.ndarray, neighbors, reference: np.ndarray) -> np.ndarray:
-    others = reference[neighbors.indices[:, : method.k_]]  # m x k x p
-    return ((X[:, None, :] - others) ** 2).mean(axis=1)
+def local_density_contributions(method, X: np.ndarray, neighbors, locations: np.ndarray) -> np.ndarray:
+    L = neighbors.indices[:, : method.k_]
+    w = neighbors.counts[L].astype(float)  # records at each neighbouring location; own copies add 0
+    others = locations[L]  # m x k x p
+    total = neighbors.copies + w.sum(axis=1)
+    return np.einsum("mk,mkp->mp", w, (X[:, None, :] - others) ** 2) / total[:, None]
 
 
 def isolation_contributions(method, X: np.ndarray) -> np.ndarray:
@@ -76,7 +95,7 @@ def method_contributions(result, positions: np.ndarray) -> dict[str, np.ndarray]
     for key, r in result.methods.items():
         m = r.method
         if key == "robust_distance":
-            out[key] = robust_distance_contributions(m, X)
+            out[key] = robust_distance_contributions(result, positions, X)
         elif key == "isolation":
             out[key] = isolation_contributions(m, X)
         elif key == "hotelling":
@@ -84,9 +103,8 @@ def method_contributions(result, positions: np.ndarray) -> dict[str, np.ndarray]
             values[:, m.columns_] = m.contributions(X)
             out[key] = values
         else:
-            graph = result.graph
-            sub = type(graph)(graph.indices[positions], graph.distances[positions], graph.reference_rows)
-            ref = result.neighbors.reference_
+            sub = result.graph.subset(positions)
+            ref = result.neighbors.locations_
             if key == "neighbor_distance":
                 out[key] = neighbor_distance_contributions(m, X, sub, ref)
             else:

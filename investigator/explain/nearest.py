@@ -32,11 +32,11 @@ def nearest_ordinary(result, i: int) -> dict | None:
     pos = {j: n for n, j in enumerate(m.columns_)}
     idx = np.array([pos[j] for j in cols])
     x = result.features.values[i]
-    location, P = m.fit_for(x)
+    location, P = _fit_of(result, i)
     r = x[m.columns_] - location
     b = (P @ r)[idx]
     d2 = float(r @ P @ r)
-    c = float(m.cutoff_) * (1 - MARGIN)
+    c = float(rd.cutoffs[i]) * (1 - MARGIN)
     a = np.diag(P)[idx]
     disc = b**2 - a * (d2 - c)
     best = None
@@ -61,6 +61,13 @@ def nearest_ordinary(result, i: int) -> dict | None:
     if best is None:
         return None
     return _describe(result, i, best[0], best[1], m, d2)
+
+
+def _fit_of(result, i: int):
+    from .contributions import robust_fit_labels
+
+    fits, labels = robust_fit_labels(result, np.array([i]))
+    return fits[int(labels[0])]
 
 
 def _best_pair(P, Pr, idx, cols, d2, c):
@@ -105,7 +112,7 @@ def _describe(result, i, features, deltas, method, d2_before) -> dict:
         changes.append({"feature": spec.name, "from": before, "to": after, "change": after - before,
                         "change_scaled": float(delta)})
         x[j] += delta
-    location, P = method.fit_for(result.features.values[i])
+    location, P = _fit_of(result, i)
     r = x[method.columns_] - location
     return {
         "method": "robust_distance",
@@ -113,5 +120,5 @@ def _describe(result, i, features, deltas, method, d2_before) -> dict:
         "changes": changes,
         "distance_before": d2_before,
         "distance_after": float(r @ P @ r),
-        "cutoff": float(method.cutoff_),
+        "cutoff": float(result.methods["robust_distance"].cutoffs[i]),
     }

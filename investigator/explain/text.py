@@ -24,13 +24,22 @@ def _typical(t: dict) -> str:
 def _headline(e: dict) -> str:
     m = len(e["methods"])
     who = f"Record {e['key']}" + (f" (row {e['row']})" if e["key"] != e["row"] else "")
-    if e["flagged"]:
+    why = e.get("flag_reason") or ""
+    if e["flagged"] and why.startswith("far beyond ") and why != "far beyond combined":
+        names = why.removeprefix("far beyond ")
+        lead = (f"{who} is flagged: {names} puts it far beyond its cutoff (beyond the far-out fence of its "
+                f"scores), though only {e['votes']} of {m} methods put it above their cutoff")
+    elif e["flagged"] and why == "far beyond combined":
+        lead = (f"{who} is flagged: the methods' evidence together is far beyond that of ordinary records, "
+                f"though only {e['votes']} of {m} methods put it above their cutoff")
+    elif e["flagged"]:
         lead = f"{who} is flagged: {e['votes']} of {m} methods put it above their cutoff"
     elif e["votes"]:
         lead = f"{who} is not flagged: only {e['votes']} of {m} methods put it above their cutoff"
     else:
         lead = f"{who} is not flagged: no method puts it above its cutoff"
-    lead += f" (consensus {e['consensus']:.3f})."
+    rank = f"rank {e['rank']:,}, " if e.get("rank") is not None else ""
+    lead += f" ({rank}consensus {e['consensus']:.3f})."
     parts = []
     for t in e["top_features"][:2]:
         if t["direction"] == "rarer":

@@ -169,10 +169,13 @@ def _one(result, i, n, contrib, peer_pos, peer_dist, typical) -> dict:
         "key": result.keys[i],
         "flagged": bool(result.flagged[i]),
         "votes": int(result.votes[i]),
+        "flag_reason": result.flag_reason[i] or None,
+        "rank": int(result.rank[i]),
         "consensus": float(result.consensus[i]),
+        "consensus_z": float(result.consensus_z[i]),
         "methods": {
-            key: {"score": float(r.scores[i]), "cutoff": float(r.method.cutoff_), "flag": bool(r.flags[i]),
-                  "unified": float(r.unified[i])}
+            key: {"score": float(r.scores[i]), "cutoff": float(r.cutoffs[i]), "flag": bool(r.flags[i]),
+                  "z": float(r.z[i]), "far_beyond": bool(r.far_beyond[i]), "unified": float(r.unified[i])}
             for key, r in result.methods.items()
         },
         "contributions": per_method,

@@ -19,10 +19,11 @@ for a reference of tens of records it is too low and flags too many new records.
 from __future__ import annotations
 
 import numpy as np
-from scipy import linalg, special, stats
+from scipy import linalg, stats
 
 from ..errors import InputError
-from .base import Method
+from .base import Method, Scale
+from .tails import f_logsf, normal_quantile_of_tail
 
 _RCOND = 1e-12  # smallest eigenvalue / largest below which the covariance counts as singular
 
@@ -83,6 +84,7 @@ class Hotelling(Method):
 
     key = "hotelling"
     score_units = "Hotelling T-squared"
+    votes = False  # reported beside the methods; it measures robust_distance's view with a classical fit
 
     def __init__(self, *, cutoff: float = 0.975, contamination: float | None = None,
                  columns: np.ndarray | None = None) -> None:
@@ -155,18 +157,20 @@ class Hotelling(Method):
         return self.reference_scores_ > self.phase_i_limit_
 
     # The F distribution gives the scale and the cutoff: no fitted spread.
-    def _fit_scale(self, reference_scores):
-        pass
-
-    def _default_cutoff(self):
-        return self.phase_ii_limit_, (
-            f"the phase II limit p(m+1)(m-1)/(m^2 - m p) x F({self.cutoff:g}; p, m - p) with m = {self.m_} "
-            f"reference records and p = {self.p_} features (Montgomery)")
+    def calibrate(self, scores):
+        if self.contamination is not None:
+            cutoff = float(np.quantile(np.asarray(scores, dtype=float), 1.0 - self.contamination))
+            rule = f"the top {self.contamination:g} share of reference scores"
+        else:
+            cutoff = self.phase_ii_limit_
+            rule = (f"the phase II limit p(m+1)(m-1)/(m^2 - m p) x F({self.cutoff:g}; p, m - p) with m = {self.m_} "
+                    f"reference records and p = {self.p_} features (Montgomery)")
+        return Scale(0.0, 1.0, "F distribution", cutoff, rule, float("inf"))
 
     def _f_statistic(self, scores: np.ndarray) -> np.ndarray:
         m, p = self.m_, self.p_
         return np.asarray(scores, dtype=float) * (m * m - m * p) / (p * (m + 1) * (m - 1))
 
-    def standardise(self, scores):
+    def standardise(self, scores, scale=None):
         # The normal quantile of the phase II probability, from the log tail so huge T2 keep their order.
-        return -special.ndtri_exp(stats.f.logsf(self._f_statistic(scores), self.p_, self.m_ - self.p_))
+        return normal_quantile_of_tail(f_logsf(self._f_statistic(scores), self.p_, self.m_ - self.p_))

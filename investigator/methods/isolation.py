@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .. import sampling
 from .base import Method
 
 
@@ -11,7 +12,8 @@ class Isolation(Method):
     """Isolation forest anomaly score s = 2^(-E[h(x)] / c(psi)), in (0, 1]; higher is easier to isolate.
 
     Liu, F. T., Ting, K. M. & Zhou, Z.-H. (2008), "Isolation forest", ICDM. Uses scikit-learn's
-    ``IsolationForest`` (its ``score_samples`` negated gives s).
+    ``IsolationForest`` (its ``score_samples`` negated gives s), fitted on the records in content order
+    (:func:`investigator.sampling.canonical_order`) so the trees do not depend on the order of the rows.
 
     Parameters
     ----------
@@ -38,9 +40,11 @@ class Isolation(Method):
     def _fit(self, X, neighbors=None):
         from sklearn.ensemble import IsolationForest
 
+        # The forest draws each tree's records by position; given the records in content order it grows the
+        # same trees whatever the order of the rows.
         self.forest_ = IsolationForest(
             n_estimators=self.n_trees, max_samples=min(self.subsample, len(X)), random_state=self.seed
-        ).fit(X)
+        ).fit(X[sampling.canonical_order(X)])
         return self.score(X)
 
     def score(self, X, neighbors=None):
@@ -52,6 +56,5 @@ class Isolation(Method):
     def _unregularise(self, t):
         return float(t)
 
-    def _default_cutoff(self):
-        value, rule = super()._default_cutoff()
-        return value, rule.replace("of the log score", "of the score")
+    def _rule_units(self) -> str:
+        return "score"

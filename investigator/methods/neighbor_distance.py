@@ -9,11 +9,13 @@ class NeighborDistance(Method):
     """Distance from a record to its k-th nearest other record, in the scaled feature space.
 
     Ramaswamy, S., Rastogi, R. & Shim, K. (2000), "Efficient algorithms for mining outliers from large data
-    sets", SIGMOD.
+    sets", SIGMOD. Exact copies are records like any other: a record with k or more copies has distance 0.
 
     Parameters
     ----------
     k : which neighbour's distance is the score (default 10).
+
+    Fitted attributes: ``k_`` (k, or fewer on tiny data).
     """
 
     key = "neighbor_distance"
@@ -28,8 +30,8 @@ class NeighborDistance(Method):
         return {"k": int(self.k_)}
 
     def _fit(self, X, neighbors):
-        self.k_ = min(self.k, neighbors.k)
-        return self.score(X, neighbors)
+        self.k_ = max(1, min(self.k, neighbors.n_reference_ - 1))
+        return self.score(X, neighbors.reference_graph_)
 
     def score(self, X, neighbors):
-        return neighbors.distances[:, self.k_ - 1].copy()
+        return neighbors.kth(self.k_)[0]

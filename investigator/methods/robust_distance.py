@@ -1,19 +1,21 @@
-"""robust_distance: squared robust Mahalanobis distance from a reweighted MCD fit."""
+"""robust_distance: squared robust Mahalanobis distance from a reweighted MCD (or MRCD) fit."""
 
 from __future__ import annotations
 
 import numpy as np
-from scipy import special, stats
+from scipy import stats
 
-from .base import Method
-from .mcd import SAMPLE_ABOVE, FastMCD, MCDFit, _sq_distances
+from .base import Method, Scale, far_fence, upper_fence
+from .mcd import SAMPLE_ABOVE, FastMCD, MCDFit, sq_distances
 
 
 class RobustDistance(Method):
     """Squared Mahalanobis distance to the reweighted Minimum Covariance Determinant centre.
 
     Rousseeuw, P. J. & Van Driessen, K. (1999), "A fast algorithm for the minimum covariance determinant
-    estimator", Technometrics 41(3). See :mod:`investigator.methods.mcd` for the fit.
+    estimator", Technometrics 41(3); for a singular core, the minimum regularized covariance determinant
+    (Boudt, Rousseeuw, Vanduffel & Verdonck 2020, Statistics and Computing 30). See
+    :mod:`investigator.methods.mcd` for the fit.
 
     Parameters
     ----------
@@ -22,24 +24,31 @@ class RobustDistance(Method):
     n_starts : number of random starts.
     columns : indices of the feature columns to use (default: all).
     exact : never search the raw MCD on a sample (by default it does above ``mcd.SAMPLE_ABOVE`` records).
+    adapt_cutoff : raise the cutoff to the bulk's own quantile where distances run heavier than the
+        chi-square model (see :meth:`calibrate`); False keeps the chi-square quantile, as phase I cleaning
+        of a reference does (there a flag only leaves a record out of the fit, and leaving out too many is
+        the safe side).
 
     Fitted attributes: ``mcd_`` (:class:`MCDFit`), ``columns_``, ``precision_`` (inverse covariance),
-    ``cutoff_``, ``reference_scores_``; ``fits_``/``precisions_`` hold one fit per kind of normal after
-    :meth:`fit_kinds` (otherwise just ``mcd_``).
+    ``scale_``, ``reference_scores_``. Kinds of normal (one fit per large cluster) are kept apart, in
+    :class:`investigator.kinds.KindsOfNormal`; this object never changes after ``fit``.
     """
 
     key = "robust_distance"
     score_units = "squared robust Mahalanobis distance"
 
     def __init__(self, *, cutoff: float = 0.975, contamination: float | None = None, seed: int = 0,
-                 n_starts: int = 500, columns: np.ndarray | None = None, exact: bool = False) -> None:
+                 n_starts: int = 500, columns: np.ndarray | None = None, exact: bool = False,
+                 adapt_cutoff: bool = True) -> None:
         super().__init__(cutoff=cutoff, contamination=contamination)
         self.seed = seed
         self.n_starts = n_starts
         self.columns = columns
         self.exact = exact
+        self.adapt_cutoff = adapt_cutoff
 
-    def _mcd(self) -> FastMCD:
+    def mcd(self) -> FastMCD:
+        """A FastMCD configured as this method's (the kinds of normal fit theirs with it too)."""
         return FastMCD(n_starts=self.n_starts, seed=self.seed, sample_above=None if self.exact else SAMPLE_ABOVE)
 
     def parameters(self) -> dict:
@@ -48,62 +57,94 @@ class RobustDistance(Method):
             "starts": "exact enumeration" if self.mcd_.exact else self.n_starts,
             "reweighting": "records within the 0.975 chi-square quantile of the raw fit",
             "features_used": int(len(self.columns_)),
-            "ridge": self.mcd_.ridge,
+            "chi_square_cutoff": float(stats.chi2.ppf(self.cutoff, self.df)),
+            "regularisation": regularisation(self.mcd_),
         }
         if self.mcd_.sample:
             out["raw_fit_sample"] = int(self.mcd_.sample)
-        if len(self.fits_) > 1:
-            out["kinds"] = [int(f.h) for f in self.fits_]  # one MCD per large cluster: their supports
         return out
 
     def _fit(self, X, neighbors=None):
         self.columns_ = np.arange(X.shape[1]) if self.columns is None else np.asarray(self.columns)
-        Xc = X[:, self.columns_]
-        self.mcd_: MCDFit = self._mcd().fit(Xc)
+        self.mcd_: MCDFit = self.mcd().fit(X[:, self.columns_])
         self.precision_ = np.linalg.inv(self.mcd_.covariance)
-        self.fits_ = [self.mcd_]
-        self.precisions_ = [self.precision_]
         return self.score(X)
 
-    def fit_kinds(self, X: np.ndarray, members: list[np.ndarray]) -> RobustDistance:
-        """Refit one MCD per large cluster ("kind of normal") of reference records; a record is then measured
-        against the nearest kind, so members of one kind are not flagged for being far from another."""
-        self.fits_ = [self._mcd().fit(X[m][:, self.columns_]) for m in members]
-        self.precisions_ = [np.linalg.inv(f.covariance) for f in self.fits_]
-        self.reference_scores_ = self.score(X)
-        return self
-
-    def _all_kinds(self, X) -> np.ndarray:
-        Xc = X[:, self.columns_]
-        return np.column_stack([_sq_distances(Xc, f.location, f.covariance) for f in self.fits_])
-
-    def kind_of(self, X) -> np.ndarray:
-        """Index into ``fits_`` of the kind each record is measured against (its nearest)."""
-        return np.argmin(self._all_kinds(X), axis=1)
-
-    def fit_for(self, x) -> tuple[np.ndarray, np.ndarray]:
-        """Location and precision of the fit one record is measured against."""
-        k = int(self.kind_of(np.atleast_2d(x))[0]) if len(self.fits_) > 1 else 0
-        return self.fits_[k].location, self.precisions_[k]
-
     def score(self, X, neighbors=None):
-        if len(getattr(self, "fits_", ())) > 1:
-            return self._all_kinds(X).min(axis=1)
-        return _sq_distances(X[:, self.columns_], self.mcd_.location, self.mcd_.covariance)
+        return sq_distances(X[:, self.columns_], self.mcd_.location, self.mcd_.covariance)
 
     @property
     def df(self) -> int:
         return len(self.columns_)
 
-    def _fit_scale(self, reference_scores):
-        pass  # the chi-square model gives the scale
+    def calibrate(self, scores):
+        """z-values on the chi-square model's scale (z = 0 at its median, z_q at its cutoff quantile, linear in
+        the log distance as for the other methods); the cutoff is the chi-square quantile unless the
+        records' own distances run heavier than the model: then the cutoff quantile of the distances inside
+        the far-out fence of the log distance (the bulk's own quantile), whichever is higher.
 
-    def _default_cutoff(self):
-        return float(stats.chi2.ppf(self.cutoff, self.df)), (
-            f"the {self.cutoff:g} quantile of the chi-square distribution with {self.df} degrees of freedom"
-        )
+        Robust distances of normal data follow the chi-square model only as n grows (Hardin & Rocke 2005,
+        "The distribution of robust distances", J. Computational and Graphical Statistics 14), and a
+        non-normal bulk (skewed amounts, codes, mixtures) runs heavier still: there the chi-square cutoff
+        flags ordinary records by the hundreds (a quarter of the ordinary wine samples, measured). On normal
+        data the two cutoffs agree, and where many records are far out (Hawkins-Bradu-Kass) the model's is
+        the higher and stays. The z-values keep the model's scale either way: they measure how far a record
+        is from the fitted ellipse in the model's own units, and that is the order the consensus should
+        see (measured: with the empirical scale instead, the consensus ROC AUC falls by 0.02-0.06 on wine,
+        biopsy and credit-card data, where robust_distance is the best single method). So where the cutoff
+        is raised, robust_distance's z at its cutoff is above z_q."""
+        center, spread = self._model_scale()
+        t = self._regularise(scores)
+        z_q = float(stats.norm.ppf(self.cutoff))
+        if self.contamination is not None:
+            cutoff = float(np.quantile(np.asarray(scores, dtype=float), 1.0 - self.contamination))
+            rule, how = f"the top {self.contamination:g} share of reference scores", "chi-square"
+        else:
+            cutoff = float(stats.chi2.ppf(self.cutoff, self.df))
+            rule = f"the {self.cutoff:g} quantile of the chi-square distribution with {self.df} degrees of freedom"
+            how = "chi-square"
+            # The bulk's own 0.975 quantile: the distances inside the far-out fence, so that many far-out
+            # records (a fifth of Hawkins-Bradu-Kass) do not count as the bulk running heavy.
+            bulk = t[t <= upper_fence(t)]
+            heavy = float(np.exp(np.quantile(bulk, self.cutoff)))
+            if heavy > cutoff and self.adapt_cutoff:
+                rule = (f"the {self.cutoff:g} quantile of the distances inside the far-out fence of the log distance "
+                        f"(Q3 + 3 IQR, or 6 upper semi-IQR when wider), which is above the chi-square quantile "
+                        f"({cutoff:.4g}): these distances run heavier than the chi-square model")
+                cutoff, how = heavy, "chi-square scale, cutoff from ordinary distances"
+        far = (far_fence(t, spread) - center) / spread
+        return Scale(center, spread, how, cutoff, rule, max(far, z_q))
 
-    def standardise(self, scores):
-        # The normal quantile of the chi-square probability, from the log tail so that huge distances
-        # keep their order instead of all becoming infinite.
-        return -special.ndtri_exp(stats.chi2.logsf(scores, self.df))
+    def _model_scale(self) -> tuple[float, float]:
+        center = float(np.log(stats.chi2.ppf(0.5, self.df)))
+        spread = (float(np.log(stats.chi2.ppf(self.cutoff, self.df))) - center) / float(stats.norm.ppf(self.cutoff))
+        return center, spread
+
+    def _regularise(self, scores):
+        return np.log(np.maximum(np.asarray(scores, dtype=float), 1e-300))
+
+    def _unregularise(self, t):
+        return float(np.exp(t))
+
+    def _rule_units(self) -> str:
+        return "log distance"
+
+    def standardise(self, scores, scale=None):
+        # Kriegel et al. (2011) regularise distances by the log, then standardise: z = 0 at the centre and
+        # the normal quantile z_q at the cutoff. Unlike the normal quantile of the chi-square tail, which
+        # grows as the square root of the distance, the log keeps one far-out distance from outweighing
+        # every other method in the combination.
+        scale = scale or self.scale_
+        return (self._regularise(scores) - scale.center) / scale.spread
+
+
+def regularisation(fit: MCDFit) -> dict | None:
+    """The MRCD regularisation of a fit for the run record (None when the MCD needed none)."""
+    if not fit.regularised:
+        return None
+    from .mcd import KAPPA
+
+    return {"core_search": "minimum regularized covariance determinant (Boudt et al. 2020), identity target",
+            "condition_number_limit": KAPPA, "rho": float(fit.rho),
+            "raw_directions_filled": int(fit.filled), "reweighted_directions_filled": int(fit.reweighted_filled),
+            "fill": "the records' robust spread along each direction in which the core does not vary"}

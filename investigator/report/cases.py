@@ -15,7 +15,8 @@ SIGNS = {"higher": "+", "lower": "-", "typical": "~", "rarer": "rare", "common":
 
 @dataclass
 class Case:
-    rank: int | None     # among the flagged records by consensus (1 = the most unusual); None if not flagged
+    rank: int | None     # the case number: among the flagged records by rank (1 = the most unusual); None if
+    #                      not flagged. The scan's own rank among all records is record["rank"].
     position: int        # 0-based
     record: dict         # result.record(position): scores, flags, column hits, ... (and pattern/group if any)
     explanation: dict    # result.explain()-style dict
@@ -75,7 +76,8 @@ def table_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
     """The cases table: headers and one row per case (numbers as numbers, text as text)."""
     methods = list(result.methods)
     extra = [k for k in ("stability", "pattern", "group") if any(k in c.record for c in cases)]
-    headers = (["rank", "row", "key", "consensus", "votes", "flagged"] + [f"flag_{k}" for k in methods]
+    headers = (["case", "rank", "row", "key", "consensus", "consensus_z", "votes", "flagged", "flag_reason"]
+               + [f"flag_{k}" for k in methods]
                + ["top_features", "column_hits", "nearest_ordinary_change"] + extra
                + ["verdict", "note", "reviewer", "verdict_at", "changed_since_verdict"])
     rows = []
@@ -83,7 +85,8 @@ def table_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
         r, m = c.record, c.match
         entry = m.entry if m is not None else None
         rows.append(
-            [c.rank, r["row"], _plain(r["key"]), r["consensus"], r["votes"], r["flagged"]]
+            [c.rank, r["rank"], r["row"], _plain(r["key"]), r["consensus"], r["consensus_z"], r["votes"], r["flagged"],
+             r["flag_reason"]]
             + [r["flags"][k] for k in methods]
             + [top_text(c.explanation), column_hits_text(r["column_hits"]),
                nearest_text(c.explanation.get("nearest_ordinary"))]

@@ -183,11 +183,11 @@ def _summary(result, review: Review, shown: list[Case], counts: dict, generated:
     if top:
         parts.append(tag("h3", f"The {len(top)} most unusual flagged records"))
         parts.append(table(
-            ["#", "row", "key", "consensus", "votes", "stands out in", "verdict"],
-            [[tag("a", c.rank, href=f"#{c.anchor}"), c.record["row"], c.record["key"],
+            ["#", "rank", "row", "key", "consensus", "votes", "why", "stands out in", "verdict"],
+            [[tag("a", c.rank, href=f"#{c.anchor}"), f"{c.record['rank']:,}", c.record["row"], c.record["key"],
               f"{c.record['consensus']:.3f}", f"{c.record['votes']}/{len(c.record['flags'])}",
-              top_text(c.explanation, 3), _verdict_text(c.match)] for c in top],
-            numeric=(0, 1, 3, 4), nowrap=(2, 6)))
+              c.record["flag_reason"] or "", top_text(c.explanation, 3), _verdict_text(c.match)] for c in top],
+            numeric=(0, 1, 2, 4, 5), nowrap=(3, 8)))
     else:
         parts.append(tag("p", "No record is flagged."))
     parts.append(_img(plots.consensus_plot(result.consensus, result.flagged),
@@ -298,7 +298,7 @@ def _found(result, shown: list[Case], counts: dict) -> Safe:
                    [[k, f"{int(r.flags.sum()):,}", f"{r.flags.mean():.1%}"] for k, r in result.methods.items()],
                    numeric=(1, 2)),
              table(["votes", "records"], [[v, f"{int(c):,}"] for v, c in enumerate(votes)], numeric=(0, 1))]
-    parts.append(_img(plots.method_plots({k: (r.scores, float(r.method.cutoff_), r.flags)
+    parts.append(_img(plots.method_plots({k: (r.scores, float(np.median(r.cutoffs)), r.flags)
                                           for k, r in result.methods.items()}),
                       "Per method: histogram of the scores with the cutoff as a dashed line", "plot-methods"))
     if shown:
@@ -308,13 +308,13 @@ def _found(result, shown: list[Case], counts: dict) -> Safe:
                           "Bar chart of the feature shares of the top cases", "plot-contributions"))
         parts.append(tag("h3", "Flagged records, most unusual first"))
         parts.append(table(
-            ["#", "row", "key", "consensus", "votes", "above the cutoff of", "stands out in", "column hits",
-             "verdict"],
-            [[tag("a", c.rank, href=f"#{c.anchor}"), c.record["row"], c.record["key"],
-              f"{c.record['consensus']:.3f}", f"{c.record['votes']}/{len(voting)}",
+            ["#", "rank", "row", "key", "consensus", "votes", "why", "above the cutoff of", "stands out in",
+             "column hits", "verdict"],
+            [[tag("a", c.rank, href=f"#{c.anchor}"), f"{c.record['rank']:,}", c.record["row"], c.record["key"],
+              f"{c.record['consensus']:.3f}", f"{c.record['votes']}/{len(voting)}", c.record["flag_reason"] or "",
               ", ".join(k for k in result.methods if c.record["flags"].get(k)), top_text(c.explanation, 3),
               ", ".join(sorted({h["column"] for h in c.record["column_hits"]})), _verdict_text(c.match)]
-             for c in shown], numeric=(0, 1, 3, 4), nowrap=(2, 8)))
+             for c in shown], numeric=(0, 1, 2, 4, 5), nowrap=(3, 10)))
         if counts["left"]:
             parts.append(tag("p", f"{counts['left']:,} more flagged records are left out of this report "
                                   f"(--cases {counts['limit']}); the cases table (--out cases.xlsx or cases.csv) "

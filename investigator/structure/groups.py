@@ -42,18 +42,16 @@ the samples.
 
 from __future__ import annotations
 
-import math
 import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 
-LARGE_SHARE = 0.05
-LARGE_MIN = 25
-KINDS_K = 10  # min_samples of the kinds run, and the k of the membership fence
+from .. import sampling
+from ..kinds import LARGE_SHARE, large_size
+
 FAR = 3.0  # a member at over 3x its cluster's median core distance is not a member
 CLOSE = 0.1  # ... with the median taken as at least 0.1 robust SD (exact duplicates have median 0)
-KINDS_SAMPLE = 5_000
 GROUP_SET = 8_000
 FLAGGED_CAP = 4_000
 GROUP = "group"
@@ -63,11 +61,6 @@ ISOLATED = "isolated"
 def min_group_size(n: int) -> int:
     """Smallest group, m: 3 below 150 records, n // 50 up to 249, 5 from 250 records up."""
     return max(3, min(5, n // 50))
-
-
-def large_size(n: int) -> int:
-    """Smallest large cluster among n records: 5% of them, and at least 25."""
-    return max(math.ceil(LARGE_SHARE * n), LARGE_MIN)
 
 
 @dataclass
@@ -121,14 +114,16 @@ class Grouping:
                 "notices": list(self.notices)}
 
 
-def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0) -> Grouping:
-    """Find small groups and large clusters among the records, and each flagged record's pattern.
+def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0, kinds: np.ndarray | None = None) -> Grouping:
+    """Find small groups among the records, and each flagged record's pattern.
 
     Parameters
     ----------
     X : n x p prepared (robust-scaled) features, as ``Features.values``.
     flagged : n booleans, the scan's flags.
     seed : seed of the samples drawn on large data (the same seed gives the same groups).
+    kinds : per record its kind of normal (0-based, from :func:`investigator.kinds.find_kinds`), or None
+        when the records form one kind; kinds are reported as the large clusters.
 
     Returns
     -------
@@ -143,22 +138,18 @@ def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0) -> Groupin
         raise ValueError("X must be finite (prepared features have no missing values)")
     m, big = min_group_size(n), large_size(n)
     params = {"min_group_size": m, "large_cluster_size": big, "large_share": LARGE_SHARE,
-              "kinds_min_samples": KINDS_K, "method": "HDBSCAN (Campello, Moulavi & Sander 2013)"}
+              "method": "HDBSCAN (Campello, Moulavi & Sander 2013)"}
     notices: list[str] = []
     labels = np.full(n, -1)
-    if n < 2 * big:
-        # Two large clusters cannot both fit; look for groups only.
-        notices.append(f"only {n} records: no large clusters looked for (two would need {big} records each)")
-        n_large = 0
-    else:
-        kinds, params["kinds_sample"] = _kinds(X, big, np.random.default_rng([seed, 11]))
-        n_large = int(kinds.max()) + 1
-        labels = kinds
+    n_large = 0
+    if kinds is not None:
+        labels = np.asarray(kinds, dtype=int)
+        n_large = int(labels.max()) + 1
     groups = np.full(n, -1)
     if n <= m:
         notices.append(f"only {n} records: no groups looked for (a group needs {m + 1} records or more)")
     elif flagged.any():
-        groups, params["group_set"] = _groups(X, flagged, m, big, np.random.default_rng([seed, 13]))
+        groups, params["group_set"] = _groups(X, flagged, m, big, seed)
         if params["group_set"] < n:
             notices.append(
                 f"groups were looked for among {params['group_set']:,} of {n:,} records (every flagged "
@@ -173,55 +164,32 @@ def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0) -> Groupin
 def _hdbscan(X: np.ndarray, min_cluster_size: int, min_samples: int) -> np.ndarray:
     from sklearn.cluster import HDBSCAN
 
+    order = sampling.canonical_order(X)  # HDBSCAN breaks ties in input order: give it the content order
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", FutureWarning)  # the default of `copy` is changing; we pass it
         model = HDBSCAN(min_cluster_size=min_cluster_size, min_samples=min_samples, copy=True)
-        return model.fit(X).labels_
+        found = model.fit(X[order]).labels_
+    labels = np.empty(len(X), dtype=int)
+    labels[order] = found
+    return labels
 
 
-def _kinds(X: np.ndarray, big: int, rng: np.random.Generator) -> tuple[np.ndarray, int]:
-    """Large clusters: labels 0..k-1 per record (-1 none), and the sample size used."""
-    n = len(X)
-    sample = np.arange(n) if n <= KINDS_SAMPLE else np.sort(rng.choice(n, KINDS_SAMPLE, replace=False))
-    k = min(KINDS_K, len(sample) - 1)
-    # The share rule applies to the sample: a cluster with 5% of the sample holds about 5% of the data.
-    sample_labels = _hdbscan(X[sample], large_size(len(sample)), k)
-    labels = np.full(n, -1)
-    if sample_labels.max() < 0:
-        return labels, len(sample)
-    index = _search(X[sample], k)
-    core_s = index.kneighbors(None)[0][:, -1]  # each sampled record's k-th nearest other sampled record
-    fences = np.array([_reach(core_s[sample_labels == c]) for c in range(sample_labels.max() + 1)])
-    candidate = np.full(n, -1)
-    core = np.zeros(n)
-    candidate[sample], core[sample] = sample_labels, core_s
-    rest = np.setdiff1d(np.arange(n), sample)
-    if len(rest):
-        dist, idx = index.kneighbors(X[rest])
-        candidate[rest], core[rest] = sample_labels[idx[:, 0]], dist[:, -1]
-    inside = candidate >= 0
-    inside[inside] = core[inside] <= fences[candidate[inside]]
-    labels[inside] = candidate[inside]
-    return labels, len(sample)
-
-
-def _group_set(flagged: np.ndarray, rng: np.random.Generator) -> np.ndarray:
-    """The records clustered for groups: all of them, or every flagged record and a sample of the rest."""
+def _group_set(X: np.ndarray, flagged: np.ndarray, seed: int) -> np.ndarray:
+    """The records clustered for groups: all of them, or every flagged record and a sample of the rest,
+    both drawn by content."""
     n = len(flagged)
     if n <= GROUP_SET:
         return np.arange(n)
     flag_rows, other_rows = np.flatnonzero(flagged), np.flatnonzero(~flagged)
-    if len(flag_rows) > FLAGGED_CAP:
-        flag_rows = rng.choice(flag_rows, FLAGGED_CAP, replace=False)
+    flag_rows = sampling.sample_of(X, flag_rows, FLAGGED_CAP, [seed, 13, 1])
     take = min(len(other_rows), GROUP_SET - len(flag_rows))
-    return np.sort(np.concatenate([flag_rows, rng.choice(other_rows, take, replace=False)]))
+    return np.sort(np.concatenate([flag_rows, sampling.sample_of(X, other_rows, take, [seed, 13, 2])]))
 
 
-def _groups(X: np.ndarray, flagged: np.ndarray, m: int, big: int,
-            rng: np.random.Generator) -> tuple[np.ndarray, int]:
+def _groups(X: np.ndarray, flagged: np.ndarray, m: int, big: int, seed: int) -> tuple[np.ndarray, int]:
     """Small groups: labels 0..g-1 per record (-1 none), and the number of records clustered."""
     n = len(X)
-    rows = _group_set(flagged, rng)
+    rows = _group_set(X, flagged, seed)
     set_labels = _hdbscan(X[rows], m, m)
     labels = np.full(n, -1)
     labels[rows] = set_labels

@@ -50,6 +50,8 @@ class CasesData:
     flags: dict[str, np.ndarray]
     ranking: np.ndarray           # positions by consensus, ties in file order (the engine's own ranking)
     pattern: np.ndarray | None    # "isolated" / "group N" / "" per record, when the result has groups
+    rank: np.ndarray = field(default=None)    # 1 = most unusual; copies share a rank
+    reason: np.ndarray = field(default=None)  # why a flagged record is flagged ("votes", "far beyond ...")
     verdicts: np.ndarray = field(default=None)  # str, "" where there is none
     notes: np.ndarray = field(default=None)
     _lower_keys: np.ndarray | None = None
@@ -139,6 +141,7 @@ def cases_data(result) -> CasesData:
         scores={k: np.asarray(r.scores, dtype=float) for k, r in result.methods.items()},
         flags={k: np.asarray(r.flags, dtype=bool) for k, r in result.methods.items()},
         ranking=np.asarray(result.ranking()), pattern=pattern,
+        rank=np.asarray(result.rank), reason=np.asarray(result.flag_reason, dtype=object),
     )
     data.set_verdicts(result.verdicts, result.notes)
     return data

@@ -12,8 +12,9 @@ from ..widgets.cases_table import CasesTable
 from ..widgets.scan_progress import ScanProgress
 
 HINT = (
-    "consensus 0-1: how strongly the methods together set a record apart (the sort order) · votes: methods "
-    "above their cutoff; FLAG at half or more · pattern: a flag alone (isolated) or in a group · "
+    "rank: 1 = most unusual · consensus 0-1: how strongly the methods together set a record apart, 0.5 at "
+    "their cutoffs · votes: methods above their cutoff; FLAG at half or more, or when one method or the "
+    "methods together are far beyond · pattern: a flag alone (isolated) or in a group · "
     "a flag is a lead, not proof · i hides this, ? all keys"
 )
 VERDICT_FILTERS = (None, NO_VERDICT, "open", "confirmed", "benign", "follow-up")
@@ -96,8 +97,9 @@ class CasesScreen(Screen):
         hit_text = "; ".join(f"{h['column']} {h['rule']}" for h in hits[:3]) or "none"
         verdict = data.verdicts[p] or "none"
         note = f" ({data.notes[p]})" if data.notes[p] else ""
+        flag = f"FLAG ({data.reason[p]})" if data.flagged[p] else "not flagged"
         detail.update(
-            f"{data.keys[p]} (row {data.rows[p]}): {'FLAG' if data.flagged[p] else 'not flagged'}, "
+            f"{data.keys[p]} (row {data.rows[p]}, rank {data.rank[p]:,}): {flag}, "
             f"above the cutoff of {', '.join(which) or 'no method'}. Column hits: {hit_text}. "
             f"Verdict: {verdict}{note}")
 

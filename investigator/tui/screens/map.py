@@ -43,7 +43,8 @@ class MapScreen(Screen):
             return
         flag = "FLAG" if d.flagged[p] else "not flagged"
         self.query_one("#map-status", Static).update(
-            f"At the cursor: {d.keys[p]} (row {d.rows[p]}) · {flag} · consensus {d.consensus[p]:.4f} · "
+            f"At the cursor: {d.keys[p]} (row {d.rows[p]}) · rank {d.rank[p]:,} · {flag} · "
+            f"consensus {d.consensus[p]:.4f} · "
             f"votes {d.votes[p]}/{len(d.methods)} · verdict {d.verdicts[p] or 'none'} · enter opens it"
             + (" · o opens its group" if self.app.group_labels is not None and self.app.group_labels[p] > 0 else ""))
 

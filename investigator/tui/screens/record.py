@@ -111,10 +111,11 @@ class RecordScreen(Screen):
         d, p = self.app.cases, self.position
         verdict = d.verdicts[p] or "none"
         note = f" ({d.notes[p]})" if d.notes[p] else ""
-        flag = "FLAG" if d.flagged[p] else "not flagged"
+        flag = f"FLAG ({d.reason[p]})" if d.flagged[p] else "not flagged"
         self.query_one("#record-head", Static).update(
-            f"Record {d.keys[p]} · row {d.rows[p]} · {flag} · consensus {d.consensus[p]:.4f} · votes "
-            f"{d.votes[p]}/{len(d.methods)} · verdict: {verdict}{note} · {self.index + 1} of {len(self.order)}")
+            f"Record {d.keys[p]} · row {d.rows[p]} · rank {d.rank[p]:,} · {flag} · consensus "
+            f"{d.consensus[p]:.4f} · votes {d.votes[p]}/{len(d.methods)} · verdict: {verdict}{note} · "
+            f"{self.index + 1} of {len(self.order)}")
 
     def _draw(self, e: dict) -> None:
         self.view = e

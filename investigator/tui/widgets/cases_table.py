@@ -131,7 +131,8 @@ class CasesTable(Widget, can_focus=True):
         """(id, header, width) of the columns that fit; the note takes what is left."""
         d = self.data
         key_w = min(max(3, max((len(k) for k in d.keys[self.order[:200]]), default=3)), 16)
-        cols = [("key", "key", key_w), ("flag", "flag", 4), ("consensus", "consensus", 9),
+        rank_w = max(4, len(f"{len(d.keys):,}"))
+        cols = [("rank", "rank", rank_w), ("key", "key", key_w), ("flag", "flag", 4), ("consensus", "consensus", 9),
                 ("votes", "votes", 5)]
         if d.pattern is not None:
             cols.append(("pattern", "pattern", 9))
@@ -150,6 +151,8 @@ class CasesTable(Widget, can_focus=True):
         d = self.data
         if col == "key":
             return d.keys[p]
+        if col == "rank":
+            return f"{d.rank[p]:,}"
         if col == "flag":
             return "FLAG" if d.flagged[p] else ""
         if col == "consensus":
@@ -177,7 +180,7 @@ class CasesTable(Widget, can_focus=True):
         for cid, label, w in cols:
             mark = ("▲" if self.reverse else "▼") if cid == self.sort else ""
             text = (label + mark)[:w]
-            head += (text.rjust(w) if cid in self.data.scores or cid in ("consensus", "votes")
+            head += (text.rjust(w) if cid in self.data.scores or cid in ("rank", "consensus", "votes")
                      else text.ljust(w)) + " "
         out.append(head[:width].ljust(width) + "\n", style="bold underline")
         h = self._body_height()
@@ -187,7 +190,7 @@ class CasesTable(Widget, can_focus=True):
             line = "› " if here else "  "  # the cursor has a symbol too, not only reverse video
             for cid, _, w in cols:
                 text = self._cell(cid, p)[:w]
-                line += (text.rjust(w) if cid in self.data.scores or cid in ("consensus", "votes")
+                line += (text.rjust(w) if cid in self.data.scores or cid in ("rank", "consensus", "votes")
                          else text.ljust(w)) + " "
             style = "reverse" if here and self.has_focus else "bold" if here else ""
             if self.data.flagged[p] and not here:
