@@ -1,17 +1,25 @@
 """Time a full scan against scikit-learn's four estimators run with default settings.
 
     python benchmarks/scan_speed.py [--sizes 10000,100000] [--features 20] [--no-reference]
+                                    [--baseline-src DIR] [--repeat 3]
 
 Data: n x p standard normal records, 1% of them shifted by N(0, 4^2) per feature (planted outliers), seed 0.
 The full scan is investigator.scan() on a DataFrame (preparation, neighbour search, all four methods, the
 combination and the column rules). The reference is MinCovDet, LocalOutlierFactor, NearestNeighbors
 (k-th neighbour distance) and IsolationForest from scikit-learn, defaults, one after another in the same
-process. Prints seconds, the ratio, and ROC AUC on the planted outliers for both. Figures, not a test.
+process. Prints seconds, the ratio, and ROC AUC on the planted outliers for both. With ``--baseline-src``
+(the folder of another checkout, e.g. ``git worktree add ../before <commit>``), the same scan is also
+timed with that version's code in a fresh process, ``--repeat`` times each, and the medians are printed
+side by side. Figures, not a test.
 """
 
 from __future__ import annotations
 
 import argparse
+import os
+import statistics
+import subprocess
+import sys
 import time
 
 import numpy as np
@@ -49,12 +57,45 @@ def reference_run(X: np.ndarray) -> dict[str, tuple[float, np.ndarray]]:
     return out
 
 
+TIMED = """
+import sys, time
+sys.path.insert(0, {bench!r})
+from scan_speed import make_data
+import investigator
+investigator.scan(make_data(500, 3)[0])
+frame, _ = make_data({n}, {p})
+t = time.perf_counter()
+investigator.scan(frame)
+print(time.perf_counter() - t)
+"""
+
+
+def timed_in(src: str, n: int, p: int) -> float:
+    """Seconds of one full scan in a fresh process that imports investigator from ``src``."""
+    code = TIMED.format(bench=os.path.dirname(os.path.abspath(__file__)), n=n, p=p)
+    env = {**os.environ, "PYTHONPATH": src}
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True,
+                         cwd=src)
+    return float(out.stdout.strip().splitlines()[-1])
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--sizes", default="10000,100000")
     parser.add_argument("--features", type=int, default=20)
     parser.add_argument("--no-reference", action="store_true", help="skip the scikit-learn reference run")
+    parser.add_argument("--baseline-src", help="folder of another checkout to time the same scan with")
+    parser.add_argument("--repeat", type=int, default=3)
     args = parser.parse_args()
+    if args.baseline_src:
+        here = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+        for n in (int(s) for s in args.sizes.split(",")):
+            now = [timed_in(here, n, args.features) for _ in range(args.repeat)]
+            before = [timed_in(os.path.abspath(args.baseline_src), n, args.features) for _ in range(args.repeat)]
+            a, b = statistics.median(now), statistics.median(before)
+            print(f"{n:,} x {args.features}: this version {a:.2f} s, baseline {b:.2f} s (medians of "
+                  f"{args.repeat}); {a / b - 1:+.1%}")
+        return
 
     from sklearn.metrics import roc_auc_score
 

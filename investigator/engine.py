@@ -143,7 +143,10 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     run = _run_record(table, options, columns, preparer, search, results, combination, rules, notices,
                       started)
     if kinds is not None:
-        run["kinds"] = kinds.describe()
+        run["kinds"] = {**kinds.describe(), "cutoffs": {
+            k: [float(sc.cutoff) for sc in r.kinds.scales] for k, r in results.items() if r.kinds is not None},
+            "far_beyond_z": {k: [float(sc.far) for sc in r.kinds.scales] for k, r in results.items()
+                             if r.kinds is not None}}
     if reference is not None:
         run["reference"] = {"input": {**reference.source.as_dict(), "rows": ref_info["rows"]},
                             "used": int(reference.n_rows), **{k: v for k, v in ref_info.items() if k != "rows"}}

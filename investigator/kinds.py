@@ -157,7 +157,10 @@ def find_kinds(X: np.ndarray, columns: np.ndarray, mcd: FastMCD, *, seed: int = 
     labels = _candidates(Xs, big_s)
     if labels.max() < 1:
         return None
-    fits = [mcd.fit(Xs[labels == c], spread_of=Xs) for c in range(labels.max() + 1)]
+    # While the kinds are found, fits start from fewer random starts (each is refined by concentration steps
+    # and refitted in full at the end).
+    quick = FastMCD(n_starts=max(50, mcd.n_starts // 10), seed=mcd.seed, sample_above=mcd.sample_above)
+    fits = [quick.fit(Xs[labels == c], spread_of=Xs) for c in range(labels.max() + 1)]
     labels, fits, rounds = _concentrate(Xs, labels, fits, mcd, big_s)
     merged = 0
     while len(fits) >= 2:  # kinds whose ordinary regions overlap are one kind: merge the worst pair
@@ -169,7 +172,7 @@ def find_kinds(X: np.ndarray, columns: np.ndarray, mcd: FastMCD, *, seed: int = 
             break
         labels = np.where(labels == b, a, labels)
         labels = np.unique(labels, return_inverse=True)[1]
-        fits = [mcd.fit(Xs[labels == k], spread_of=Xs) for k in range(labels.max() + 1)]
+        fits = [quick.fit(Xs[labels == k], spread_of=Xs) for k in range(labels.max() + 1)]
         labels, fits, more = _concentrate(Xs, labels, fits, mcd, big_s)
         rounds += more
         merged += 1
@@ -178,7 +181,7 @@ def find_kinds(X: np.ndarray, columns: np.ndarray, mcd: FastMCD, *, seed: int = 
             notices.append("dense regions were found, but their ordinary ranges overlap; they are treated as one "
                            "kind of normal")
         return None
-    bic_kinds, bic_one = _bic(Xs, labels, fits), _bic(Xs, np.zeros(len(Xs), dtype=int), [mcd.fit(Xs)])
+    bic_kinds, bic_one = _bic(Xs, labels, fits), _bic(Xs, np.zeros(len(Xs), dtype=int), [quick.fit(Xs)])
     params = {"method": "HDBSCAN candidates, nearest-kind concentration steps (TCLUST), BIC against one fit",
               "large_cluster_size": big, "sample": int(len(rows)), "rounds": rounds,
               "bic_kinds": float(bic_kinds), "bic_one": float(bic_one), "merged": merged}
