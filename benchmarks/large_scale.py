@@ -26,9 +26,9 @@ CHILD = """
 import json, resource, sys, time
 import numpy as np
 from sklearn.metrics import roc_auc_score
-from investigator.engine import run_scan
-from investigator.options import ScanOptions
-from investigator.table import load_table
+from investigator.pipeline.engine import run_scan
+from investigator.pipeline.options import ScanOptions
+from investigator.io.tables import load_table
 path, out, exact, map_method, n_planted = sys.argv[1], sys.argv[2], sys.argv[3] == "1", sys.argv[4], int(sys.argv[5])
 t = time.perf_counter()
 table = load_table(path)

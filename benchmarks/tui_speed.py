@@ -119,7 +119,7 @@ def main() -> None:
     if args.child:
         child(*args.child)
         return
-    from investigator.demo import write_demo
+    from investigator.io.demo import write_demo
 
     demo = write_demo(Path(tempfile.mkdtemp(prefix="tui-speed-demo-")))
     first = min(launch("first", demo) for _ in range(3))

@@ -17,23 +17,22 @@ __all__ = ["InputError", "ScanOptions", "ScanResult", "__version__", "check", "s
 def __getattr__(name: str):
     # Deferred so that `investigator --help` and the first TUI frame do not pay for scikit-learn.
     if name in ("scan", "check"):
-        from . import engine
-
+        from investigator.pipeline import engine
         return getattr(engine, name)
     if name == "scan_dataset":  # the Dask path (docs/large.md)
-        from .dask_scan import scan_dataset
+        from investigator.pipeline.dask_engine import scan_dataset
 
         return scan_dataset
     if name == "ScanResult":
-        from .result import ScanResult
+        from investigator.pipeline.result import ScanResult
 
         return ScanResult
     if name == "ScanOptions":
-        from .options import ScanOptions
+        from investigator.pipeline.options import ScanOptions
 
         return ScanOptions
     if name == "InputError":
-        from .errors import InputError
+        from investigator.errors import InputError
 
         return InputError
     raise AttributeError(f"module 'investigator' has no attribute '{name}'")

@@ -8,8 +8,7 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from investigator.errors import InputError
-from investigator.screens.benford import (
+from investigator.checks.benford import (
     MAD_RANGES,
     benford_test,
     conformity,
@@ -19,6 +18,7 @@ from investigator.screens.benford import (
     mean_absolute_deviation,
     min_values_for,
 )
+from investigator.errors import InputError
 
 
 def log_uniform(n, decades, seed):

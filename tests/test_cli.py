@@ -13,8 +13,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import investigator.engine
-from investigator.cli import main
+import investigator.pipeline.engine
+from investigator.cli.main import main
 
 N = 36
 
@@ -262,7 +262,7 @@ def _broken_scan(*args, **kwargs):
 def test_internal_error_exits_1_with_one_line(deliveries, monkeypatch, capsys):
     path, _ = deliveries
     monkeypatch.delenv("INVESTIGATOR_DEBUG", raising=False)
-    monkeypatch.setattr(investigator.engine, "scan", _broken_scan)
+    monkeypatch.setattr(investigator.pipeline.engine, "scan", _broken_scan)
     assert main(["scan", str(path), "--quiet"]) == 1
     _, err = capsys.readouterr()
     assert_one_line_error(err, "internal error", "RuntimeError", "simulated fault", "INVESTIGATOR_DEBUG")
@@ -271,7 +271,7 @@ def test_internal_error_exits_1_with_one_line(deliveries, monkeypatch, capsys):
 def test_internal_error_traceback_on_request(deliveries, monkeypatch):
     path, _ = deliveries
     monkeypatch.setenv("INVESTIGATOR_DEBUG", "1")
-    monkeypatch.setattr(investigator.engine, "scan", _broken_scan)
+    monkeypatch.setattr(investigator.pipeline.engine, "scan", _broken_scan)
     with pytest.raises(RuntimeError, match="simulated fault"):
         main(["scan", str(path), "--quiet"])
 

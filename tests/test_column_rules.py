@@ -6,7 +6,7 @@ import pytest
 from scipy import stats
 
 import investigator
-from investigator.features import MAD_TO_SD
+from investigator.prepare.features import MAD_TO_SD
 
 
 def hits_of(result, rule):

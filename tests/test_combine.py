@@ -7,7 +7,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import investigator
-from investigator.combine import combine, min_votes_for
+from investigator.pipeline.combine import combine, min_votes_for
 
 
 def test_min_votes_is_half_of_the_methods_rounded_up():
@@ -65,7 +65,7 @@ def test_flags_survive_a_failing_density_method():
 
 
 def test_a_cluster_of_a_tenth_of_the_records_is_a_kind_of_normal():
-    # 40 of 400 records sitting together are 10% of the data: by the documented rule (docs/structure.md:
+    # 40 of 400 records sitting together are 10% of the data: by the documented rule (docs/groups.md:
     # at least 5% and 25 records) that is a second kind of normal, not 40 outliers.
     rng = np.random.default_rng(3)
     frame = pd.DataFrame(np.vstack([rng.normal(size=(360, 3)), rng.normal(8, 1, size=(40, 3))]),

@@ -17,11 +17,11 @@ import pytest
 from planted import planted_outliers
 
 import investigator
-from investigator.cli import main
-from investigator.dask_scan import RUN_FILE, draw_sample, scan_dataset
-from investigator.options import ScanOptions
-from investigator.scan_model import ScanModel
-from investigator.table import Source, Table, load_table
+from investigator.cli.main import main
+from investigator.io.tables import Source, Table, load_table
+from investigator.pipeline.dask_engine import RUN_FILE, draw_sample, scan_dataset
+from investigator.pipeline.options import ScanOptions
+from investigator.pipeline.scan_model import ScanModel
 
 distributed = pytest.importorskip("distributed")
 
@@ -206,7 +206,7 @@ def test_a_duplicate_key_across_partitions_names_the_rows(tmp_path, client):
 def test_the_demo_with_two_kinds_of_normal_scores_alike_on_dask(tmp_path, client):
     # The demo data have two kinds of normal; on Dask and in memory alike each record is judged within the
     # kind it is nearest to, so scores and flags are the same.
-    from investigator.demo import DEMO_ID, write_demo
+    from investigator.io.demo import DEMO_ID, write_demo
 
     table = load_table(write_demo(tmp_path))
     data = _write_parts(tmp_path / "ds", table.frame, 4)

@@ -3,8 +3,8 @@
 import numpy as np
 
 import investigator
-from investigator.cli import main
-from investigator.demo import DEMO_ID, make_demo, write_demo
+from investigator.cli.main import main
+from investigator.io.demo import DEMO_ID, make_demo, write_demo
 
 
 def test_planted_cases_are_flagged_and_ranked_high(tmp_path):

@@ -6,8 +6,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from investigator.checks.duplicates import duplicates_on, exact_duplicates
 from investigator.errors import InputError
-from investigator.screens.duplicates import duplicates_on, exact_duplicates
 
 
 @pytest.fixture

@@ -10,10 +10,9 @@ from scipy.spatial.distance import cdist
 from shapley import shapley_values
 
 import investigator
-from investigator.cli import main
+from investigator.cli.main import main
 from investigator.explain.contributions import method_contributions
-from investigator.explain.stability import stability_label
-from investigator.explain.text import explanation_text
+from investigator.output.explanation import explanation_text, stability_label
 
 
 def shapley_by_definition(r, P):

@@ -9,11 +9,11 @@ import pandas as pd
 import pytest
 
 import investigator
-from investigator import kinds as kinds_module
-from investigator.kinds import find_kinds
 from investigator.methods.mcd import FastMCD
 from investigator.structure import find_groups, group_profile
 from investigator.structure import groups as groups_module
+from investigator.structure import kinds as kinds_module
+from investigator.structure.kinds import find_kinds
 
 A, B, EIGHT, FIVE = np.arange(0, 600), np.arange(600, 900), np.arange(900, 908), np.arange(908, 913)
 

@@ -1,6 +1,6 @@
 """Bad input gives a one-line InputError naming the file or column; odd but valid input loads correctly.
 
-Every case runs twice: through the CLI (``investigator.cli.main``: exit code 2, exactly one line on stderr
+Every case runs twice: through the CLI (``investigator.cli.main.main``: exit code 2, exactly one line on stderr
 that names what is wrong, no traceback) and through the API (``investigator.scan`` raises InputError).
 All data is invented here with a fixed seed; every scan is a few dozen rows.
 """
@@ -19,7 +19,7 @@ from numpy.testing import assert_allclose
 
 import investigator
 from investigator import InputError
-from investigator.cli import main
+from investigator.cli.main import main
 
 N = 40
 

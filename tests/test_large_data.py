@@ -17,9 +17,9 @@ import investigator
 from investigator.errors import InputError
 from investigator.explain import view
 from investigator.explain.nearest import _best_pair
+from investigator.io.tables import load_table
 from investigator.methods.mcd import FastMCD
-from investigator.neighbors import NeighborSearch
-from investigator.table import load_table
+from investigator.methods.neighbors import NeighborSearch
 
 
 def _approximations(result) -> dict:

@@ -1,4 +1,4 @@
-"""The 2-D map (investigator.structure.map) and its drawing (investigator.structure.plot)."""
+"""The 2-D map (investigator.structure.map) and its drawing (investigator.output.map_plot)."""
 
 import warnings
 
@@ -9,8 +9,9 @@ from sklearn.decomposition import PCA
 from sklearn.manifold import trustworthiness
 
 import investigator
-from investigator.demo import DEMO_ID, write_demo
-from investigator.structure import draw_map, embed, find_groups
+from investigator.io.demo import DEMO_ID, write_demo
+from investigator.output.map_plot import draw_map
+from investigator.structure import embed, find_groups
 from investigator.structure import map as map_module
 
 

@@ -16,11 +16,11 @@ from scipy.spatial.distance import cdist
 
 import investigator
 from fixtures import labelled, messy
-from investigator.combine import consensus_of, rank_of
-from investigator.features import robust_scale
 from investigator.methods.mcd import mrcd_covariance, mrcd_rho
 from investigator.methods.tails import chi2_logsf, f_logsf
-from investigator.tui.cases_model import cases_data
+from investigator.pipeline.combine import consensus_of, rank_of
+from investigator.prepare.features import robust_scale
+from investigator.tui.models.cases import cases_data
 
 
 def _finite(result):
@@ -222,7 +222,7 @@ def test_a_broken_relation_only_one_method_sees_is_flagged_and_says_why(tmp_path
 
     html = write_report(result, tmp_path / "r.html").read_text()
     assert html.count("far beyond robust_distance") >= 3
-    from investigator.explain.text import explanation_text
+    from investigator.output.explanation import explanation_text
 
     assert "far beyond its cutoff" in explanation_text(explained)
 

@@ -8,7 +8,7 @@ from sklearn.ensemble import IsolationForest
 from sklearn.neighbors import LocalOutlierFactor
 
 import investigator
-from investigator.neighbors import NeighborSearch
+from investigator.methods.neighbors import NeighborSearch
 from investigator.sampling import canonical_order
 
 

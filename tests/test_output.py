@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 
 import investigator
-from investigator.cli import main
+from investigator.cli.main import main
 from investigator.methods import METHOD_KEYS
 
 

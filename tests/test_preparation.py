@@ -5,8 +5,8 @@ import pandas as pd
 import pytest
 
 import investigator
-from investigator.features import MAD_TO_SD, quartile_skewness
-from investigator.roles import infer_column
+from investigator.prepare.features import MAD_TO_SD, quartile_skewness
+from investigator.prepare.roles import infer_column
 
 
 def role(values):

@@ -26,8 +26,8 @@ from openpyxl import load_workbook
 from PIL import Image
 
 import investigator
-from investigator.cli import main
-from investigator.demo import DEMO_ID, write_demo
+from investigator.cli.main import main
+from investigator.io.demo import DEMO_ID, write_demo
 from investigator.report import write_report
 from investigator.report.plots import FLAGGED, ORDINARY
 from investigator.review.matching import fingerprint, record_values

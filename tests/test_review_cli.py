@@ -18,7 +18,7 @@ import pandas as pd
 import pytest
 from review_data import N, invoices  # noqa: F401  (shared invented data)
 
-from investigator.cli import main
+from investigator.cli.main import main
 from investigator.review import VERDICTS, default_store_path
 
 

@@ -26,10 +26,10 @@ from review_data import N  # noqa: F401  (shared invented data)
 from review_data import invoices as _invoices
 
 from investigator.errors import InputError
+from investigator.io.tables import load_table
 from investigator.review import VERDICTS, Case, ReviewStore, default_store_path, group_case
 from investigator.review import store as store_module
 from investigator.review.matching import fingerprint, match_store, record_case, record_values
-from investigator.table import load_table
 
 
 def invoices(n: int = N, seed: int = 5) -> pd.DataFrame:

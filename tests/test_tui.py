@@ -11,8 +11,8 @@ pytest.importorskip("textual")
 
 from tui_helpers import run_async, screen_text, settle, wait_until  # noqa: E402
 
-from investigator.demo import DEMO_ID, write_demo  # noqa: E402
-from investigator.options import ScanOptions  # noqa: E402
+from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402
+from investigator.pipeline.options import ScanOptions  # noqa: E402
 from investigator.review.matching import record_case  # noqa: E402
 from investigator.review.store import ReviewStore, default_store_path  # noqa: E402
 from investigator.tui.app import InvestigatorApp  # noqa: E402
@@ -268,7 +268,7 @@ def held_scan(tmp_path, monkeypatch):
     depend on how fast this machine scans."""
     import threading
 
-    import investigator.engine as engine
+    import investigator.pipeline.engine as engine
 
     rng = np.random.default_rng(7)
     frame = pd.DataFrame(rng.normal(size=(20_000, 8)), columns=[f"x{i}" for i in range(8)])
@@ -329,7 +329,7 @@ async def test_a_running_scan_can_be_cancelled(tmp_path, monkeypatch):
 
 # -- the command line -----------------------------------------------------------------------------------------
 def test_open_is_a_command_and_demo_without_a_terminal_prints_the_summary(capsys):
-    from investigator.cli import main
+    from investigator.cli.main import main
 
     with pytest.raises(SystemExit) as exc:
         main(["open", "--help"])
@@ -350,7 +350,7 @@ async def test_a_bad_option_shows_one_line_in_the_ui(demo):
 async def test_pattern_column_and_filter_when_the_result_has_groups(demo):
     from types import SimpleNamespace
 
-    from investigator.tui.cases_model import cases_data
+    from investigator.tui.models.cases import cases_data
 
     app = demo_app(demo)
     async with app.run_test(size=(120, 40)) as pilot:

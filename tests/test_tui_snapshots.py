@@ -12,8 +12,8 @@ pytest.importorskip("pytest_textual_snapshot")
 
 from tui_helpers import settle, wait_until  # noqa: E402
 
-from investigator.demo import DEMO_ID, write_demo  # noqa: E402
-from investigator.options import ScanOptions  # noqa: E402
+from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402
+from investigator.pipeline.options import ScanOptions  # noqa: E402
 from investigator.tui.app import InvestigatorApp  # noqa: E402
 
 SIZES = [(80, 24), (120, 40)]

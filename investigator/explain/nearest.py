@@ -64,7 +64,7 @@ def nearest_ordinary(result, i: int) -> dict | None:
 
 
 def _fit_of(result, i: int):
-    from .contributions import robust_fit_labels
+    from investigator.explain.contributions import robust_fit_labels
 
     fits, labels = robust_fit_labels(result, np.array([i]))
     return fits[int(labels[0])]

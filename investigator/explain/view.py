@@ -20,10 +20,10 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..features import Features
-from ..roles import CATEGORICAL
-from .contributions import method_contributions, shares
-from .nearest import nearest_ordinary
+from investigator.explain.contributions import method_contributions, shares
+from investigator.explain.nearest import nearest_ordinary
+from investigator.prepare.features import Features
+from investigator.prepare.roles import CATEGORICAL
 
 POINTS_AT = 0.25
 TOP = 5

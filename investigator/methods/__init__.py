@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-from .base import Method
-from .isolation import Isolation
-from .local_density import LocalDensity
-from .neighbor_distance import NeighborDistance
-from .robust_distance import RobustDistance
+from investigator.methods.base import Method
+from investigator.methods.isolation import Isolation
+from investigator.methods.local_density import LocalDensity
+from investigator.methods.neighbor_distance import NeighborDistance
+from investigator.methods.robust_distance import RobustDistance
 
 METHODS: dict[str, type[Method]] = {
     RobustDistance.key: RobustDistance,

@@ -22,7 +22,7 @@ with c the smallest positive reference score, whenever a reference score is zero
 **Far beyond.** A record whose regularised score lies beyond the far-out fence of the reference records'
 regularised scores (:func:`upper_fence`, its width taken as at least 1.349 spreads, that of a normal, so
 tied scores cannot shrink the fence), is far beyond anything the method sees among ordinary records, and
-the combination lets that method flag it alone (:mod:`investigator.combine`). Since z is linear in the
+the combination lets that method flag it alone (:mod:`investigator.pipeline.combine`). Since z is linear in the
 regularised score, this is the same fence on the z-values; ``Scale.far`` holds it as a z-value.
 
 Fitting returns everything scoring needs in a frozen :class:`Scale`; scoring never changes a fitted
@@ -38,7 +38,7 @@ from math import sqrt
 import numpy as np
 from scipy import special, stats
 
-from ..features import robust_scale
+from investigator.prepare.features import robust_scale
 
 FAR_OUT = 3.0  # the far-out fence: Q3 + 3 IQR (Tukey), or 3 x twice the upper semi-IQR when wider
 NORMAL_IQR = 1.3489795003921634  # interquartile range of the standard normal

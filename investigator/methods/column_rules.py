@@ -17,7 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..features import Features
+from investigator.prepare.features import Features
 
 RULES = ("three_sigma", "modified_z", "boxplot_fence")
 MODIFIED_Z = 3.5

@@ -21,9 +21,9 @@ from __future__ import annotations
 import numpy as np
 from scipy import linalg, stats
 
-from ..errors import InputError
-from .base import Method, Scale
-from .tails import f_logsf, normal_quantile_of_tail
+from investigator.errors import InputError
+from investigator.methods.base import Method, Scale
+from investigator.methods.tails import f_logsf, normal_quantile_of_tail
 
 _RCOND = 1e-12  # smallest eigenvalue / largest below which the covariance counts as singular
 

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .. import sampling
-from .base import Method
+from investigator import sampling
+from investigator.methods.base import Method
 
 
 class Isolation(Method):

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .base import Method
+from investigator.methods.base import Method
 
 
 class LocalDensity(Method):

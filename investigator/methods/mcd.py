@@ -30,7 +30,7 @@ hyperplane (or at one point): every h-subset of them has a singular covariance a
 **Degenerate directions.** Whether or not the search needed the MRCD, the raw scatter is S(H) with each
 direction in which it is degenerate given the spread that all the records have along it
 (:func:`fill_degenerate`): a direction where the core's variance is below 1/1000 of the table's robust
-spread there (the fallback chain of :func:`investigator.features.robust_scale` applied to the records'
+spread there (the fallback chain of :func:`investigator.prepare.features.robust_scale` applied to the records'
 projections) is one where ties put the core on a point, not one the data are tight in; there the table's
 own spread is used. A direction in which the whole table is tight (an exact relation between columns)
 keeps the core's variance. The reweighting step then takes the records within the chi-square cutoff of
@@ -47,7 +47,7 @@ from math import comb
 import numpy as np
 from scipy import stats
 
-from .. import sampling
+from investigator import sampling
 
 SAMPLE_ABOVE = 100_000  # records; above this the raw MCD is searched on a random sample (not with exact)
 SAMPLE_SIZE = 50_000
@@ -129,7 +129,7 @@ def fill_degenerate(S: np.ndarray, X: np.ndarray, table: np.ndarray | None = Non
 
     A direction u (an eigenvector of S, variance lambda) is degenerate when lambda is below ``DEGENERATE``
     (1/1000) of v = the squared robust spread of all records of X projected on u (the fallback chain of
-    :func:`investigator.features.robust_scale`): the core has (almost) no spread where the table has plenty,
+    :func:`investigator.prepare.features.robust_scale`): the core has (almost) no spread where the table has plenty,
     as when over half the records share a value (zero discount, code 1). Its variance becomes v. A direction
     in which the table itself is tight (amount = quantity x unit price, to the cent) is not degenerate, and
     keeps the core's variance. ``table``: further records (the whole table, for a kind of normal fitted on
@@ -137,7 +137,7 @@ def fill_degenerate(S: np.ndarray, X: np.ndarray, table: np.ndarray | None = Non
     the table's spread, and one that varies within the kind but not in its core on the kind's own. Returns
     the filled matrix and the number of directions filled.
     """
-    from ..features import robust_scale
+    from investigator.prepare.features import robust_scale
 
     w, V = np.linalg.eigh(S)
     proj = X @ V
@@ -414,7 +414,7 @@ def _deterministic_starts(X: np.ndarray, h: int) -> list[np.ndarray]:
     seed); these do not depend on the seed or on the order of the rows."""
     from scipy import stats as st
 
-    from ..features import robust_scale
+    from investigator.prepare.features import robust_scale
 
     n, p = X.shape
     center = np.median(X, axis=0)

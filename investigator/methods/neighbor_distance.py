@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from .base import Method
+from investigator.methods.base import Method
 
 
 class NeighborDistance(Method):

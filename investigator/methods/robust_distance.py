@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 from scipy import stats
 
-from .base import Method, Scale, far_fence, upper_fence
-from .mcd import SAMPLE_ABOVE, FastMCD, MCDFit, sq_distances
+from investigator.methods.base import Method, Scale, far_fence, upper_fence
+from investigator.methods.mcd import SAMPLE_ABOVE, FastMCD, MCDFit, sq_distances
 
 
 class RobustDistance(Method):
@@ -31,7 +31,7 @@ class RobustDistance(Method):
 
     Fitted attributes: ``mcd_`` (:class:`MCDFit`), ``columns_``, ``precision_`` (inverse covariance),
     ``scale_``, ``reference_scores_``. Kinds of normal (one fit per large cluster) are kept apart, in
-    :class:`investigator.kinds.KindsOfNormal`; this object never changes after ``fit``.
+    :class:`investigator.structure.kinds.KindsOfNormal`; this object never changes after ``fit``.
     """
 
     key = "robust_distance"
@@ -142,7 +142,7 @@ def regularisation(fit: MCDFit) -> dict | None:
     """The MRCD regularisation of a fit for the run record (None when the MCD needed none)."""
     if not fit.regularised:
         return None
-    from .mcd import KAPPA
+    from investigator.methods.mcd import KAPPA
 
     return {"core_search": "minimum regularized covariance determinant (Boudt et al. 2020), identity target",
             "condition_number_limit": KAPPA, "rho": float(fit.rho),

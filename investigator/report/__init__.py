@@ -12,7 +12,7 @@ from __future__ import annotations
 from datetime import UTC, datetime
 from pathlib import Path
 
-from ..errors import InputError
+from investigator.errors import InputError
 
 FORMATS = (".html", ".htm", ".xlsx", ".csv")
 DEFAULT_CASES = 50
@@ -38,7 +38,7 @@ def write_report(result, out: str | Path, *, cases: int = DEFAULT_CASES, store: 
     ``generated``: the generation time to print (default: now, UTC), the only line that differs between
     two reports of the same scan.
     """
-    from .reviews import read_review
+    from investigator.report.reviews import read_review
 
     path = Path(out)
     check_report_path(path)
@@ -49,13 +49,13 @@ def write_report(result, out: str | Path, *, cases: int = DEFAULT_CASES, store: 
     tmp = path.with_name(path.name + ".part")
     try:
         if suffix in (".html", ".htm"):
-            from .html import render_html
+            from investigator.report.html import render_html
 
             when = generated or datetime.now(UTC).replace(microsecond=0).isoformat()
             tmp.write_text(render_html(result, review, cases=cases, generated=when), encoding="utf-8")
         else:
-            from .cases import build_cases, table_rows
-            from .sheet import write_csv, write_xlsx
+            from investigator.report.cases import build_cases, table_rows
+            from investigator.report.sheet import write_csv, write_xlsx
 
             headers, rows = table_rows(result, build_cases(result, review))
             (write_csv if suffix == ".csv" else write_xlsx)(tmp, headers, rows)

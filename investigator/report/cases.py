@@ -7,8 +7,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..explain.text import _fmt
-from ..explain.view import top_features_text
+from investigator.explain.view import top_features_text
+from investigator.output.explanation import _fmt
 
 SIGNS = {"higher": "+", "lower": "-", "typical": "~", "rarer": "rare", "common": "common"}
 
@@ -35,7 +35,7 @@ def flagged_positions(result) -> list[int]:
 def build_cases(result, review, limit: int | None = None) -> list[Case]:
     """The first ``limit`` flagged records by consensus, then every other record with a verdict (flagged ones
     beyond the limit first, all by consensus): a verdict is part of the record of the investigation."""
-    from ..explain.view import explain_positions
+    from investigator.explain.view import explain_positions
 
     flagged = flagged_positions(result)
     rank = {i: n for n, i in enumerate(flagged, 1)}

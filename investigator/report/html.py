@@ -13,12 +13,12 @@ import numbers
 
 import numpy as np
 
-from ..explain.text import _fmt, _headline, _typical
-from ..summary import CAUTION
-from . import plots
-from .cases import Case, build_cases, column_hits_text, nearest_text, top_text
-from .markup import Safe, definitions, esc, items, join, share_bar, table, tag
-from .reviews import Review
+from investigator.output.explanation import _fmt, _headline, _typical
+from investigator.output.summary import CAUTION
+from investigator.report import plots
+from investigator.report.cases import Case, build_cases, column_hits_text, nearest_text, top_text
+from investigator.report.markup import Safe, definitions, esc, items, join, share_bar, table, tag
+from investigator.report.reviews import Review
 
 TOP_SUMMARY = 10   # cases listed in the summary
 TOP_PLOTTED = 10   # cases in the contributions chart

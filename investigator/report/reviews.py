@@ -5,7 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..errors import InputError
+from investigator.errors import InputError
 
 
 @dataclass
@@ -36,7 +36,7 @@ class Review:
 def store_for(result, store: str | Path | None = None) -> Path | None:
     """The store to read: ``store`` if given (it must exist), else the one the scan read, else the default
     beside the data file; None for a data frame."""
-    from ..review.store import default_store_path
+    from investigator.review.store import default_store_path
 
     if store is not None:
         path = Path(store)
@@ -52,9 +52,9 @@ def store_for(result, store: str | Path | None = None) -> Path | None:
 
 def read_review(result, store: str | Path | None = None) -> Review:
     """Read the store (if there is one) and match its verdicts to the records of ``result``."""
-    from ..review.commands import case_rows
-    from ..review.matching import match_entries
-    from ..review.store import ReviewStore
+    from investigator.review.matching import match_entries
+    from investigator.review.store import ReviewStore
+    from investigator.review.verdicts import case_rows
 
     path = store_for(result, store)
     if path is None or not path.exists():

@@ -10,7 +10,7 @@ from __future__ import annotations
 import csv
 from pathlib import Path
 
-from ..export import neutralise
+from investigator.io.writers import neutralise
 
 XLSX_CELL_LIMIT = 32_767  # characters in one cell (Excel specifications and limits)
 

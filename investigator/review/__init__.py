@@ -4,6 +4,6 @@
 current table (by key, or by content fingerprint without one). Nothing here imports pandas at import time.
 """
 
-from .store import VERDICTS, Case, Entry, ReviewStore, default_store_path, group_case
+from investigator.review.store import VERDICTS, Case, Entry, ReviewStore, default_store_path, group_case
 
 __all__ = ["VERDICTS", "Case", "Entry", "ReviewStore", "default_store_path", "group_case"]

@@ -29,8 +29,8 @@ from datetime import date, datetime, time
 import numpy as np
 import pandas as pd
 
-from ..table import Table
-from .store import Case, Entry, ReviewStore, key_case_id
+from investigator.io.tables import Table
+from investigator.review.store import Case, Entry, ReviewStore, key_case_id
 
 HINT_LIMIT = 20  # disappeared verdicts searched for a near match: a full pass each, so a bounded number
 

@@ -21,7 +21,7 @@ from dataclasses import asdict, dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
-from ..errors import InputError
+from investigator.errors import InputError
 
 # Our own states, plain words. `open` exists because history is append-only: it is how a reviewer withdraws
 # a verdict set by mistake (or reopens a case) without deleting anything.

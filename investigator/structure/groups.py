@@ -47,8 +47,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .. import sampling
-from ..kinds import LARGE_SHARE, large_size
+from investigator import sampling
+from investigator.structure.kinds import LARGE_SHARE, large_size
 
 FAR = 3.0  # a member at over 3x its cluster's median core distance is not a member
 CLOSE = 0.1  # ... with the median taken as at least 0.1 robust SD (exact duplicates have median 0)
@@ -122,7 +122,7 @@ def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0, kinds: np.
     X : n x p prepared (robust-scaled) features, as ``Features.values``.
     flagged : n booleans, the scan's flags.
     seed : seed of the samples drawn on large data (the same seed gives the same groups).
-    kinds : per record its kind of normal (0-based, from :func:`investigator.kinds.find_kinds`), or None
+    kinds : per record its kind of normal (0-based, from :func:`investigator.structure.kinds.find_kinds`), or None
         when the records form one kind; kinds are reported as the large clusters.
 
     Returns

@@ -22,8 +22,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from ..features import MISSING_LEVEL, Features
-from ..roles import CATEGORICAL
+from investigator.prepare.features import MISSING_LEVEL, Features
+from investigator.prepare.roles import CATEGORICAL
 
 SIMILAR = 0.5  # within half a robust SD (or a share ratio within e^0.5): no clear difference
 SHARED = 0.5  # a column the scan did not use is shown when half the group shares one value ...

@@ -13,10 +13,10 @@ from textual.binding import Binding
 from textual.reactive import reactive
 from textual.worker import Worker, WorkerState
 
-from . import jobs
-from .screens.cases import CasesScreen
-from .screens.columns import ColumnsScreen
-from .screens.map import MapScreen
+from investigator.tui import jobs
+from investigator.tui.screens.cases import CasesScreen
+from investigator.tui.screens.columns import ColumnsScreen
+from investigator.tui.screens.map import MapScreen
 
 # Absolute, so subclasses elsewhere (the benchmark) find it; it ships as package data (pyproject).
 STYLES = Path(__file__).with_name("investigator.tcss")
@@ -52,7 +52,7 @@ class InvestigatorApp(App):
         self.autoscan = autoscan
         self.store_option = store
         if show_hint is None:  # shown until the user dismisses it once ('i'), then remembered
-            from .settings import hint_seen
+            from investigator.tui.settings import hint_seen
 
             show_hint = not hint_seen()
         self.show_hint = show_hint
@@ -96,7 +96,7 @@ class InvestigatorApp(App):
         if self.token is not None:
             self.notify("A scan is running (esc cancels it).", severity="warning")
             return
-        from ..errors import InputError
+        from investigator.errors import InputError
 
         try:
             options = self.scan_options()
@@ -133,7 +133,7 @@ class InvestigatorApp(App):
             handler(worker.result if state == WorkerState.SUCCESS else None, worker.error)
 
     def _message(self, error: BaseException) -> str:
-        from ..errors import InputError
+        from investigator.errors import InputError
 
         if isinstance(error, InputError):
             return str(error).replace("\n", " ")
@@ -143,7 +143,7 @@ class InvestigatorApp(App):
         if error is not None:
             self.last_error = self.load_error = self._message(error)
             return
-        from .columns_model import ColumnChoices
+        from investigator.tui.models.columns import ColumnChoices
 
         self.base_options = loaded.options
         self.choices = ColumnChoices.start(loaded.rows, loaded.options.log)
@@ -162,8 +162,8 @@ class InvestigatorApp(App):
                 self.last_error = self._message(error)
                 self.notify(self.last_error, severity="error", timeout=10)
             return
-        from .map_model import group_labels
-        from .record_model import ViewCache
+        from investigator.tui.models.map import group_labels
+        from investigator.tui.models.record import ViewCache
 
         result, cases = value
         self.views = ViewCache(result)
@@ -176,7 +176,7 @@ class InvestigatorApp(App):
 
     # -- records -------------------------------------------------------------------------------------
     def open_record(self, position: int, order) -> None:
-        from .screens.record import RecordScreen
+        from investigator.tui.screens.record import RecordScreen
 
         self.push_screen(RecordScreen(position, order))
 
@@ -201,7 +201,7 @@ class InvestigatorApp(App):
     def request_map(self) -> None:
         if self.result is None or self.map_points is not None:
             return
-        from .map_model import map_coords
+        from investigator.tui.models.map import map_coords
 
         result = self.result
         self.run_worker(lambda: map_coords(result), thread=True, name="map", group="map", exclusive=True,
@@ -215,7 +215,7 @@ class InvestigatorApp(App):
 
     # -- verdicts ------------------------------------------------------------------------------------
     def ask_verdict(self, position: int) -> None:
-        from .screens.verdict import VerdictScreen
+        from investigator.tui.screens.verdict import VerdictScreen
 
         d = self.cases
         screen = VerdictScreen(d.keys[position], int(d.rows[position]), d.verdicts[position] or None,
@@ -241,7 +241,7 @@ class InvestigatorApp(App):
 
     def open_group(self, position: int) -> None:
         """Open the small group the record at ``position`` belongs to as one case, with its profile."""
-        from .screens.group import GroupScreen
+        from investigator.tui.screens.group import GroupScreen
 
         grouping = getattr(self.result, "groups", None)
         cases = getattr(self.result, "group_cases", None) or []
@@ -253,7 +253,7 @@ class InvestigatorApp(App):
         self.push_screen(GroupScreen(case, jobs.group_verdict(case, self.store_path())))
 
     def ask_group_verdict(self, screen) -> None:
-        from .screens.verdict import VerdictScreen
+        from investigator.tui.screens.verdict import VerdictScreen
 
         case = screen.case
         ask = VerdictScreen(f"group {case['group']} ({case['size']} records)", None, screen.verdict, None)
@@ -278,12 +278,12 @@ class InvestigatorApp(App):
         self.switch_mode(mode)
 
     def action_help(self) -> None:
-        from .screens.group import GroupScreen
-        from .screens.help import HelpScreen
-        from .screens.record import RecordScreen
-        from .screens.verdict import VerdictScreen
-        from .widgets.cases_table import CasesTable
-        from .widgets.map_canvas import MapCanvas
+        from investigator.tui.screens.group import GroupScreen
+        from investigator.tui.screens.help import HelpScreen
+        from investigator.tui.screens.record import RecordScreen
+        from investigator.tui.screens.verdict import VerdictScreen
+        from investigator.tui.widgets.cases_table import CasesTable
+        from investigator.tui.widgets.map_canvas import MapCanvas
 
         self.push_screen(HelpScreen({
             "Everywhere": self.BINDINGS, "Columns": ColumnsScreen.BINDINGS,

@@ -25,10 +25,10 @@ class Loaded:
 def load(path: str | Path, options) -> Loaded:
     """Read the table and infer the roles. ``options`` is a ScanOptions or a dict of its fields: building
     it here keeps the options module (which imports the methods, hence SciPy) off the first frame."""
-    from ..options import ScanOptions
-    from ..roles import assign_roles
-    from ..table import load_table
-    from .columns_model import column_rows
+    from investigator.io.tables import load_table
+    from investigator.pipeline.options import ScanOptions
+    from investigator.prepare.roles import assign_roles
+    from investigator.tui.models.columns import column_rows
 
     if not isinstance(options, ScanOptions):
         options = ScanOptions(**(options or {}))
@@ -52,8 +52,8 @@ class CancelToken:
 def run(table, options, progress, token: CancelToken, store: Path | None, path: str | Path | None):
     """Scan ``table``; ``progress(stage, fraction)`` is the engine's callback. The scan stops at the next
     progress report after ``token.cancel()`` (the engine reports between its steps)."""
-    from ..engine import attach_verdicts, run_scan
-    from .cases_model import cases_data
+    from investigator.pipeline.engine import attach_verdicts, run_scan
+    from investigator.tui.models.cases import cases_data
 
     def report(stage: str, fraction: float) -> None:
         if token.cancelled:
@@ -72,9 +72,9 @@ def run(table, options, progress, token: CancelToken, store: Path | None, path: 
 def save_verdict(table, position: int, state: str, note: str | None, store: Path, run_id: str | None):
     """Save one verdict (the same function ``investigator verdict`` uses) and re-match the store, so copies
     that share a fingerprint show it too. Returns (entry, verdicts, notes)."""
-    from ..review.commands import record_verdict
-    from ..review.matching import match_store
-    from ..review.store import ReviewStore
+    from investigator.review.matching import match_store
+    from investigator.review.store import ReviewStore
+    from investigator.review.verdicts import record_verdict
 
     entry, _ = record_verdict(table, position, state, note, store, run_id=run_id)
     with ReviewStore(store, create=False) as review:
@@ -85,7 +85,7 @@ def save_verdict(table, position: int, state: str, note: str | None, store: Path
 def save_group_verdict(case: dict, state: str, note: str | None, store: Path, run_id: str | None,
                        data_sha256: str | None):
     """Save a verdict on a group case (``group:<id>``, its members' keys kept with it)."""
-    from ..review.store import ReviewStore, check_verdict, group_case
+    from investigator.review.store import ReviewStore, check_verdict, group_case
 
     state = check_verdict(state)
     members = [m["key"] for m in case["members"]]
@@ -96,7 +96,7 @@ def save_group_verdict(case: dict, state: str, note: str | None, store: Path, ru
 
 def group_verdict(case: dict, store: Path) -> str | None:
     """The group's current verdict, if the store has one."""
-    from ..review.store import ReviewStore
+    from investigator.review.store import ReviewStore
 
     if not Path(store).exists():
         return None
@@ -106,6 +106,6 @@ def group_verdict(case: dict, store: Path) -> str | None:
 
 
 def store_for(path: str | Path, store: str | Path | None) -> Path:
-    from ..review.store import default_store_path
+    from investigator.review.store import default_store_path
 
     return Path(store) if store else default_store_path(path)

@@ -7,9 +7,9 @@ from textual.binding import Binding
 from textual.screen import Screen
 from textual.widgets import Footer, Header, Input, Static
 
-from ..cases_model import NO_VERDICT, CaseFilter
-from ..widgets.cases_table import CasesTable
-from ..widgets.scan_progress import ScanProgress
+from investigator.tui.models.cases import NO_VERDICT, CaseFilter
+from investigator.tui.widgets.cases_table import CasesTable
+from investigator.tui.widgets.scan_progress import ScanProgress
 
 HINT = (
     "rank: 1 = most unusual · consensus 0-1: how strongly the methods together set a record apart, 0.5 at "
@@ -179,6 +179,6 @@ class CasesScreen(Screen):
         self.app.show_hint = not self.app.show_hint
         self.query_one("#hint").set_class(not self.app.show_hint, "hidden")
         if not self.app.show_hint:
-            from ..settings import mark_hint_seen
+            from investigator.tui.settings import mark_hint_seen
 
             mark_hint_seen()

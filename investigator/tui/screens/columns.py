@@ -9,7 +9,7 @@ from textual.containers import Vertical
 from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Header, Input, Static
 
-from ..widgets.scan_progress import ScanProgress
+from investigator.tui.widgets.scan_progress import ScanProgress
 
 HEADERS = ("column", "role", "type", "missing", "distinct", "log", "distribution")
 

@@ -9,7 +9,7 @@ from textual.containers import VerticalScroll
 from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
-from ...explain.text import _fmt
+from investigator.output.explanation import _fmt
 
 MEMBERS_SHOWN = 50
 

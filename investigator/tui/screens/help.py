@@ -8,7 +8,7 @@ from textual.containers import VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
-from .cases import HINT
+from investigator.tui.screens.cases import HINT
 
 
 def _keys(bindings) -> list[tuple[str, str]]:

@@ -7,7 +7,7 @@ from textual.binding import Binding
 from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
-from ..widgets.map_canvas import MapCanvas
+from investigator.tui.widgets.map_canvas import MapCanvas
 
 LEGEND = "⠂ ordinary  ◆ flagged alone  1-9 flagged, in group  + cursor"
 

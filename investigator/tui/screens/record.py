@@ -12,8 +12,8 @@ from textual.containers import VerticalScroll
 from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
-from ...explain.text import _fmt, _typical
-from ..widgets.contribution_bars import ContributionBars
+from investigator.output.explanation import _fmt, _typical
+from investigator.tui.widgets.contribution_bars import ContributionBars
 
 DEBOUNCE_S = 0.06  # moving fast through records asks the engine only for the one the user stops on
 

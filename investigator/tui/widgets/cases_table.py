@@ -14,7 +14,7 @@ from textual.message import Message
 from textual.reactive import reactive
 from textual.widget import Widget
 
-from ..cases_model import CasesData
+from investigator.tui.models.cases import CasesData
 
 SHORT = {"robust_distance": "robust", "local_density": "density", "isolation": "isolation",
          "neighbor_distance": "k-dist"}

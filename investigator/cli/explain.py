@@ -1,0 +1,33 @@
+"""The ``explain`` command: scan DATA and explain one record in words."""
+
+from __future__ import annotations
+
+import argparse
+from collections.abc import Callable
+
+from investigator.cli.options import add_scan_options, scan_parameters
+from investigator.progress import StderrBar
+
+
+def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
+    explain = sub.add_parser("explain", help="explain why one record stands out",
+                             description="Scan DATA and explain one record: which features made it stand "
+                             "out and in which direction, its peers, what would make it ordinary.")
+    explain.add_argument("data", metavar="DATA", help="CSV/TSV, Parquet or XLSX file")
+    which = explain.add_mutually_exclusive_group(required=True)
+    which.add_argument("--row", metavar="N", type=int, help="the record's 1-based data row")
+    which.add_argument("--key", metavar="K", help="the record's key (the --id column's value)")
+    add_scan_options(explain)
+    explain.add_argument("--peers", metavar="K", type=int, default=5, help="peers to show (default 5)")
+    return {"explain": run_explain}
+
+
+def run_explain(args: argparse.Namespace) -> int:
+    # Deferred: the engine's import costs 1.9 s (see investigator/cli/scan.py).
+    from investigator.output.explanation import explanation_text
+    from investigator.pipeline.engine import scan
+    from investigator.pipeline.options import ScanOptions
+
+    result = scan(args.data, options=ScanOptions(**scan_parameters(args)), progress=StderrBar())
+    print(explanation_text(result.explain(row=args.row, key=args.key, peers=args.peers)))
+    return 0

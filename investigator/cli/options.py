@@ -1,0 +1,67 @@
+"""Option helpers shared by the commands: the parser class, the scan options every scanning command takes, and
+the translation of parsed arguments into the engine's parameters. argparse is used in ``investigator.cli`` only.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+METHOD_HELP = "robust_distance, local_density, isolation, neighbor_distance"
+
+
+class Parser(argparse.ArgumentParser):
+    """An argument parser whose usage errors are one line and exit with code 2, as every usage error."""
+
+    def error(self, message: str) -> None:
+        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
+def add_scan_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--id", metavar="COLUMN", help="column holding the record key (default: the data row)")
+    p.add_argument("--features", metavar="A,B,C", help="use exactly these columns as features")
+    p.add_argument("--exclude", metavar="X,Y", help="leave these columns out")
+    p.add_argument("--methods", metavar="K1,K2", help=f"methods to run (default all: {METHOD_HELP})")
+    p.add_argument("--log", metavar="auto|none|A,B", default="auto",
+                   help="log-transform skewed columns: auto (default, decision reported), none, or a list")
+    p.add_argument("--cutoff", metavar="Q", type=float, default=0.975,
+                   help="quantile each method flags above (default 0.975; chi-square for robust_distance)")
+    p.add_argument("--contamination", metavar="F", type=float,
+                   help="flag this share of records instead of using the cutoffs (e.g. 0.01)")
+    p.add_argument("--seed", metavar="N", type=int, default=0, help="random seed (default 0)")
+    p.add_argument("--sheet", metavar="NAME", help="worksheet of an .xlsx file (default: the first)")
+    p.add_argument("--resamples", metavar="R", type=int, default=0,
+                   help="re-run the methods on R random subsamples and report how often each flag recurs "
+                   "(default 0: off; 20 is a good choice)")
+    p.add_argument("--limits", metavar="FILE",
+                   help="CSV of specification limits (column, lower, upper): out-of-spec hits per record")
+    p.add_argument("--digits", metavar="COL", help="Benford's law first-digit tests on these amount columns")
+    p.add_argument("--duplicates", metavar="A,B",
+                   help="report groups of records with the same values on these columns")
+    p.add_argument("--map", metavar="auto|umap|pca|none", default=None,
+                   help="add 2-D map coordinates (auto: UMAP, or PCA for tiny data); the map command defaults "
+                   "to auto, every other command to none (give it to report to include the map)")
+    p.add_argument("--exact", action="store_true",
+                   help="no sampling on large data: exact neighbour search (sampled by default above 20,000 "
+                   "records), MCD searched on all records (above 100,000) and peers among all ordinary "
+                   "records (above 100,000); slower, see run.approximations")
+
+
+def add_output_options(p: argparse.ArgumentParser, data: str) -> None:
+    p.add_argument("--out", metavar="FILE", help="write the result: .json, .csv or .parquet")
+    p.add_argument("--store", metavar="PATH", help="review store to read verdicts from "
+                   f"(default: {data}.investigation.sqlite, when it exists)")
+    p.add_argument("--top", metavar="N", type=int, default=10, help="flagged records in the summary")
+    p.add_argument("--quiet", action="store_true", help="no summary and no progress bar")
+
+
+def scan_parameters(args: argparse.Namespace) -> dict:
+    """The engine parameters (``ScanOptions`` fields) given on the command line; unset ones left out."""
+    given = {
+        "id": args.id, "features": args.features, "exclude": args.exclude,
+        "methods": args.methods or None, "log": args.log, "cutoff": args.cutoff,
+        "contamination": args.contamination, "seed": args.seed, "sheet": args.sheet, "exact": args.exact,
+        "resamples": args.resamples, "limits": args.limits, "digits": args.digits, "map": args.map,
+        "duplicates": args.duplicates,
+        "keep_reference_outliers": getattr(args, "keep_reference_outliers", False),
+    }
+    return {k: v for k, v in given.items() if v is not None}

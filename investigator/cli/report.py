@@ -1,0 +1,60 @@
+"""The ``report`` command: scan DATA and write the report (HTML) or the cases table (XLSX, CSV).
+
+Everything that can be checked before the scan (the output path, --cases, --store) is checked first, so a
+mistake costs no scan time. The review store is only read.
+"""
+
+from __future__ import annotations
+
+import argparse
+from collections.abc import Callable
+from pathlib import Path
+
+from investigator.cli.options import add_scan_options, scan_parameters
+from investigator.errors import InputError
+from investigator.progress import StderrBar
+from investigator.report import DEFAULT_CASES, check_report_path, write_report
+
+
+def register(subparsers) -> dict[str, Callable[[argparse.Namespace], int]]:
+    """Add ``report`` to an argparse subparsers object; return its handler."""
+    p = subparsers.add_parser(
+        "report", help="write a report someone can sign off (HTML), or the cases table (XLSX, CSV)",
+        description="Scan DATA and write one self-contained HTML report (summary first: what was scanned, "
+        "how, what was found, the cases with their explanations, verdicts and notes with their history, "
+        "cautions), or with --out cases.xlsx / cases.csv the cases table with explanations and verdicts. "
+        "The review store is read, never changed.")
+    p.add_argument("data", metavar="DATA", help="CSV/TSV, Parquet or XLSX file")
+    add_scan_options(p)
+    p.add_argument("--out", metavar="FILE", required=True,
+                   help="report.html (the report), cases.xlsx or cases.csv (the cases table)")
+    p.add_argument("--cases", metavar="N", type=int, default=DEFAULT_CASES,
+                   help=f"flagged records explained in detail in the HTML report (default {DEFAULT_CASES}; "
+                   "records with a verdict are always shown, and the cases table lists every case)")
+    p.add_argument("--store", metavar="PATH",
+                   help="review store to read verdicts from (default: DATA.investigation.sqlite, if it exists)")
+    return {"report": run_report}
+
+
+def run_report(args: argparse.Namespace) -> int:
+    # Deferred: the engine's import costs 1.9 s (see investigator/cli/scan.py).
+    from investigator.pipeline.engine import scan
+    from investigator.pipeline.options import ScanOptions
+
+    out = Path(args.out)
+    check_report_path(out)
+    if args.cases < 0:
+        raise InputError(f"--cases {args.cases}: give 0 or more (the number of cases explained in detail)")
+    if args.store is not None and not Path(args.store).is_file():
+        raise InputError(f"--store {args.store}: no review store there; check the path, or leave --store out "
+                         "to use the one beside the data file")
+    result = scan(args.data, options=ScanOptions(**scan_parameters(args)), progress=StderrBar(), store=args.store)
+    write_report(result, out, cases=args.cases, store=args.store)
+    flagged = int(result.flagged.sum())
+    if out.suffix.lower() in (".html", ".htm"):
+        shown = min(flagged, args.cases)
+        left = f", {flagged - shown:,} left out (--cases)" if shown < flagged else ""
+        print(f"Report written to {out}: {flagged:,} flagged records, {shown:,} in detail{left}.")
+    else:
+        print(f"Cases table written to {out}: {flagged:,} flagged records, plus any other record with a verdict.")
+    return 0

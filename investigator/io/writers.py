@@ -1,0 +1,81 @@
+"""Writing a scan result: JSON (the full contract), CSV and Parquet (one row per record).
+
+CSV cells that a spreadsheet would run as a formula (starting with = + - @, a tab or a carriage return) are
+prefixed with an apostrophe (OWASP, "CSV Injection"). Numbers are written as numbers.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import pandas as pd
+
+from investigator.errors import InputError
+
+FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+FORMATS = (".json", ".csv", ".parquet")
+
+
+def neutralise(value):
+    """A text cell made safe for a spreadsheet; other values unchanged."""
+    if isinstance(value, str) and value.startswith(FORMULA_START):
+        return "'" + value
+    return value
+
+
+def safe_frame(frame: pd.DataFrame) -> pd.DataFrame:
+    out = frame.copy()
+    for col in out.columns:
+        if out[col].dtype == object or pd.api.types.is_string_dtype(out[col]):
+            out[col] = out[col].map(neutralise)
+    return out
+
+
+def _clean(obj):
+    """NaN and infinities are not JSON: they become null."""
+    if isinstance(obj, float):
+        return obj if math.isfinite(obj) else None
+    if isinstance(obj, dict):
+        return {k: _clean(v) for k, v in obj.items()}
+    if isinstance(obj, list | tuple):
+        return [_clean(v) for v in obj]
+    if hasattr(obj, "item"):  # numpy scalar
+        return _clean(obj.item())
+    return obj
+
+
+def to_json_text(data: dict) -> str:
+    return json.dumps(_clean(data), ensure_ascii=False, indent=1, allow_nan=False) + "\n"
+
+
+def check_out_path(path: Path) -> None:
+    """Refuse an unusable --out before any work is done."""
+    suffix = path.suffix.lower()
+    if suffix not in FORMATS:
+        raise InputError(f"--out {path}: unknown format '{suffix}'; use one of {', '.join(FORMATS)}")
+    if not path.parent.exists():
+        raise InputError(f"--out {path}: folder {path.parent} does not exist; create it first")
+
+
+def write_result(result, path: Path) -> Path:
+    check_out_path(path)
+    suffix = path.suffix.lower()
+    tmp = path.with_name(path.name + ".part")
+    if suffix == ".json":
+        tmp.write_text(to_json_text(result.to_dict()), encoding="utf-8")
+    elif suffix == ".csv":
+        safe_frame(_key_as_text(result.to_frame())).to_csv(tmp, index=False, lineterminator="\n")
+    else:
+        frame = _key_as_text(result.to_frame())
+        frame.to_parquet(tmp, index=False)
+    tmp.replace(path)  # never leave a half-written output under the real name
+    return path
+
+
+def _key_as_text(frame: pd.DataFrame) -> pd.DataFrame:
+    # Keys can mix numbers and text; one type per column keeps CSV and Parquet readers consistent.
+    if not pd.api.types.is_integer_dtype(frame["key"]):
+        frame = frame.assign(key=frame["key"].astype(str))
+    return frame

@@ -1,0 +1,111 @@
+"""Scan options, shared by the CLI, the API and the TUI so the same options give the same result."""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+
+from investigator.errors import InputError
+from investigator.methods import METHOD_KEYS
+
+MAP_METHODS = ("none", "auto", "umap", "pca")
+
+
+def _names(value, option: str) -> tuple[str, ...] | None:
+    if value is None:
+        return None
+    if isinstance(value, str):
+        value = value.split(",")
+    names = tuple(str(v).strip() for v in value if str(v).strip())
+    if not names:
+        raise InputError(f"{option} is empty; give one or more column names separated by commas")
+    return names
+
+
+@dataclass(frozen=True)
+class ScanOptions:
+    """Everything that decides a scan's result. Validated on construction; errors say what to change."""
+
+    id: str | None = None
+    features: tuple[str, ...] | None = None
+    exclude: tuple[str, ...] | None = None
+    methods: tuple[str, ...] = METHOD_KEYS
+    log: str | tuple[str, ...] = "auto"
+    cutoff: float = 0.975
+    contamination: float | None = None
+    seed: int = 0
+    sheet: str | None = None
+    exact: bool = False
+    resamples: int = 0
+    digits: tuple[str, ...] | None = None
+    duplicates: tuple[str, ...] | None = None
+    limits: str | None = None
+    keep_reference_outliers: bool = False
+    map: str = "none"
+
+    def __post_init__(self) -> None:
+        set_ = object.__setattr__
+        set_(self, "features", _names(self.features, "--features"))
+        set_(self, "digits", _names(self.digits, "--digits"))
+        set_(self, "duplicates", _names(self.duplicates, "--duplicates"))
+        if self.limits is not None:
+            set_(self, "limits", str(self.limits))
+        set_(self, "exclude", _names(self.exclude, "--exclude"))
+        methods = _names(self.methods, "--methods")
+        unknown = [m for m in methods if m not in METHOD_KEYS]
+        if unknown:
+            raise InputError(
+                f"--methods: unknown method '{unknown[0]}'; choose from {', '.join(METHOD_KEYS)}"
+            )
+        # Keep the canonical order so the same set of methods always gives the same output.
+        set_(self, "methods", tuple(m for m in METHOD_KEYS if m in methods))
+        if isinstance(self.log, str) and self.log.strip().lower() in {"auto", "none"}:
+            set_(self, "log", self.log.strip().lower())
+        else:
+            set_(self, "log", _names(self.log, "--log"))
+        try:
+            set_(self, "cutoff", float(self.cutoff))
+        except (TypeError, ValueError):
+            raise InputError(f"--cutoff must be a number between 0.5 and 1, not '{self.cutoff}'") from None
+        if not 0.5 < self.cutoff < 1:
+            raise InputError(
+                f"--cutoff must be between 0.5 and 1 (a quantile such as 0.975), not {self.cutoff:g}"
+            )
+        if self.contamination is not None:
+            try:
+                set_(self, "contamination", float(self.contamination))
+            except (TypeError, ValueError):
+                raise InputError(
+                    f"--contamination must be a share between 0 and 0.5, not '{self.contamination}'"
+                ) from None
+            if not 0 < self.contamination <= 0.5:
+                raise InputError(
+                    f"--contamination must be a share above 0 and at most 0.5 (e.g. 0.01), not "
+                    f"{self.contamination:g}"
+                )
+        if isinstance(self.seed, bool) or not isinstance(self.seed, int) or self.seed < 0:
+            try:
+                seed = int(str(self.seed))
+            except ValueError:
+                seed = -1
+            if seed < 0:
+                raise InputError(f"--seed must be a whole number >= 0, not '{self.seed}'")
+            set_(self, "seed", seed)
+
+        try:
+            resamples = int(self.resamples)
+        except (TypeError, ValueError):
+            resamples = -1
+        fractional = isinstance(self.resamples, float) and not self.resamples.is_integer()
+        if not 0 <= resamples <= 1000 or fractional:
+            raise InputError(f"--resamples must be a whole number from 0 to 1000, not '{self.resamples}'")
+        set_(self, "resamples", resamples)
+
+        if self.map not in MAP_METHODS:
+            raise InputError(f"--map must be one of {', '.join(MAP_METHODS)}, not '{self.map}'")
+
+    def as_dict(self) -> dict:
+        out = asdict(self)
+        for k, v in out.items():
+            if isinstance(v, tuple):
+                out[k] = list(v)
+        return out
