@@ -1,1 +1,1 @@
-
+"""What each TUI screen shows, computed without UI code (so it is tested without a terminal)."""
