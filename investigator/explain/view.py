@@ -161,7 +161,7 @@ def _one(result, i, n, contrib, peer_pos, peer_dist, typical) -> dict:
         direction = _direction(spec, z[j])
         top.append({
             "feature": spec.name, "value": raw_value(result.features, i, j), "direction": direction,
-            "typical": typical[j], "robust_z": float(z[j]), "share": float(mean_share[j]),
+            "typical": dict(typical[j]), "robust_z": float(z[j]), "share": float(mean_share[j]),
             "methods": pointing, "imputed": bool(result.features.imputed[i, j]),
         })
     return {

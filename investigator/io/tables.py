@@ -177,7 +177,7 @@ def _sniff_delimiter(text: str, suffix: str) -> str:
     except csv.Error:
         header = sample.splitlines()[0] if sample else ""
         counts = {d: header.count(d) for d in ",;\t|"}
-        best = max(counts, key=counts.get)
+        best = max(counts, key=lambda d: counts[d])
         return best if counts[best] else ","
 
 
@@ -208,7 +208,8 @@ def _read_dataset(data, sheet: str | None) -> Table:
     if sheet is not None:
         raise InputError(f"{data}: --sheet only applies to .xlsx files")
     files = parquet_files(data)
-    frames, digest = [], hashlib.sha256()
+    frames: list[pd.DataFrame] = []
+    digest = hashlib.sha256()
     for path in files:
         frame = _read_parquet(path)
         if frames and list(frame.columns) != list(frames[0].columns):

@@ -34,11 +34,16 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from math import sqrt
+from typing import TYPE_CHECKING
 
 import numpy as np
 from scipy import special, stats
 
+from investigator.methods.fitted import read_only
 from investigator.prepare.features import robust_scale
+
+if TYPE_CHECKING:
+    from investigator.methods.neighbors import NeighborGraph, NeighborSearch
 
 FAR_OUT = 3.0  # the far-out fence: Q3 + 3 IQR (Tukey), or 3 x twice the upper semi-IQR when wider
 NORMAL_IQR = 1.3489795003921634  # interquartile range of the standard normal
@@ -106,19 +111,22 @@ class Method:
         self.contamination = contamination
 
     # -- fitted by subclasses ------------------------------------------------------------------
-    def _fit(self, X: np.ndarray, neighbors) -> np.ndarray:
+    def _fit(self, X: np.ndarray, neighbors: NeighborSearch | None) -> np.ndarray:
         """Fit on the reference and return the reference records' own scores."""
         raise NotImplementedError
 
-    def score(self, X: np.ndarray, neighbors=None) -> np.ndarray:
+    def score(self, X: np.ndarray, neighbors: NeighborGraph | None = None) -> np.ndarray:
+        """Scores of the records ``X``; methods that need neighbours take the records' neighbour graph
+        (:meth:`NeighborSearch.query`). Never changes the fitted method."""
         raise NotImplementedError
 
     def parameters(self) -> dict:
         return {}
 
     # -- shared --------------------------------------------------------------------------------
-    def fit(self, X: np.ndarray, neighbors=None) -> Method:
-        scores = np.asarray(self._fit(X, neighbors), dtype=float)
+    def fit(self, X: np.ndarray, neighbors: NeighborSearch | None = None) -> Method:
+        # A copy the method owns, read-only like every fitted array: callers take their own copies.
+        scores = read_only(np.array(self._fit(X, neighbors), dtype=float))
         self.reference_scores_ = scores
         positive = scores[scores > 0]
         self.offset_ = 0.0 if len(positive) == len(scores) else (float(positive.min()) if len(positive) else 1.0)

@@ -25,7 +25,7 @@ SIGMAS = 3.0
 FENCE = 1.5
 
 
-@dataclass
+@dataclass(frozen=True)
 class ColumnLimits:
     column: int
     lower: dict[str, float]

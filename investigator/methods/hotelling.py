@@ -23,6 +23,7 @@ from scipy import linalg, stats
 
 from investigator.errors import InputError
 from investigator.methods.base import Method, Scale
+from investigator.methods.fitted import owned, read_only
 from investigator.methods.tails import f_logsf, normal_quantile_of_tail
 
 _RCOND = 1e-12  # smallest eigenvalue / largest below which the covariance counts as singular
@@ -72,9 +73,9 @@ class Hotelling(Method):
 
     Fitted attributes: ``columns_``, ``m_`` (reference records), ``p_`` (features), ``mean_``,
     ``covariance_`` (ddof = 1, as estimated), ``ridge_`` (0.0 unless the covariance was singular),
-    ``singular_``, ``notices_`` (sentences for the caller to report), ``phase_i_limit_``,
-    ``phase_ii_limit_``, ``cutoff_``, ``reference_scores_`` (the reference records' T2, to compare with the
-    phase I limit; see :meth:`reference_flags`).
+    ``singular_``, ``notices_`` (sentences for the caller to report), ``factor_`` (the Cholesky factor of the
+    covariance, with the ridge), ``phase_i_limit_``, ``phase_ii_limit_``, ``cutoff_``, ``reference_scores_``
+    (the reference records' T2, to compare with the phase I limit; see :meth:`reference_flags`).
 
     A singular covariance (collinear features, a constant feature, m close to p) is not an error: a ridge of
     1e-6 x the mean variance is added, as the robust distance does, ``singular_`` is set and a notice says
@@ -107,13 +108,14 @@ class Hotelling(Method):
 
     def _fit(self, X, neighbors=None):
         X = np.asarray(X, dtype=float)
-        self.columns_ = np.arange(X.shape[1]) if self.columns is None else np.asarray(self.columns)
+        self.columns_ = owned(np.arange(X.shape[1]) if self.columns is None else self.columns)
         Xc = X[:, self.columns_]
         self.m_, self.p_ = Xc.shape
         _check(self.m_, self.p_, self.alpha, need=2)
-        self.mean_ = Xc.mean(axis=0)
-        self.covariance_ = np.atleast_2d(np.cov(Xc, rowvar=False, ddof=1))
-        self.ridge_, self.singular_, self.notices_ = 0.0, False, []
+        self.mean_ = read_only(Xc.mean(axis=0))
+        self.covariance_ = read_only(np.atleast_2d(np.cov(Xc, rowvar=False, ddof=1)))
+        self.ridge_, self.singular_ = 0.0, False
+        notices: list[str] = []
         S = self.covariance_
         w = np.linalg.eigvalsh(S)
         if w[0] <= _RCOND * max(w[-1], np.finfo(float).tiny):
@@ -122,18 +124,20 @@ class Hotelling(Method):
             self.ridge_ = 1e-6 * max(float(np.trace(S)) / self.p_, 1.0)
             self.singular_ = True
             S = S + self.ridge_ * np.eye(self.p_)
-            self.notices_.append(
+            notices.append(
                 f"hotelling: the reference covariance of {self.p_} features is singular (collinear or "
                 f"constant features); a ridge of {self.ridge_:.3g} was added and the control limits are "
                 "approximate")
-        self._factor = linalg.cho_factor(S, lower=True, check_finite=False)
+        self.notices_ = notices
+        factor, lower = linalg.cho_factor(S, lower=True, check_finite=False)
+        self.factor_ = (read_only(factor), lower)  # the Cholesky factor of S (with the ridge), for cho_solve
         self.phase_i_limit_ = phase_i_limit(self.m_, self.p_, self.alpha)
         self.phase_ii_limit_ = phase_ii_limit(self.m_, self.p_, self.alpha)
         return self.score(X)
 
     def _solve(self, X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         D = np.asarray(X, dtype=float)[:, self.columns_] - self.mean_
-        W = linalg.cho_solve(self._factor, D.T, check_finite=False).T  # S^-1 (x - xbar), row by row
+        W = linalg.cho_solve(self.factor_, D.T, check_finite=False).T  # S^-1 (x - xbar), row by row
         return D, W
 
     def score(self, X, neighbors=None):

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from investigator.methods.base import Method
+from investigator.methods.fitted import read_only
 
 
 class LocalDensity(Method):
@@ -55,11 +56,13 @@ class LocalDensity(Method):
         if self.k_ < 1:
             raise ValueError("local_density needs at least two distinct records")
         locations = neighbors.location_graph_
-        self.k_distance_ = locations.distances[:, self.k_ - 1].copy()
-        self.lrd_ = self._lrd(locations, self.k_distance_)
+        self.k_distance_ = read_only(locations.distances[:, self.k_ - 1].copy())
+        self.lrd_ = read_only(self._lrd(locations, self.k_distance_))
         return self.score(X, neighbors.reference_graph_)
 
-    def score(self, X, neighbors):
+    def score(self, X, neighbors=None):
+        if neighbors is None:
+            raise TypeError("local_density scores records from their neighbour graph (NeighborSearch.query)")
         kd = neighbors.distances[:, self.k_ - 1]
         lrd = self._lrd(neighbors, kd)
         L = neighbors.indices[:, : self.k_]

@@ -48,6 +48,7 @@ import numpy as np
 from scipy import stats
 
 from investigator import sampling
+from investigator.methods.fitted import read_only
 
 SAMPLE_ABOVE = 100_000  # records; above this the raw MCD is searched on a random sample (not with exact)
 SAMPLE_SIZE = 50_000
@@ -63,8 +64,10 @@ KAPPA = 50.0  # MRCD: the largest condition number of a regularised covariance (
 _BATCH = 50  # starts whose C-steps run together as one batch of array operations
 
 
-@dataclass
+@dataclass(frozen=True)
 class MCDFit:
+    """A finished fit: scoring and the kinds of normal only read it (its arrays are read-only)."""
+
     location: np.ndarray  # reweighted
     covariance: np.ndarray  # reweighted, consistency corrected
     raw_location: np.ndarray
@@ -78,6 +81,11 @@ class MCDFit:
     sample: int | None = None  # records the raw fit was searched on, when a sample (None: all records)
     filled: int = 0  # directions of the raw scatter in which the core is singular, given the records' spread
     reweighted_filled: int = 0  # the same for the reweighted covariance
+
+    def __post_init__(self) -> None:
+        for array in (self.location, self.covariance, self.raw_location, self.raw_covariance, self.raw_support,
+                      self.support):
+            read_only(array)
 
     @property
     def regularised(self) -> bool:
@@ -236,10 +244,8 @@ class FastMCD:
         raw_S, filled = fill_degenerate(S, X, spread_of)
         mask = np.zeros(n, dtype=bool)
         mask[order[subset]] = True
-        fit = self._reweight(X, mu, raw_S, mask, _logdet(mrcd_covariance(S, rho)), h, rho, filled=filled,
-                             spread_of=spread_of)
-        fit.exact = exact
-        return fit
+        return self._reweight(X, mu, raw_S, mask, _logdet(mrcd_covariance(S, rho)), h, rho, filled=filled,
+                              spread_of=spread_of, exact=exact)
 
     def concentrate(self, X: np.ndarray, start: MCDFit, spread_of: np.ndarray | None = None) -> MCDFit:
         """The MCD of X reached by concentration steps from an earlier fit (its h closest records of X
@@ -272,7 +278,8 @@ class FastMCD:
         return self._reweight(X, mu, raw_S, mask, _logdet(mrcd_covariance(S, rho)), h, rho, filled=filled,
                               spread_of=spread_of)
 
-    def _reweight(self, X, mu, raw_S, mask, raw_logdet, h, rho, sample=None, filled=0, spread_of=None) -> MCDFit:
+    def _reweight(self, X, mu, raw_S, mask, raw_logdet, h, rho, sample=None, filled=0, spread_of=None,
+                  exact: bool = False) -> MCDFit:
         """Consistency correction and reweighting of a raw fit, over every record of X."""
         p = X.shape[1]
         d2 = sq_distances(X, mu, raw_S)
@@ -289,16 +296,19 @@ class FastMCD:
         # population; this factor undoes that truncation (Croux & Haesbroeck 1999, consistency factor).
         cov = cov * (0.975 / stats.chi2.cdf(q, p + 2))
         cov, rw_filled = fill_degenerate(cov, X, spread_of)
-        return MCDFit(loc, cov, mu, raw_corrected, mask, keep, raw_logdet, h, False, rho, sample, filled, rw_filled)
+        return MCDFit(loc, cov, mu, raw_corrected, mask, keep, raw_logdet, h, exact, rho, sample, filled, rw_filled)
 
     @staticmethod
     def _enumerate(X: np.ndarray, h: int, ridge: float) -> np.ndarray:
-        best, best_det = None, np.inf
+        best: np.ndarray | None = None
+        best_det = np.inf
         for subset in combinations(range(len(X)), h):
             idx = np.fromiter(subset, dtype=np.intp, count=h)
             det = np.linalg.det(_regularised(_mean_cov(X[idx])[1], ridge))
             if det < best_det:
                 best, best_det = idx, det
+        if best is None:  # no determinant below infinity (undefined everywhere): as for a singular core
+            raise _Singular
         return best
 
     def _search(self, X: np.ndarray, h: int, ridge: float) -> np.ndarray:

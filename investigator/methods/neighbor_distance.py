@@ -33,5 +33,7 @@ class NeighborDistance(Method):
         self.k_ = max(1, min(self.k, neighbors.n_reference_ - 1))
         return self.score(X, neighbors.reference_graph_)
 
-    def score(self, X, neighbors):
+    def score(self, X, neighbors=None):
+        if neighbors is None:
+            raise TypeError("neighbor_distance scores records from their neighbour graph (NeighborSearch.query)")
         return neighbors.kth(self.k_)[0]

@@ -33,18 +33,19 @@ from dataclasses import dataclass
 import numpy as np
 
 from investigator import sampling
+from investigator.methods.fitted import read_only
 
 SAMPLE_ABOVE = 20_000
 SAMPLE_SIZE = 10_000
 _CHUNK = 2048
 
 
-@dataclass
+@dataclass(frozen=True)
 class NeighborGraph:
     """For each queried record: its k nearest distinct reference locations other than its own, nearest
     first (``indices`` into the search's locations, ``distances``), and ``copies``, the number of other
     reference records at its own location. ``counts`` holds the number of reference records at each
-    location."""
+    location (the search's own array, read-only, shared by every graph it returns)."""
 
     indices: np.ndarray
     distances: np.ndarray
@@ -94,7 +95,8 @@ class NeighborSearch:
         self.sample_size = sample_size
 
     def fit(self, X: np.ndarray) -> NeighborSearch:
-        """Fit on the reference records ``X``."""
+        """Fit on the reference records ``X``. Every fitted array is read-only: :meth:`query` and
+        :meth:`locate` only read them, so one search serves any number of callers at once."""
         X = np.asarray(X, dtype=float)
         n = len(X)
         keys = sampling.record_keys(X)
@@ -125,6 +127,9 @@ class NeighborSearch:
         self.location_graph_ = NeighborGraph(_compact(idx, m), dist.astype(float), self.counts_ - 1, self.counts_)
         # The reference records themselves (the sample, on the sampled path), each at its location.
         self.reference_graph_ = self.location_graph_.subset(inverse)
+        for array in (self.location_hashes_, self.locations_, self.counts_, *_arrays(self.location_graph_),
+                      *_arrays(self.reference_graph_)):
+            read_only(array)
         return self
 
     def locate(self, X: np.ndarray) -> np.ndarray:
@@ -165,6 +170,10 @@ class NeighborSearch:
         if self.mode_ == "sampled":
             out.update(reference_sample=int(self.n_reference_), sample_above=self.sample_above)
         return out
+
+
+def _arrays(graph: NeighborGraph) -> tuple[np.ndarray, ...]:
+    return graph.indices, graph.distances, graph.copies, graph.counts
 
 
 def _compact(idx: np.ndarray, m: int) -> np.ndarray:

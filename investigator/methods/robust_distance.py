@@ -6,6 +6,7 @@ import numpy as np
 from scipy import stats
 
 from investigator.methods.base import Method, Scale, far_fence, upper_fence
+from investigator.methods.fitted import owned, read_only
 from investigator.methods.mcd import SAMPLE_ABOVE, FastMCD, MCDFit, sq_distances
 
 
@@ -65,9 +66,9 @@ class RobustDistance(Method):
         return out
 
     def _fit(self, X, neighbors=None):
-        self.columns_ = np.arange(X.shape[1]) if self.columns is None else np.asarray(self.columns)
+        self.columns_ = owned(np.arange(X.shape[1]) if self.columns is None else self.columns)
         self.mcd_: MCDFit = self.mcd().fit(X[:, self.columns_])
-        self.precision_ = np.linalg.inv(self.mcd_.covariance)
+        self.precision_ = read_only(np.linalg.inv(self.mcd_.covariance))
         return self.score(X)
 
     def score(self, X, neighbors=None):

@@ -48,12 +48,14 @@ def draw_map(coords: np.ndarray, flagged: np.ndarray, consensus: np.ndarray, gro
     cax = fig.add_axes((0.87, 0.14, 0.025, 0.76))
     span = float(np.ptp(coords, axis=0).max()) or 1.0
     size = float(np.clip(8000 / max(n, 1), 1, 12))  # dots shrink as records multiply
-    ax.scatter(*coords[~flagged].T, s=size, c="0.55", alpha=0.45, linewidths=0)
+    x, y = coords[~flagged].T
+    ax.scatter(x, y, s=size, c="0.55", alpha=0.45, linewidths=0)
     order = np.flatnonzero(flagged)[np.argsort(consensus[flagged], kind="stable")]  # highest on top
     low, high = (float(consensus[order].min()), float(consensus[order].max())) if len(order) else (0, 1)
     if high - low < 0.01:
         low = max(0.0, high - 0.01)
-    points = ax.scatter(*coords[order].T, s=28, c=consensus[order], cmap="plasma", vmin=low, vmax=high,
+    x, y = coords[order].T
+    points = ax.scatter(x, y, s=28, c=consensus[order], cmap="plasma", vmin=low, vmax=high,
                         marker="^", edgecolors="0.1", linewidths=0.5, zorder=3)
     fig.colorbar(points, cax=cax).set_label("consensus (flagged records)")
     outlined = 0

@@ -9,7 +9,8 @@ import numpy as np
 
 from investigator.errors import InputError
 from investigator.io.tables import Table, load_table
-from investigator.methods import METHODS
+from investigator.methods import METHODS, Isolation, RobustDistance
+from investigator.methods.base import Method
 from investigator.methods.column_rules import ColumnRules
 from investigator.methods.mcd import SAMPLE_ABOVE as MCD_SAMPLE_ABOVE
 from investigator.methods.mcd import FastMCD
@@ -24,11 +25,11 @@ from investigator.structure.kinds import KindsOfNormal, calibrate_kinds, find_ki
 
 
 def build_methods(options: ScanOptions, features: Features, notices: list[str],
-                  seed: int | None = None) -> list:
+                  seed: int | None = None) -> list[Method]:
     """The configured method objects; robust_distance uses every numeric feature."""
     seed = options.seed if seed is None else seed
-    common = {"cutoff": options.cutoff, "contamination": options.contamination}
-    built = []
+    cutoff, contamination = options.cutoff, options.contamination
+    built: list[Method] = []
     for key in options.methods:
         if key == "robust_distance":
             # The MCD measures numbers; category rarities are left to the other methods. Discrete and tied
@@ -43,11 +44,12 @@ def build_methods(options: ScanOptions, features: Features, notices: list[str],
                     f"robust_distance uses the {len(use)} numeric features of {len(features.specs)}; the "
                     f"categories ({', '.join(left)}) are used by the other methods"
                 )
-            built.append(METHODS[key](seed=seed, columns=use, exact=options.exact, **common))
+            built.append(RobustDistance(seed=seed, columns=use, exact=options.exact, cutoff=cutoff,
+                                        contamination=contamination))
         elif key == "isolation":
-            built.append(METHODS[key](seed=seed, **common))
+            built.append(Isolation(seed=seed, cutoff=cutoff, contamination=contamination))
         else:
-            built.append(METHODS[key](**common))
+            built.append(METHODS[key](cutoff=cutoff, contamination=contamination))
     if not built:
         raise InputError("no method could run on these features; choose other features or methods")
     return built
@@ -67,7 +69,7 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     fit_table = reference if reference is not None else table
     columns = assign_roles(fit_table, options.features, options.exclude)
     log = options.log if isinstance(options.log, str) else list(options.log)
-    ref_info = None
+    ref_info: dict = {}  # reference mode: the reference's columns, phase I cleaning and unseen levels
     if reference is not None:
         from investigator.pipeline.reference import check_columns, clean_reference
 
@@ -306,7 +308,7 @@ def fit_and_score(methods: list, X: np.ndarray, options: ScanOptions, reference:
     neighbour search and the records' neighbour graph.
     """
     separate = X_ref is not None
-    R = X_ref if separate else (X if reference is None else X[reference])
+    R = X_ref if X_ref is not None else (X if reference is None else X[reference])
     plain = not separate and reference is None  # a plain scan: the records are the reference
     k = max((m.needs_neighbors for m in methods), default=0)
     search = graph = None
@@ -320,7 +322,7 @@ def fit_and_score(methods: list, X: np.ndarray, options: ScanOptions, reference:
     for i, method in enumerate(methods):
         progress(method.key, 0.2 + 0.7 * i / len(methods))
         method.fit(R, search if method.needs_neighbors else None)
-        if plain and (not method.needs_neighbors or graph is search.reference_graph_):
+        if plain and (not method.needs_neighbors or (search is not None and graph is search.reference_graph_)):
             scores = method.reference_scores_.copy()
         else:
             scores = method.score(X, graph) if method.needs_neighbors else method.score(X)

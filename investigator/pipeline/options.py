@@ -50,7 +50,7 @@ class ScanOptions:
         if self.limits is not None:
             set_(self, "limits", str(self.limits))
         set_(self, "exclude", _names(self.exclude, "--exclude"))
-        methods = _names(self.methods, "--methods")
+        methods = _names(self.methods, "--methods") or METHOD_KEYS  # None: not given, as for --features
         unknown = [m for m in methods if m not in METHOD_KEYS]
         if unknown:
             raise InputError(
@@ -95,7 +95,7 @@ class ScanOptions:
             resamples = int(self.resamples)
         except (TypeError, ValueError):
             resamples = -1
-        fractional = isinstance(self.resamples, float) and not self.resamples.is_integer()
+        fractional = isinstance(self.resamples, float) and not float(self.resamples).is_integer()
         if not 0 <= resamples <= 1000 or fractional:
             raise InputError(f"--resamples must be a whole number from 0 to 1000, not '{self.resamples}'")
         set_(self, "resamples", resamples)

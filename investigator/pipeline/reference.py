@@ -7,6 +7,8 @@ limits new records are judged by. ``--keep-reference-outliers`` lists them but k
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 
 from investigator.errors import InputError
@@ -56,7 +58,7 @@ def clean_reference(reference: Table, preparer: FeaturePreparer, options: ScanOp
 
     features = preparer.transform(reference)
     use = [j for j, s in enumerate(features.specs) if s.role == NUMERIC]
-    info = {"method": "robust_distance", "excluded": 0, "records": []}
+    info: dict[str, Any] = {"method": "robust_distance", "excluded": 0, "records": []}
     if not use or len(reference.frame) <= len(use) + 1:
         notices.append("reference: phase I cleaning skipped (no feature the robust fit can use)")
         return reference, info

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -16,6 +17,10 @@ from investigator.pipeline.combine import Combination
 from investigator.pipeline.options import ScanOptions
 from investigator.prepare.features import FeaturePreparer, Features
 from investigator.prepare.roles import ColumnInfo
+
+if TYPE_CHECKING:
+    from investigator.structure.groups import Grouping
+    from investigator.structure.kinds import KindCalibration, KindsOfNormal
 
 
 @dataclass
@@ -32,7 +37,7 @@ class MethodResult:
     z: np.ndarray
     cutoffs: np.ndarray
     far: np.ndarray
-    kinds: object | None = None  # kinds.KindCalibration
+    kinds: KindCalibration | None = None
 
     @classmethod
     def overall(cls, method: Method, scores: np.ndarray) -> MethodResult:
@@ -80,10 +85,10 @@ class ScanResult:
     out_of_spec: list[list[dict]] | None = None  # with --limits: per record, the limits it breaks
     verdicts: list[str | None] | None = None  # with a review store: each record's current verdict
     notes: list[str | None] | None = None
-    groups: object | None = None  # structure.groups.Grouping: small groups, large clusters, patterns
+    groups: Grouping | None = None  # small groups, large clusters, patterns
     map: np.ndarray | None = None  # n x 2 map coordinates (with --map)
     group_cases: list[dict] | None = None  # each small group as one case, with its profile
-    kinds: object | None = None  # kinds.KindsOfNormal: the large clusters, each with its own fit
+    kinds: KindsOfNormal | None = None  # the large clusters, each with its own fit
     _explanations: dict | None = field(default=None, init=False, repr=False)
     _typical: list | None = field(default=None, init=False, repr=False)
     _pool: object | None = field(default=None, init=False, repr=False)
@@ -187,7 +192,7 @@ class ScanResult:
         if self.out_of_spec is not None:
             extra["out_of_spec"] = self.out_of_spec[i]
         if self.verdicts is not None:
-            extra["verdict"], extra["note"] = self.verdicts[i], self.notes[i]
+            extra["verdict"], extra["note"] = self.verdicts[i], self.notes[i] if self.notes is not None else None
         if self.groups is not None:
             g = self.groups.record(i)
             extra.update(pattern=g["pattern"], group=g["group"], group_size=g["group_size"])

@@ -20,33 +20,49 @@ from __future__ import annotations
 
 import dataclasses
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
 
 from investigator.io.tables import Source, Table
+from investigator.methods.base import Method
+from investigator.methods.column_rules import ColumnRules
+from investigator.methods.neighbors import NeighborSearch
 from investigator.pipeline.combine import TOP_SHARE, rule_sentence
 from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.result import MethodResult, ScanResult
+from investigator.prepare.features import FeaturePreparer
+from investigator.prepare.roles import ColumnInfo
+
+if TYPE_CHECKING:
+    from investigator.checks.limits import Limit
+    from investigator.explain.view import Pool
+    from investigator.structure.kinds import KindCalibration, KindsOfNormal
 
 MODEL_PEERS = 10_000  # ordinary sample records a partition's explanations find peers among
 
 
-@dataclass
+@dataclass(frozen=True)
 class ScanModel:
+    """Everything scoring a block needs, fitted once. :meth:`score` only reads it: the Dask path sends one
+    model to every worker, and a worker may score several blocks with it at once, in threads. Per-kind
+    scales are the frozen :class:`~investigator.structure.kinds.KindCalibration` objects of ``calibrations``;
+    fitted arrays (the methods', the search's, the kinds', the peer pool's) are read-only."""
+
     options: ScanOptions
-    columns: list
-    preparer: object
-    search: object | None
-    methods: dict
-    rules: object
-    kinds: object | None  # kinds.KindsOfNormal of the fit sample, or None
-    calibrations: dict  # per method key, its kinds.KindCalibration (empty without kinds)
+    columns: list[ColumnInfo]
+    preparer: FeaturePreparer
+    search: NeighborSearch | None
+    methods: dict[str, Method]
+    rules: ColumnRules
+    kinds: KindsOfNormal | None  # the kinds of normal of the fit sample, or None
+    calibrations: dict[str, KindCalibration]  # per method key, its per-kind scales (empty without kinds)
     combined_far: float | None  # the far-out level of the combined evidence on the fit sample
     z_threshold: float | None  # with contamination: the consensus z the fit sample's flagged reach
-    pool: object  # explain.view.Pool of ordinary sample records (peers)
-    typical: list  # typical ranges of the ordinary sample records
-    limits: object | None
+    pool: Pool  # ordinary sample records (peers)
+    typical: list[dict]  # typical ranges of the ordinary sample records
+    limits: list[Limit] | None
     key_column: str | None
     source: Source
     run: dict  # the fit's run record
@@ -67,7 +83,8 @@ class ScanModel:
         if len(members) > MODEL_PEERS:  # the model travels to every worker: a smaller pool keeps it light
             members = np.sort(np.random.default_rng([options.seed, 23]).choice(members, MODEL_PEERS, replace=False))
         keys = [pool.keys[i] for i in members]
-        pool = Pool(pool.features.subset(members), np.arange(len(members)), pool.rows[members], keys, "sample")
+        pool = _read_only_pool(Pool(pool.features.subset(members), np.arange(len(members)), pool.rows[members],
+                                    keys, "sample"))
         threshold = None
         if options.contamination is not None:
             threshold = float(fit.combination.z[fit.flagged].min())
@@ -92,11 +109,10 @@ class ScanModel:
         X = features.values
         # A record of the sample is also in the neighbour reference: the same table, never its own neighbour.
         graph = self.search.query(X, same_table=True) if self.search is not None else None
-        results = {}
+        results: dict[str, MethodResult] = {}
         for key, m in self.methods.items():
             scores = m.score(X, graph) if m.needs_neighbors else m.score(X)
-            results[key] = MethodResult.overall(m, scores)
-            results[key].kinds = self.calibrations.get(key)
+            results[key] = dataclasses.replace(MethodResult.overall(m, scores), kinds=self.calibrations.get(key))
         kinds = None
         if self.kinds is not None:  # each record judged within the kind it is nearest to
             labels = self.kinds.assign(X)
@@ -104,10 +120,10 @@ class ScanModel:
             results = apply_kinds(results, kinds, X)
         combination = combine_results(results, self.options, by_rank=False, combined_far=self.combined_far)
         if self.z_threshold is not None:
-            combination.flagged = combination.z >= self.z_threshold
-            combination.reason = np.where(combination.flagged, TOP_SHARE, "").astype(object)
-            combination.rule = rule_sentence(len(self.methods) - ("hotelling" in self.methods),
-                                             self.options.contamination)
+            flagged = combination.z >= self.z_threshold
+            combination = dataclasses.replace(
+                combination, flagged=flagged, reason=np.where(flagged, TOP_SHARE, "").astype(object),
+                rule=rule_sentence(len(self.methods) - ("hotelling" in self.methods), self.options.contamination))
         out_of_spec = None
         if self.limits is not None:
             from investigator.checks.limits import spec_hits
@@ -127,3 +143,13 @@ class ScanModel:
         if self.key_column is not None and not pd.api.types.is_integer_dtype(out["key"]):
             out["key"] = out["key"].astype(str)
         return out
+
+
+def _read_only_pool(pool: Pool) -> Pool:
+    """The peer pool with its arrays read-only: every block's explanations read the same pool."""
+    from investigator.methods.fitted import read_only
+
+    f = pool.features
+    for array in (f.values, f.transformed, f.imputed, f.raw, *f.levels.values(), pool.positions, pool.rows):
+        read_only(array)
+    return pool

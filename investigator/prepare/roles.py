@@ -8,6 +8,7 @@ near-unique text, monotone integer counters), ``date``, ``text`` (free or high-c
 from __future__ import annotations
 
 import re
+from collections.abc import Sequence
 from dataclasses import asdict, dataclass
 
 import numpy as np
@@ -124,7 +125,7 @@ def _text_role(info: ColumnInfo, present: pd.Series) -> None:
 
 
 def assign_roles(
-    table: Table, features: list[str] | None = None, exclude: list[str] | None = None
+    table: Table, features: Sequence[str] | None = None, exclude: Sequence[str] | None = None
 ) -> list[ColumnInfo]:
     """Roles for every column of ``table``, with ``features``/``exclude`` applied on top of the inference."""
     columns = list(table.frame.columns)

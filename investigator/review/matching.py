@@ -206,7 +206,7 @@ def match_entries(table: Table, entries: Iterable[Entry]) -> Matching:
     if by_key:
         index = {str(k): i for i, k in enumerate(table.keys)}
         for e in by_key:
-            i = index.get(e.key)
+            i = index.get(e.key) if e.key is not None else None
             if i is None:
                 lost.append((e, f"no record with {column} '{e.key}' in {table.name}"))
             else:
@@ -214,7 +214,7 @@ def match_entries(table: Table, entries: Iterable[Entry]) -> Matching:
                 rows_of[e.case_id] = [i]
 
     canon = _Canon(table) if by_content else None
-    if by_content:
+    if canon is not None:
         positions: dict[str, list[int]] = {}
         for i, digest in enumerate(canon.fingerprints()):
             positions.setdefault(digest, []).append(i)
@@ -233,10 +233,10 @@ def match_entries(table: Table, entries: Iterable[Entry]) -> Matching:
 
     matches: dict[int, RecordMatch] = {}
     keys = table.keys
-    for i, found in hits.items():
-        found.sort(key=lambda h: h[0].change, reverse=True)
-        entry, how, copies = found[0]
-        match = RecordMatch(i, keys[i], entry, how, copies=copies, earlier=[h[0] for h in found[1:]])
+    for i, at_record in hits.items():
+        at_record.sort(key=lambda h: h[0].change, reverse=True)
+        entry, how, copies = at_record[0]
+        match = RecordMatch(i, keys[i], entry, how, copies=copies, earlier=[h[0] for h in at_record[1:]])
         if how == "key":
             now = record_values(table, i)
             if entry.fingerprint is not None and fingerprint(now) != entry.fingerprint:
@@ -244,9 +244,9 @@ def match_entries(table: Table, entries: Iterable[Entry]) -> Matching:
         matches[i] = match
 
     disappeared = []
-    if lost and canon is None:
-        canon = _Canon(table)
-    for n, (e, reason) in enumerate(lost):
-        near = canon.near(e.values) if e.values and n < HINT_LIMIT else None
-        disappeared.append(Disappeared(e, reason, *(near[0] + 1, near[1]) if near else ()))
+    if lost:
+        near_by = canon if canon is not None else _Canon(table)
+        for n, (e, reason) in enumerate(lost):
+            near = near_by.near(e.values) if e.values and n < HINT_LIMIT else None
+            disappeared.append(Disappeared(e, reason, *(near[0] + 1, near[1]) if near else ()))
     return Matching(table.n_rows, matches, disappeared, groups, rows_of)

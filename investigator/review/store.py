@@ -155,7 +155,7 @@ class Entry:
 
 def _entry(row: tuple) -> Entry:
     values = json.loads(row[12]) if row[12] is not None else None
-    return Entry(*row[:12], values, row[13])
+    return Entry(*[*row[:12], values, row[13]])
 
 
 class ReviewStore:
@@ -305,6 +305,7 @@ class ReviewStore:
                  run_id, case.fingerprint, values, data_sha256),
             )
             change = cursor.lastrowid
+        assert change is not None  # set by every INSERT
         return Entry(change, case.case_id, case.kind, case.key_column, case.key, case.row, verdict, note,
                      who, at, run_id, case.fingerprint, case.values, data_sha256)
 

@@ -44,6 +44,7 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -137,7 +138,7 @@ def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0, kinds: np.
     if not np.isfinite(X).all():
         raise ValueError("X must be finite (prepared features have no missing values)")
     m, big = min_group_size(n), large_size(n)
-    params = {"min_group_size": m, "large_cluster_size": big, "large_share": LARGE_SHARE,
+    params: dict[str, Any] = {"min_group_size": m, "large_cluster_size": big, "large_share": LARGE_SHARE,
               "method": "HDBSCAN (Campello, Moulavi & Sander 2013)"}
     notices: list[str] = []
     labels = np.full(n, -1)

@@ -47,6 +47,7 @@ import numpy as np
 
 from investigator import sampling
 from investigator.methods.base import Scale
+from investigator.methods.fitted import owned, read_only
 from investigator.methods.mcd import FastMCD, MCDFit, sq_distances
 
 LARGE_SHARE = 0.05
@@ -68,7 +69,8 @@ class KindsOfNormal:
     """Large clusters of ordinary records: one robust fit per kind, on the robust_distance features.
 
     ``fits``: one :class:`MCDFit` per kind; ``columns``: the feature columns the fits use; ``labels``: the
-    kind (0-based) of every scanned record; ``describe_``: the run record's view.
+    kind (0-based) of every scanned record; ``parameters``: the run record's view. Read-only once built:
+    scoring new records makes a copy with their labels (``dataclasses.replace``), never changes this one.
     """
 
     fits: tuple[MCDFit, ...]
@@ -76,6 +78,10 @@ class KindsOfNormal:
     labels: np.ndarray
     parameters: dict = field(default_factory=dict)
     shares: tuple[float, ...] = ()  # each kind's share of the records the kinds were fitted on
+
+    def __post_init__(self) -> None:
+        read_only(self.columns)
+        read_only(self.labels)
 
     @property
     def n_kinds(self) -> int:
@@ -196,7 +202,7 @@ def find_kinds(X: np.ndarray, columns: np.ndarray, mcd: FastMCD, *, seed: int = 
     fits = [mcd.fit(Xc[labels == k], spread_of=Xc) for k in range(len(fits))]
     shares = _shares(labels, len(fits))
     labels = _nearest(Xc, fits, shares)
-    return KindsOfNormal(tuple(fits), np.asarray(columns), labels, params, shares)
+    return KindsOfNormal(tuple(fits), owned(columns), labels, params, shares)
 
 
 def _candidates(Xs: np.ndarray, big: int) -> np.ndarray:
