@@ -59,7 +59,7 @@ def main() -> None:
     for name, build in labelled_sets().items():
         frame, labels = build()
         result = investigator.scan(frame)
-        aucs = [roc_auc_score(labels, r.scores) for r in result.methods.values()]
+        aucs = [roc_auc_score(labels, r.scores) for r in result.method_results.values()]
         consensus = roc_auc_score(labels, result.consensus)
         ok = "yes" if consensus >= max(aucs) - 0.03 else "no"
         note = "" if name in TESTED else "  (known limit, not in the tests)"
@@ -74,10 +74,9 @@ def main() -> None:
         ordinary = np.ones(len(frame), dtype=bool) if labels is None else labels == 0
         planted = "" if labels is None else f"; planted flagged {int(result.flagged[labels == 1].sum())} of " \
                                             f"{int((labels == 1).sum())}"
-        kinds = getattr(result, "kinds", None)
-        kinds = 0 if kinds is None else kinds.n_kinds
+        n_kinds = 0 if result.kinds is None else result.kinds.n_kinds
         print(f"  {name:<48} ordinary flagged {result.flagged[ordinary].mean():6.2%}{planted}; "
-              f"kinds of normal {kinds}; {secs:.1f} s")
+              f"kinds of normal {n_kinds}; {secs:.1f} s")
 
 
 if __name__ == "__main__":

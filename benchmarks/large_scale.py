@@ -34,16 +34,16 @@ t = time.perf_counter()
 table = load_table(path)
 result = run_scan(table, ScanOptions(exact=exact, map=map_method))
 scanned = time.perf_counter() - t
-explained = len(result.explanations())
+explained = len(result.explainer.flagged())
 result.write(out)
 total = time.perf_counter() - t
 labels = np.zeros(result.n_records)
 labels[:n_planted] = 1
-used = [a["part"] for a in result.run["approximations"] if a["used"]]
+used = [a.part for a in result.run.approximations if a.used]
 peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1e6  # kilobytes on Linux
 print(json.dumps({"seconds": total, "scan_seconds": scanned, "peak_gb": peak,
                   "auc": roc_auc_score(labels, result.consensus), "flagged": int(result.flagged.sum()),
-                  "explained": explained, "search": result.run["neighbors"]["search"], "approximations": used}))
+                  "explained": explained, "search": result.run.neighbors.search, "approximations": used}))
 """
 
 

@@ -107,10 +107,10 @@ def main() -> None:
         t = time.perf_counter()
         result = investigator.scan(frame)
         scan_time = time.perf_counter() - t
-        search = result.run["neighbors"]["search"]
+        search = result.run.neighbors.search
         print(f"\n{n:,} x {args.features}: full scan {scan_time:.1f} s (neighbour search: {search}); "
               f"flagged {int(result.flagged.sum()):,}; consensus AUC {roc_auc_score(labels, result.consensus):.4f}")
-        for k, m in result.methods.items():
+        for k, m in result.method_results.items():
             print(f"  {k:<18} AUC {roc_auc_score(labels, m.scores):.4f}")
         if args.no_reference:
             continue

@@ -34,6 +34,6 @@ def test_consensus_auc(name):
     assert len(frame) == {"wine": 129, "breast_cancer": 378}[name]  # the ODDS set sizes
     result = investigator.scan(frame)
     consensus_auc = roc_auc_score(labels, result.consensus)
-    singles = [roc_auc_score(labels, m.scores) for m in result.methods.values()]
+    singles = [roc_auc_score(labels, m.scores) for m in result.method_results.values()]
     assert consensus_auc >= 0.88
     assert consensus_auc >= np.mean(singles)

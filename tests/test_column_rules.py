@@ -81,6 +81,6 @@ def test_infinite_and_missing_cells_are_imputed_listed_and_not_hits():
     result = investigator.scan(_small_table(values), methods="isolation", log="none")
     assert result.record(7)["imputed"] == ["x"]
     assert result.record(11)["imputed"] == ["x"]
-    assert any("infinite" in n and "row 12" in n for n in result.run["notices"])
+    assert any("infinite" in n and "row 12" in n for n in result.run.notices)
     assert (12, "x") not in hits_of(result, "boxplot_fence")
     assert (13, "x") in hits_of(result, "boxplot_fence")

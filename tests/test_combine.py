@@ -36,16 +36,16 @@ def test_contamination_flags_that_share():
     assert result.flagged.sum() == 20
     top = set(result.ranking()[:20])
     assert set(np.flatnonzero(result.flagged)) == top
-    for m in result.methods.values():
+    for m in result.method_results.values():
         assert abs(m.flags.sum() - 20) <= 1
-    assert "0.05 share" in result.run["rule"]
+    assert "0.05 share" in result.run.rule
 
 
 def test_rule_sentence_is_in_the_run_record():
     rng = np.random.default_rng(2)
     frame = pd.DataFrame(rng.normal(size=(100, 2)), columns=["a", "b"])
     result = investigator.scan(frame, log="none")
-    assert result.run["rule"].startswith("A record is flagged when at least 2 of the 4 methods")
+    assert result.run.rule.startswith("A record is flagged when at least 2 of the 4 methods")
 
 
 def test_flags_survive_a_failing_density_method():
@@ -82,5 +82,5 @@ def test_fewer_methods(methods):
     X = rng.normal(size=(150, 3))
     X[0] = 8
     result = investigator.scan(pd.DataFrame(X, columns=list("abc")), methods=methods, log="none")
-    assert list(result.methods) == methods.split(",")
+    assert list(result.method_results) == methods.split(",")
     assert result.flagged[0]

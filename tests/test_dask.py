@@ -65,9 +65,9 @@ def test_dask_equals_in_memory_on_50k_rows_in_8_partitions(tmp_path, client):
     data = _write_parts(tmp_path / "ds", frame, 8)
     result = scan_dataset(data, ScanOptions(), out=tmp_path / "out", client=client)
     memory = investigator.scan(data)
-    _assert_same_records(memory.to_frame(), _read(tmp_path / "out"), memory.methods)
-    assert result.run["flagged"] == int(memory.flagged.sum())
-    assert result.run["input"]["rows"] == 50_000 and result.run["fit"]["sample"] == 50_000
+    _assert_same_records(memory.to_frame(), _read(tmp_path / "out"), memory.method_results)
+    assert result.run.flagged == int(memory.flagged.sum())
+    assert result.run.input.rows == 50_000 and result.run.fit.sample == 50_000
     assert len([p for p in os.listdir(tmp_path / "out") if p.endswith(".parquet")]) == 8
 
 
@@ -82,7 +82,7 @@ def test_dask_equals_in_memory_with_a_key_categories_gaps_and_contamination(tmp_
     options = ScanOptions(id="claim", contamination=0.02)
     scan_dataset(data, options, out=tmp_path / "out", client=client)
     memory = investigator.scan(data, options=options)
-    _assert_same_records(memory.to_frame(), _read(tmp_path / "out"), memory.methods)
+    _assert_same_records(memory.to_frame(), _read(tmp_path / "out"), memory.method_results)
     assert int(memory.flagged.sum()) == 60
 
 
@@ -90,14 +90,14 @@ def test_with_a_smaller_fit_sample_scores_equal_the_same_model_applied_in_memory
     frame, _ = planted_outliers(30_000, 5, seed=14)
     data = _write_parts(tmp_path / "ds", frame, 6)
     result = scan_dataset(data, ScanOptions(), out=tmp_path / "out", client=client, fit_sample=8_000)
-    assert result.run["fit"]["sample"] == 8_000
+    assert result.run.fit.sample == 8_000
     lengths = [5_000] * 6
     picks = draw_sample(lengths, 8_000, 0)
     rows = np.concatenate([p + 5_000 * i for i, p in enumerate(picks)])
     sample = Table(frame.iloc[rows].reset_index(drop=True), Source(str(data), "parquet dataset"), None, [], rows + 1)
     model = ScanModel.fit(sample, ScanOptions())
     expected = model.score_frame(frame, 0)
-    _assert_same_records(expected, _read(tmp_path / "out"), model.methods)
+    _assert_same_records(expected, _read(tmp_path / "out"), model.fitted_methods)
 
 
 def test_workers_with_a_memory_limit_well_below_the_dataset_complete_without_restarts(tmp_path):
@@ -125,7 +125,7 @@ def test_workers_with_a_memory_limit_well_below_the_dataset_complete_without_res
     cluster.close()
     out = pd.read_parquet(tmp_path / "out", columns=["row", "flagged"])
     assert sorted(out["row"]) == list(range(1, n_parts * per + 1))
-    assert result.run["flagged"] == int(out["flagged"].sum()) > 0
+    assert result.run.flagged == int(out["flagged"].sum()) > 0
 
 
 def test_the_command_line_connects_to_an_existing_cluster(tmp_path, client, capsys):
@@ -211,10 +211,10 @@ def test_the_demo_with_two_kinds_of_normal_scores_alike_on_dask(tmp_path, client
     table = load_table(write_demo(tmp_path))
     data = _write_parts(tmp_path / "ds", table.frame, 4)
     memory = investigator.scan(data, id=DEMO_ID)
-    assert "2 kinds of normal" in " ".join(memory.run["notices"])
+    assert "2 kinds of normal" in " ".join(memory.run.notices)
     result = scan_dataset(data, out=tmp_path / "out", client=client, id=DEMO_ID)
     got, expected = _read(tmp_path / "out"), memory.to_frame()
-    for key in memory.methods:
+    for key in memory.method_results:
         np.testing.assert_allclose(got[f"score_{key}"], expected[f"score_{key}"], rtol=1e-9, atol=1e-9, err_msg=key)
     assert (got["flagged"] == expected["flagged"]).all()
-    assert len(result.run["kinds"]["sizes"]) == 2  # one MCD per kind
+    assert len(result.run.fitted.kinds.sizes) == 2  # one MCD per kind

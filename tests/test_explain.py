@@ -34,7 +34,7 @@ def test_robust_distance_shapley_closed_form_equals_the_definition(p, seed):
     X[:4] += 6
     result = investigator.scan(pd.DataFrame(X, columns=[f"f{j}" for j in range(p)]),
                                methods="robust_distance", log="none")
-    method = result.methods["robust_distance"].method
+    method = result.method_results["robust_distance"].method
     positions = np.arange(10)
     closed = method_contributions(result, positions)["robust_distance"]
     for n, i in enumerate(positions):
@@ -52,24 +52,24 @@ def hbk_result():
 
 def test_hbk_outliers_are_explained_and_the_change_makes_them_ordinary(hbk_result):
     result = hbk_result
-    method = result.methods["robust_distance"].method
+    method = result.method_results["robust_distance"].method
     for i in range(14):
         e = result.explain(row=i + 1)
-        total = sum(c["value"] for c in e["contributions"]["robust_distance"])
+        total = sum(c.value for c in e.contributions["robust_distance"])
         assert total == pytest.approx(result.scores("robust_distance")[i], rel=1e-9)
-        change = e["nearest_ordinary"]
+        change = e.nearest_ordinary
         # Far out in all three columns: one or two changes are not enough, and the change says so.
-        assert change is not None and change["features_changed"] == 3
+        assert change is not None and change.features_changed == 3
         # Apply the change in the column's own units, prepare it as the scan does, and re-measure.
         z = result.features.values[i].copy()
-        for c in change["changes"]:
-            j = result.features.names.index(c["feature"])
+        for c in change.changes:
+            j = result.features.names.index(c.feature)
             spec = result.features.specs[j]
-            t = np.log(c["to"] + spec.offset) if spec.transform == "log" else c["to"]
+            t = np.log(c.after + spec.offset) if spec.transform == "log" else c.after
             z[j] = (t - spec.center) / spec.scale
         d2 = float(method.score(z[None, :])[0])
         assert d2 <= method.cutoff_
-        assert d2 == pytest.approx(change["distance_after"], rel=1e-6)
+        assert d2 == pytest.approx(change.distance_after, rel=1e-6)
 
 
 @pytest.fixture(scope="module")
@@ -86,10 +86,10 @@ def planted():
 
 def test_a_single_feature_deviation_is_ranked_first_by_every_method(planted):
     e = planted.explain(row=11)
-    assert e["flagged"]
-    for key, contributions in e["contributions"].items():
-        assert contributions[0]["feature"] == "x3", key
-    assert e["top_features"][0]["feature"] == "x3" and e["top_features"][0]["direction"] == "higher"
+    assert e.flagged
+    for key, contributions in e.contributions.items():
+        assert contributions[0].feature == "x3", key
+    assert e.top_features[0].feature == "x3" and e.top_features[0].direction == "higher"
 
 
 def test_the_single_feature_change_is_the_smallest_root(planted):
@@ -97,9 +97,9 @@ def test_the_single_feature_change_is_the_smallest_root(planted):
     from scipy.optimize import brentq
 
     result = planted
-    method = result.methods["robust_distance"].method
-    change = result.explain(row=11)["nearest_ordinary"]
-    assert change["features_changed"] == 1 and change["changes"][0]["feature"] == "x3"
+    method = result.method_results["robust_distance"].method
+    change = result.explain(row=11).nearest_ordinary
+    assert change.features_changed == 1 and change.changes[0].feature == "x3"
     x = result.features.values[10]
     j = result.features.names.index("x3")
 
@@ -111,19 +111,19 @@ def test_the_single_feature_change_is_the_smallest_root(planted):
     r = x - method.mcd_.location
     minimiser = -(method.precision_ @ r)[j] / method.precision_[j, j]
     root = brentq(excess, 0.0, minimiser, xtol=1e-12)
-    assert change["changes"][0]["change_scaled"] == pytest.approx(root, abs=1e-6)
-    assert change["distance_after"] <= method.cutoff_
+    assert change.changes[0].change_scaled == pytest.approx(root, abs=1e-6)
+    assert change.distance_after <= method.cutoff_
     spec = result.features.specs[j]
-    assert change["changes"][0]["to"] == pytest.approx((x[j] + root) * spec.scale + spec.center, abs=1e-6)
+    assert change.changes[0].after == pytest.approx((x[j] + root) * spec.scale + spec.center, abs=1e-6)
 
 
 def test_a_correlation_break_is_explained_by_the_pair_and_missed_by_column_rules(planted):
     e = planted.explain(row=21)
-    assert e["flagged"] and e["methods"]["robust_distance"]["flag"]
+    assert e.flagged and e.method_scores["robust_distance"].flag
     assert planted.column_hits[20] == []  # the case per-column rules miss
-    top_two = {c["feature"] for c in e["contributions"]["robust_distance"][:2]}
+    top_two = {c.feature for c in e.contributions["robust_distance"][:2]}
     assert top_two == {"x1", "x2"}
-    share = sum(c["share"] for c in e["contributions"]["robust_distance"] if c["feature"] in top_two)
+    share = sum(c.share for c in e.contributions["robust_distance"] if c.feature in top_two)
     assert share > 0.9
 
 
@@ -150,15 +150,15 @@ def test_peers_are_the_nearest_unflagged_records(planted):
     ordinary = np.flatnonzero(~result.flagged)
     for row in (11, 21, 100):
         e = result.explain(row=row)
-        peers = e["peers"]["records"]
+        peers = e.peers.records
         assert len(peers) == 5
-        positions = [p["row"] - 1 for p in peers]
+        positions = [p.row - 1 for p in peers]
         assert not result.flagged[positions].any()
         assert row - 1 not in positions
         d = np.linalg.norm(Z[ordinary] - Z[row - 1], axis=1)
         d[ordinary == row - 1] = np.inf
-        np.testing.assert_allclose([p["distance"] for p in peers], np.sort(d)[:5], rtol=1e-9)
-        assert e["peers"]["differences"]
+        np.testing.assert_allclose([p.distance for p in peers], np.sort(d)[:5], rtol=1e-9)
+        assert e.peers.differences
 
 
 def test_resampling_is_reproducible_and_separates_stable_from_unstable():

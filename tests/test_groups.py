@@ -35,7 +35,7 @@ def planted(seed: int = 0, p: int = 4) -> np.ndarray:
 def grouped(X: np.ndarray, flagged: np.ndarray, seed: int = 0):
     """The scan's structure step on prepared features X: kinds of normal, then groups."""
     kinds = find_kinds(X, np.arange(X.shape[1]), FastMCD(seed=seed), seed=seed)
-    return find_groups(X, flagged, seed=seed, kinds=None if kinds is None else kinds.labels)
+    return find_groups(X, flagged, seed=seed, kind_labels=None if kinds is None else kinds.labels)
 
 
 def fringe(X: np.ndarray, rows: np.ndarray, k: int = 3) -> np.ndarray:
@@ -189,20 +189,20 @@ def test_profile_names_the_planted_features(scanned):
     mask = np.zeros(len(frame), dtype=bool)
     mask[members] = True
     profile = group_profile(mask, result.features, result.table.frame)
-    used = [r for r in profile if r["used"]]
-    assert {r["feature"] for r in used[:2]} == {"viscosity", "line"}
-    by_name = {r["feature"]: r for r in profile}
+    used = [r for r in profile if r.used]
+    assert {r.feature for r in used[:2]} == {"viscosity", "line"}
+    by_name = {r.feature: r for r in profile}
     visc = by_name["viscosity"]
-    assert visc["direction"] == "higher" and visc["difference"] > 4
-    assert visc["group"] == pytest.approx(np.median(frame.viscosity[mask]))
-    assert visc["rest"] == pytest.approx(np.median(frame.viscosity[~mask]))
-    assert visc["group_range"] == pytest.approx([frame.viscosity[mask].min(), frame.viscosity[mask].max()])
+    assert visc.direction == "higher" and visc.difference > 4
+    assert visc.group == pytest.approx(np.median(frame.viscosity[mask]))
+    assert visc.rest == pytest.approx(np.median(frame.viscosity[~mask]))
+    assert visc.group_range == pytest.approx([frame.viscosity[mask].min(), frame.viscosity[mask].max()])
     line = by_name["line"]
-    assert line["group"] == "L9" and line["group_share"] == 1.0 and line["rest_share"] == 0.0
+    assert line.group == "L9" and line.group_share == 1.0 and line.rest_share == 0.0
     # The rest never has L9: its share counts as half a record of the rest.
-    assert line["difference"] == pytest.approx(np.log(1.0 / (0.5 / (~mask).sum())))
+    assert line.difference == pytest.approx(np.log(1.0 / (0.5 / (~mask).sum())))
     # The date the scan did not use is listed after the features, as shared by the whole batch.
-    assert by_name["made_on"]["used"] is False and by_name["made_on"]["group"] == "2025-03-01"
+    assert by_name["made_on"].used is False and by_name["made_on"].group == "2025-03-01"
     assert profile.index(by_name["made_on"]) >= len(used)
     assert "batch" not in by_name  # a key is never shared
 

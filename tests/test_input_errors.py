@@ -424,7 +424,7 @@ def test_frame_unknown_id():
 
 
 def _roles(result) -> dict[str, str]:
-    return {c["name"]: c["role"] for c in result.run["columns"]}
+    return {c.name: c.role for c in result.run.columns}
 
 
 @pytest.mark.parametrize("fmt", ["csv", "xlsx", "parquet"])
@@ -467,14 +467,14 @@ def test_infinite_values_are_missing_with_a_notice(fmt, tmp_path):
     else:
         data = frame
     result = investigator.scan(data, id="part_id")
-    notices = result.run["notices"]
+    notices = result.run.notices
     assert any("'width'" in n and "infinite" in n and "row 5" in n for n in notices), notices
     records = result.records()
     assert records[4]["imputed"] == ["width"]
     assert records[17]["imputed"] == ["width"]
     assert all(r["imputed"] == [] for i, r in enumerate(records) if i not in (4, 17))
     assert _roles(result)["width"] == "numeric"
-    for key in result.methods:
+    for key in result.method_results:
         assert np.isfinite(result.scores(key)).all(), key
 
 
@@ -483,14 +483,14 @@ def test_infinite_values_are_missing_with_a_notice(fmt, tmp_path):
 
 def _scores(data, **options):
     result = investigator.scan(data, id="part_id", log="none", **options)
-    return result, {k: result.scores(k) for k in result.methods}
+    return result, {k: result.scores(k) for k in result.method_results}
 
 
 def test_semicolon_delimiter_same_as_comma(tmp_path):
     frame = make_frame()
     _, expected = _scores(write_csv(tmp_path / "comma.csv", frame))
     result, got = _scores(write_csv(tmp_path / "semi.csv", frame, sep=";"))
-    assert result.run["input"]["delimiter"] == ";"
+    assert result.run.input.delimiter == ";"
     assert list(result.table.frame.columns) == list(frame.columns)
     for key in expected:
         assert_allclose(got[key], expected[key], rtol=1e-12, err_msg=key)
@@ -500,7 +500,7 @@ def test_semicolon_delimiter_same_as_comma(tmp_path):
 def test_tab_delimited(tmp_path, suffix):
     frame = make_frame()
     result = investigator.scan(write_csv(tmp_path / f"parts{suffix}", frame, sep="\t"), id="part_id")
-    assert result.run["input"]["delimiter"] == "\t"
+    assert result.run.input.delimiter == "\t"
     assert list(result.table.frame.columns) == list(frame.columns)
     assert result.keys == list(frame["part_id"])
 
@@ -511,7 +511,7 @@ def test_utf8_bom_is_not_part_of_the_first_name(tmp_path):
     assert path.read_bytes().startswith(b"\xef\xbb\xbf")
     result = investigator.scan(path, id="part_id")  # the key is the first column
     assert result.table.frame.columns[0] == "part_id"
-    assert result.run["input"]["encoding"] == "utf-8-sig"
+    assert result.run.input.encoding == "utf-8-sig"
     assert result.keys[:2] == ["P-000", "P-001"]
 
 
@@ -523,8 +523,8 @@ def test_cp1252_file_loads_with_an_encoding_notice(tmp_path):
     with pytest.raises(UnicodeDecodeError):
         raw.decode("utf-8")
     result = investigator.scan(path, id="part_id")
-    assert any("cp1252" in n for n in result.run["notices"]), result.run["notices"]
-    assert result.run["input"]["encoding"] == "cp1252"
+    assert any("cp1252" in n for n in result.run.notices), result.run.notices
+    assert result.run.input.encoding == "cp1252"
     assert set(result.table.frame["batch"]) == {"Café Süd", "Nord"}
 
 
@@ -532,7 +532,7 @@ def test_utf8_file_has_no_encoding_notice(tmp_path):
     frame = make_frame()
     frame["batch"] = np.where(np.arange(N) % 3 == 0, "Café Süd", "Nord")
     result = investigator.scan(write_csv(tmp_path / "utf8.csv", frame, encoding="utf-8"), id="part_id")
-    assert not any("UTF-8" in n for n in result.run["notices"])
+    assert not any("UTF-8" in n for n in result.run.notices)
     assert set(result.table.frame["batch"]) == {"Café Süd", "Nord"}
 
 
@@ -557,7 +557,7 @@ def test_parquet_round_trip_same_scores(tmp_path):
     _, expected = _scores(write_csv(tmp_path / "parts.csv", frame))
     frame.to_parquet(tmp_path / "parts.parquet", index=False)
     result, got = _scores(tmp_path / "parts.parquet")
-    assert result.run["input"]["format"] == "parquet"
+    assert result.run.input.format == "parquet"
     assert result.keys == list(frame["part_id"])
     assert set(expected) == set(got) and "robust_distance" in got
     for key in expected:
@@ -569,7 +569,7 @@ def test_xlsx_round_trip_same_scores(tmp_path):
     _, expected = _scores(write_csv(tmp_path / "parts.csv", frame))
     path = write_xlsx(tmp_path / "parts.xlsx", list(frame.columns), xlsx_rows(frame))
     result, got = _scores(path)
-    assert result.run["input"]["format"] == "xlsx"
+    assert result.run.input.format == "xlsx"
     assert result.records()[5]["imputed"] == ["height"]
     for key in expected:
         assert_allclose(got[key], expected[key], rtol=1e-10, err_msg=key)
@@ -590,9 +590,9 @@ def test_second_sheet_is_read_when_named(tmp_path):
         first.to_excel(writer, sheet_name="old", index=False)
         second.assign(part_id="S" + second["part_id"]).to_excel(writer, sheet_name="new", index=False)
     default = investigator.scan(path, id="part_id")
-    assert default.n_records == 30 and default.run["input"]["sheet"] == "old"
+    assert default.n_records == 30 and default.run.input.sheet == "old"
     chosen = investigator.scan(path, id="part_id", sheet="new")
-    assert chosen.n_records == 45 and chosen.run["input"]["sheet"] == "new"
+    assert chosen.n_records == 45 and chosen.run.input.sheet == "new"
     assert chosen.keys[0] == "SP-000"
 
 

@@ -23,7 +23,7 @@ from investigator.methods.neighbors import NeighborSearch
 
 
 def _approximations(result) -> dict:
-    return {a["part"].split(" (")[0]: a for a in result.run["approximations"]}
+    return {a.part.split(" (")[0]: a for a in result.run.approximations}
 
 
 def test_approximate_and_exact_paths_lose_at_most_001_auc_at_100k_rows():
@@ -34,7 +34,7 @@ def test_approximate_and_exact_paths_lose_at_most_001_auc_at_100k_rows():
     frame, labels = planted_outliers(100_000, 6, seed=3, shift=1.5)
     approx = investigator.scan(frame)
     exact = investigator.scan(frame, exact=True)
-    assert approx.run["neighbors"]["search"] == "sampled" and exact.run["neighbors"]["search"] == "exact"
+    assert approx.run.neighbors.search == "sampled" and exact.run.neighbors.search == "exact"
     auc_approx, auc_exact = roc_auc_score(labels, approx.consensus), roc_auc_score(labels, exact.consensus)
     assert 0.8 < auc_exact < 0.995  # the data are neither trivial nor hopeless
     assert auc_exact - auc_approx <= 0.01, (auc_approx, auc_exact)
@@ -70,11 +70,11 @@ def test_the_run_record_names_each_approximation_and_when_it_switches_on():
     exact = _approximations(exact_result)
     assert "Sampled for size: neighbour search" in default_result.summary()
     assert "Sampled for size" not in exact_result.summary()
-    assert default["neighbour search"]["used"] and default["neighbour search"]["above"] == 20_000
-    assert not exact["neighbour search"]["used"] and exact_result.run["neighbors"]["search"] == "exact"
-    assert not default["robust_distance"]["used"] and default["robust_distance"]["above"] == 100_000
-    assert not default["peers in explanations"]["used"]
-    assert default["isolation"]["used"] and not default["isolation"]["exact_turns_off"]
+    assert default["neighbour search"].used and default["neighbour search"].above == 20_000
+    assert not exact["neighbour search"].used and exact_result.run.neighbors.search == "exact"
+    assert not default["robust_distance"].used and default["robust_distance"].above == 100_000
+    assert not default["peers in explanations"].used
+    assert default["isolation"].used and not default["isolation"].exact_turns_off
 
 
 def test_peers_come_from_a_reproducible_sample_of_ordinary_records_above_the_switch(monkeypatch):
@@ -82,20 +82,20 @@ def test_peers_come_from_a_reproducible_sample_of_ordinary_records_above_the_swi
     monkeypatch.setattr(view, "PEER_SAMPLE", 300)
     frame, _ = planted_outliers(2_000, 4, seed=2, share=0.03)
     result = investigator.scan(frame)
-    pool = view.ordinary_pool(result)
+    pool = result.explainer.pool
     candidates = view.peer_candidates(pool, result.options)
     assert len(candidates) == 300 and np.array_equal(candidates, view.peer_candidates(pool, result.options))
     assert not result.flagged[candidates].any()
     flagged = np.flatnonzero(result.flagged)
-    peers, dist = view.find_peers(result, flagged, 5)
+    peers, dist = view.find_peers(result, pool, flagged, 5)
     # Reference: brute-force nearest neighbours (scikit-learn) among the same 300 candidates.
     ref = NearestNeighbors(n_neighbors=5, algorithm="brute").fit(result.features.values[candidates])
     ref_dist, ref_idx = ref.kneighbors(result.features.values[flagged])
     np.testing.assert_allclose(dist, ref_dist, rtol=1e-9)
     assert np.array_equal(peers, candidates[ref_idx])
-    assert _approximations(result)["peers in explanations"]["used"]
+    assert _approximations(result)["peers in explanations"].used
     exact = investigator.scan(frame, exact=True)
-    assert len(view.peer_candidates(view.ordinary_pool(exact), exact.options)) == int((~exact.flagged).sum())
+    assert len(view.peer_candidates(exact.explainer.pool, exact.options)) == int((~exact.flagged).sum())
 
 
 def test_the_pair_search_matches_one_solve_per_pair():
@@ -135,7 +135,7 @@ def test_top_features_for_the_output_table_match_the_full_explanations():
     result = investigator.scan(frame)
     flagged = np.flatnonzero(result.flagged)
     fast = view.top_features_texts(result, flagged)
-    full = [view.top_features_text(result.explanations()[i]) for i in flagged]
+    full = [view.top_features_text(result.explainer.flagged()[i]) for i in flagged]
     assert fast == full
 
 

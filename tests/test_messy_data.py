@@ -25,7 +25,7 @@ from investigator.tui.models.cases import cases_data
 
 def _finite(result):
     assert np.isfinite(result.consensus_z).all() and np.isfinite(result.consensus).all()
-    for r in result.methods.values():
+    for r in result.method_results.values():
         assert np.isfinite(r.scores).all(), r.key
         assert np.isfinite(r.z).all(), r.key
 
@@ -122,11 +122,11 @@ def test_robust_distance_uses_every_numeric_feature_and_reports_its_regularisati
     # The first version used 2 of the 9 biopsy features (MAD = 0 for the other 7).
     frame, labels = labelled.biopsy()
     result = investigator.scan(frame)
-    params = result.run["methods"]["robust_distance"]["parameters"]
+    params = result.run.method_fits["robust_distance"].parameters
     assert params["features_used"] == 9
     reg = params["regularisation"]
     assert reg is not None and 0 < reg["rho"] < 1 and reg["condition_number_limit"] == 50
-    assert any("MRCD" in n for n in result.run["notices"])
+    assert any("MRCD" in n for n in result.run.notices)
     # Ordinary records are not pushed into the thousands: the benign median distance stays near the
     # chi-square median (df 9: 8.34, SciPy) while the malignant ones lie far beyond.
     d2 = result.scores("robust_distance")
@@ -153,7 +153,7 @@ def test_a_relation_that_holds_to_the_cent_is_not_blurred():
     # 15,000-29,000 but one vote of four, so not flagged.
     frame, labels = messy.purchase_lines()
     result = investigator.scan(frame, id="line")
-    rd = result.methods["robust_distance"]
+    rd = result.method_results["robust_distance"]
     assert (rd.scores[labels == 1] > 100 * rd.cutoffs[labels == 1]).all()
 
 
@@ -217,7 +217,7 @@ def test_a_broken_relation_only_one_method_sees_is_flagged_and_says_why(tmp_path
     assert sum("far beyond robust_distance" in line for line in result.summary().splitlines()) == 3
     assert set(cases_data(result).reason[planted]) == {"far beyond robust_distance"}
     explained = result.explain(str(result.keys[planted[0]]))
-    assert explained["flag_reason"] == "far beyond robust_distance"
+    assert explained.flag_reason == "far beyond robust_distance"
     from investigator.report import write_report
 
     html = write_report(result, tmp_path / "r.html").read_text()
@@ -263,7 +263,7 @@ def test_one_population_is_one_kind(frame):
     # The first version reported 2 large clusters on 60,000 uniform records in 3 columns and flagged 4.6%.
     result = investigator.scan(frame)
     assert result.kinds is None
-    assert "kinds of normal" not in " ".join(result.run["notices"])
+    assert "kinds of normal" not in " ".join(result.run.notices)
     assert result.flagged.mean() <= 0.035
 
 
@@ -284,7 +284,7 @@ def test_consensus_auc_is_within_0_03_of_the_best_method(name):
 
     frame, labels = ENSEMBLE_SETS[name]()
     result = investigator.scan(frame)
-    best = max(roc_auc_score(labels, r.scores) for r in result.methods.values())
+    best = max(roc_auc_score(labels, r.scores) for r in result.method_results.values())
     assert roc_auc_score(labels, result.consensus) >= best - 0.03
 
 
@@ -301,13 +301,13 @@ def test_shuffled_rows_give_the_same_flags_and_scores():
     frame["key"] = [f"K{i}" for i in range(n)]
     a = investigator.scan(frame, id="key")
     b = investigator.scan(frame.iloc[rng.permutation(n)].reset_index(drop=True), id="key")
-    assert a.run["neighbors"]["search"] == "sampled"
+    assert a.run.neighbors.search == "sampled"
     by_key = {k: i for i, k in enumerate(b.keys)}
     order = np.array([by_key[k] for k in a.keys])
     np.testing.assert_array_equal(a.flagged, b.flagged[order])
     np.testing.assert_array_equal(a.rank, b.rank[order])
-    for key, r in a.methods.items():
-        np.testing.assert_allclose(r.scores, b.methods[key].scores[order], rtol=1e-12, err_msg=key)
+    for key, r in a.method_results.items():
+        np.testing.assert_allclose(r.scores, b.method_results[key].scores[order], rtol=1e-12, err_msg=key)
 
 
 def test_draws_by_content_ignore_the_order_of_the_rows():

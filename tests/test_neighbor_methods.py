@@ -89,5 +89,5 @@ def test_tiny_data_reduces_k_with_a_notice():
     rng = np.random.default_rng(6)
     frame = pd.DataFrame(rng.normal(size=(8, 2)), columns=["a", "b"])
     result = investigator.scan(frame, log="none")
-    assert result.run["methods"]["local_density"]["parameters"]["k"] == 7
-    assert any("k = 7" in n for n in result.run["notices"])
+    assert result.run.method_fits["local_density"].parameters["k"] == 7
+    assert any("k = 7" in n for n in result.run.notices)

@@ -43,14 +43,14 @@ def _frame():
 
 def test_roles_and_decisions_are_reported():
     result = investigator.scan(_frame())
-    roles = {c["name"]: c["role"] for c in result.run["columns"]}
+    roles = {c.name: c.role for c in result.run.columns}
     assert roles["id"] == "identifier"
-    used = {f["name"]: f for f in result.run["features"]}
+    used = {f.name: f for f in result.run.features}
     assert set(used) == {"amount", "temperature", "shift"}
-    assert used["amount"]["transform"] == "log" and "quartile skewness" in used["amount"]["decision"]
-    assert used["temperature"]["transform"] == "none"
-    assert used["shift"]["transform"] == "rarity"
-    notices = " ".join(result.run["notices"])
+    assert used["amount"].transform == "log" and "quartile skewness" in used["amount"].decision
+    assert used["temperature"].transform == "none"
+    assert used["shift"].transform == "rarity"
+    notices = " ".join(result.run.notices)
     assert "'copy' repeats column 'temperature'" in notices
     assert "'constant' has a single value" in notices
 
@@ -130,5 +130,5 @@ def test_missing_values_are_imputed_and_reported():
     result = investigator.scan(frame, log="none")
     assert [result.record(i)["imputed"] for i in (3, 4, 50)] == [["x"]] * 3
     assert result.features.transformed[3, 0] == pytest.approx(np.nanmedian(frame["x"]))
-    notices = " ".join(result.run["notices"])
+    notices = " ".join(result.run.notices)
     assert "'x': 3 missing values" in notices and "'kind': 1 missing value" in notices

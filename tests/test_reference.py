@@ -39,10 +39,10 @@ def test_phase_i_cleaning_keeps_the_limits_of_a_clean_reference():
     ref_clean = investigator.check(new, reference=clean, id="batch")
     cleaned = investigator.check(new, reference=dirty, id="batch")
     kept = investigator.check(new, reference=dirty, id="batch", keep_reference_outliers=True)
-    excluded = {r["key"] for r in cleaned.run["reference"]["phase_i"]["records"]}
+    excluded = {r.key for r in cleaned.run.reference.phase_i.records}
     assert {f"B2-{i:04d}" for i in range(40)} <= excluded  # every bad batch is listed and left out
-    assert cleaned.run["reference"]["used"] == 400 - len(excluded)
-    assert kept.run["reference"]["used"] == 400
+    assert cleaned.run.reference.used == 400 - len(excluded)
+    assert kept.run.reference.used == 400
     for col in ("viscosity", "pressure"):
         width = {name: np.diff(three_sigma(r, col))[0]
                  for name, r in (("clean", ref_clean), ("cleaned", cleaned), ("kept", kept))}
@@ -51,7 +51,7 @@ def test_phase_i_cleaning_keeps_the_limits_of_a_clean_reference():
             three_sigma_upper(kept, col) - three_sigma_upper(ref_clean, col))
         assert width["kept"] > width["cleaned"]
     # Hotelling's covariance from the kept reference is wider too (a larger determinant).
-    det = {name: np.linalg.det(r.methods["hotelling"].method.covariance_)
+    det = {name: np.linalg.det(r.method_results["hotelling"].method.covariance_)
            for name, r in (("clean", ref_clean), ("cleaned", cleaned), ("kept", kept))}
     assert det["kept"] > 2 * det["cleaned"] and det["cleaned"] < 2 * det["clean"]
 
@@ -62,27 +62,27 @@ def test_new_records_are_scored_against_the_reference_only():
     full = investigator.check(new, reference=ref, id="batch")
     alone = investigator.check(new.iloc[[3]], reference=ref, id="batch")
     # New records do not shift the reference: a record scores the same with or without the others.
-    for key in full.methods:
+    for key in full.method_results:
         assert alone.scores(key)[0] == pytest.approx(full.scores(key)[3], rel=1e-12)
     assert full.flagged[3]
     # Peers come from the reference.
     e = full.explain("B6-0003")
-    assert e["peers"]["from"] == "reference"
-    assert all(p["key"].startswith("B5-") for p in e["peers"]["records"])
+    assert e.peers.source == "reference"
+    assert all(p.key.startswith("B5-") for p in e.peers.records)
 
 
 def test_hotelling_is_reported_with_its_phase_ii_limit_and_split():
     ref, new = batches(200, 7), batches(20, 8)
     new.loc[0, "viscosity"] += 3
     result = investigator.check(new, reference=ref, id="batch")
-    hot = result.run["methods"]["hotelling"]
-    m = hot["parameters"]["reference_records"]
-    assert hot["cutoff"] == pytest.approx(phase_ii_limit(m, 3, 0.025))
-    assert "hotelling" not in result.run["rule"]  # reported, without a vote
+    hot = result.run.method_fits["hotelling"]
+    m = hot.parameters["reference_records"]
+    assert hot.cutoff == pytest.approx(phase_ii_limit(m, 3, 0.025))
+    assert "hotelling" not in result.run.rule  # reported, without a vote
     e = result.explain("B8-0000")
-    split = e["contributions"]["hotelling"]
-    assert sum(c["value"] for c in split) == pytest.approx(result.scores("hotelling")[0], rel=1e-9)
-    assert split[0]["feature"] == "viscosity"
+    split = e.contributions["hotelling"]
+    assert sum(c.value for c in split) == pytest.approx(result.scores("hotelling")[0], rel=1e-9)
+    assert split[0].feature == "viscosity"
 
 
 def test_mismatches_between_reference_and_new_records():
@@ -96,13 +96,13 @@ def test_mismatches_between_reference_and_new_records():
         investigator.check(text, reference=ref, id="batch")
     extra = new.assign(operator="ann")
     result = investigator.check(extra, reference=ref, id="batch")
-    assert any("operator" in n for n in result.run["notices"])
-    assert result.run["reference"]["extra_columns"] == ["operator"]
+    assert any("operator" in n for n in result.run.notices)
+    assert result.run.reference.extra_columns == ["operator"]
     unseen = new.copy()
     unseen.loc[2, "line"] = "L9"
     result = investigator.check(unseen, reference=ref, id="batch")
-    assert result.run["reference"]["unseen_levels"] == {"line": {"L9": 1}}
-    assert any("'L9'" in n for n in result.run["notices"])
+    assert result.run.reference.unseen_levels == {"line": {"L9": 1}}
+    assert any("'L9'" in n for n in result.run.notices)
 
 
 def test_check_command_and_limits(tmp_path, capsys):
@@ -140,9 +140,9 @@ def test_benford_and_duplicate_screens_in_a_scan(tmp_path):
     })
     frame.loc[[10, 11], ["vendor", "amount"]] = [["Birch", 999.0], ["Birch", 999.0]]
     result = investigator.scan(frame, digits="amount", duplicates="vendor,amount")
-    benford = result.run["screens"]["benford"]["amount"]
+    benford = result.run.screens["benford"]["amount"]
     assert benford["first_digit"]["conformity"] in ("close", "acceptable")
-    groups = result.run["screens"]["duplicates"]["groups"]
+    groups = result.run.screens["duplicates"]["groups"]
     assert any(g["rows"] == [11, 12] for g in groups)
     with pytest.raises(investigator.InputError, match="digits"):
         investigator.scan(frame, digits="nope")

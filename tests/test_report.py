@@ -126,12 +126,12 @@ def test_every_section_is_present_in_reading_order(demo):
     assert hashlib.sha256(path.read_bytes()).hexdigest() in plain
     n_flagged = int(result.flagged.sum())
     assert f"{n_flagged:,} of {result.n_records:,} records" in plain
-    assert result.run["rule"] in plain
+    assert result.run.rule in plain
     for feature in result.features.names:
         assert feature in plain
-    for notice in result.run["notices"]:
+    for notice in result.run.notices:
         assert notice in plain
-    for package, version in result.run["versions"].items():
+    for package, version in result.run.versions.items():
         assert package in plain and version in plain
     assert "not proof of error or fraud" in plain and "audit standards or quality system" in plain
     assert "no data left the machine" in plain
@@ -150,10 +150,10 @@ def test_cases_are_ranked_by_consensus_and_the_rest_counted(demo, tmp_path):
     small = write_report(result, tmp_path / "five.html", cases=5).read_text(encoding="utf-8")
     assert len(re.findall(r'<h3 id="case-\d+">', small)) == 5
     assert f"{len(flagged) - 5:,} flagged records left out here (--cases 5" in Page(small).plain()
-    explanation = result.explanations()[flagged[0]]
-    top = explanation["top_features"][0]
+    explanation = result.explainer.flagged()[flagged[0]]
+    top = explanation.top_features[0]
     first = text[text.index('id="case-1"'):text.index('id="case-2"')]
-    assert f"<td>{top['feature']}</td>" in first and top["direction"] in first
+    assert f"<td>{top.feature}</td>" in first and top.direction in first
 
 
 def test_no_external_url_or_script(demo):
@@ -392,9 +392,9 @@ def test_groups_and_map_sections_appear_when_present(demo, tmp_path):
     assert page.ids.index("found") < page.ids.index("groups") < page.ids.index("verdicts")
     plain = page.plain()
     case = result.group_cases[0]
-    assert f"Group {case['group']}: {case['size']} records" in plain
-    assert str(case["members"][0]["key"]) in plain
-    assert case["profile"][0]["feature"] in plain
+    assert f"Group {case.group}: {case.size} records" in plain
+    assert str(case.members[0].key) in plain
+    assert case.profile[0].feature in plain
 
 
 def test_out_is_required(capsys, hostile):

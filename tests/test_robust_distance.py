@@ -87,11 +87,11 @@ def test_chi_square_cutoffs_match_the_published_table():
         rng = np.random.default_rng(df)
         frame = pd.DataFrame(rng.normal(size=(60, df)), columns=columns)
         result = investigator.scan(frame, methods="robust_distance", log="none")
-        described = result.run["methods"]["robust_distance"]
-        assert described["parameters"]["chi_square_cutoff"] == pytest.approx(value, abs=5e-4)
+        described = result.run.method_fits["robust_distance"]
+        assert described.parameters["chi_square_cutoff"] == pytest.approx(value, abs=5e-4)
         # The cutoff that applies is never below the chi-square quantile (it rises where distances run
         # heavier than the model, as robust distances of 60 records do).
-        assert described["cutoff"] >= described["parameters"]["chi_square_cutoff"]
+        assert described.cutoff >= described.parameters["chi_square_cutoff"]
 
 
 def test_distances_are_affine_invariant():
@@ -113,7 +113,7 @@ def test_collinear_columns_give_a_notice_not_a_crash():
     frame = pd.DataFrame({"a": a, "b": b, "total": a + b, "c": rng.normal(size=200)})
     frame.loc[17, "total"] += 3  # a record that breaks the exact relation
     result = investigator.scan(frame, methods="robust_distance", log="none")
-    assert any("singular" in n for n in result.run["notices"])
+    assert any("singular" in n for n in result.run.notices)
     scores = result.scores("robust_distance")
     assert np.all(np.isfinite(scores))
     assert int(np.argmax(scores)) == 17
@@ -133,5 +133,5 @@ def test_an_exact_linear_pair_is_handled(n):
     frame = pd.DataFrame({"a": a, "b": 2 * a + 1})
     frame.loc[4, "b"] += 1.0
     result = investigator.scan(frame, methods="robust_distance", log="none")
-    assert any("singular" in notice for notice in result.run["notices"])
+    assert any("singular" in notice for notice in result.run.notices)
     assert int(np.argmax(result.scores("robust_distance"))) == 4

@@ -55,7 +55,7 @@ def outputs(model: ScanModel, frame: pd.DataFrame, first_row: int) -> tuple[dict
     result = model.score(frame, first_row)
     arrays = {"consensus": result.consensus, "consensus_z": result.consensus_z, "rank": result.rank,
               "votes": result.votes, "flagged": result.flagged, "kind": result.kinds.labels}
-    for key, r in result.methods.items():
+    for key, r in result.method_results.items():
         arrays |= {f"{key} scores": r.scores, f"{key} z": r.z, f"{key} flags": r.flags, f"{key} cutoffs": r.cutoffs}
     return arrays, result.to_frame()
 
@@ -116,20 +116,20 @@ def test_refitting_and_calibrating_the_kinds_change_neither_the_kinds_nor_the_me
     scan = run_scan(demo, options)
     X = scan.features.values
     rows = np.arange(0, len(X), 2)
-    fitted = {"kinds": scan.kinds, "methods": {k: r.method for k, r in scan.methods.items()},
-              "calibrations": {k: r.kinds for k, r in scan.methods.items()}, "rules": scan.rules,
+    fitted = {"kinds": scan.kinds, "methods": {k: r.method for k, r in scan.method_results.items()},
+              "calibrations": {k: r.calibration for k, r in scan.method_results.items()}, "rules": scan.rules,
               "preparer": scan.preparer}
     before = snapshot(fitted, "scan")
     refitted = scan.kinds.refit(X, rows, kinds_fitter(options, seed=3))
-    overall = {k: MethodResult.overall(r.method, r.scores) for k, r in scan.methods.items()}
+    overall = {k: MethodResult.overall(r.method, r.scores) for k, r in scan.method_results.items()}
     calibrated = apply_kinds(overall, refitted, X, calibrate_on=rows)
-    for r in scan.methods.values():
+    for r in scan.method_results.values():
         calibrate_kinds(r.method, r.scores, scan.kinds.labels)
-        r.kinds.apply(r.method, r.scores, scan.kinds.labels)
+        r.calibration.apply(r.method, r.scores, scan.kinds.labels)
     scan.kinds.assign(X), scan.kinds.distances(X), scan.rules.hits(scan.features), scan.preparer.transform(demo)
     assert changes(before, snapshot(fitted, "scan")) == []
     assert refitted is not scan.kinds and len(refitted.labels) == len(X)
-    assert all(calibrated[k].kinds is not scan.methods[k].kinds for k in calibrated)
+    assert all(calibrated[k].calibration is not scan.method_results[k].calibration for k in calibrated)
 
 
 def test_the_dask_path_with_two_threads_per_worker_writes_what_the_in_memory_scan_gives(demo, tmp_path):

@@ -51,23 +51,23 @@ def test_large_clusters_are_kinds_of_normal_not_outliers(two_kinds):
     # 300-record MCD runs a little above it).
     assert result.flagged[:600].mean() < 0.05 and result.flagged[600:900].mean() < 0.05
     assert result.flags("robust_distance")[600:900].mean() < 0.08
-    assert "kinds of normal" in " ".join(result.run["notices"])
+    assert "kinds of normal" in " ".join(result.run.notices)
     assert result.kinds.n_kinds == 2 and len(result.kinds.fits) == 2  # one MCD per kind
 
 
 def test_a_group_is_one_case_with_a_profile(two_kinds, tmp_path):
     result, eight, _ = two_kinds
     cases = result.group_cases
-    assert len(cases) == 1 and cases[0]["size"] == 8
-    assert [m["row"] for m in cases[0]["members"]] == [int(i) + 1 for i in eight]
+    assert len(cases) == 1 and cases[0].size == 8
+    assert [m.row for m in cases[0].members] == [int(i) + 1 for i in eight]
     # The eight were planted at x = -6 (below both clusters) and y = z = 5 (far above both), while w = 4.5
     # lies between the clusters: the profile leads with the three planted differences.
-    assert {p["feature"] for p in cases[0]["profile"][:3]} == {"x", "y", "z"}
+    assert {p.feature for p in cases[0].profile[:3]} == {"x", "y", "z"}
     result.write(tmp_path / "scan.json")
     doc = json.loads((tmp_path / "scan.json").read_text())
     assert doc["groups"][0]["size"] == 8
     rec = doc["records"][900]
-    assert rec["pattern"] == "group" and rec["group"] == cases[0]["group"] and len(rec["map"]) == 2
+    assert rec["pattern"] == "group" and rec["group"] == cases[0].group and len(rec["map"]) == 2
     frame = pd.read_csv(result.write(tmp_path / "scan.csv"))
     assert {"map_x", "map_y", "pattern", "group"} <= set(frame.columns)
     assert frame.loc[905, "pattern"] == "group"

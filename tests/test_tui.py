@@ -139,16 +139,16 @@ async def test_record_shows_the_contributions_of_the_selected_row(demo):
         screen = app.screen
         assert screen.position == position
         expected = app.result.explain(row=position + 1)
-        assert screen.view["key"] == expected["key"]
+        assert screen.view.explanation.key == expected.key
         bars = screen.query_one("#record-bars").render().plain
-        for method, items in expected["contributions"].items():
+        for method, items in expected.contributions.items():
             top = items[0]
-            assert method in bars and top["feature"] in bars and f"{top['share']:+.0%}" in bars
-        assert f"Record {expected['key']}" in screen_text(app)
+            assert method in bars and top.feature in bars and f"{top.share:+.0%}" in bars
+        assert f"Record {expected.key}" in screen_text(app)
 
         nxt = int(table.order[4])
         await pilot.press("down")
-        await wait_until(pilot, lambda: screen.view is not None and screen.view["row"] == nxt + 1)
+        await wait_until(pilot, lambda: screen.view is not None and screen.view.explanation.row == nxt + 1)
         assert screen.position == nxt
         await pilot.press("escape")
         assert isinstance(app.screen.query_one(CasesTable), CasesTable)
@@ -174,7 +174,7 @@ async def test_map_cursor_opens_the_right_record(demo):
         await pilot.press("enter")
         await wait_until(pilot, lambda: getattr(app.screen, "view", None) is not None)
         assert app.screen.position == chosen
-        assert app.screen.view["row"] == chosen + 1
+        assert app.screen.view.explanation.row == chosen + 1
 
 
 # -- 5. Verdict: typed in the UI, in the store afterwards, shown in Cases -------------------------------------
@@ -388,12 +388,12 @@ async def test_a_group_opens_as_one_case_and_takes_a_verdict(demo):
         assert type(app.screen).__name__ == "GroupScreen"
         case = app.screen.case
         text = screen_text(app)
-        assert f"Group {case['group']}: {case['size']} records" in text
-        assert case["profile"][0]["feature"] in text and str(app.result.keys[grouped[0]]) in text
+        assert f"Group {case.group}: {case.size} records" in text
+        assert case.profile[0].feature in text and str(app.result.keys[grouped[0]]) in text
         await pilot.press("v", "c", *"split purchase", "enter")
         await settle(app, pilot)
         with ReviewStore(default_store_path(demo), create=False) as store:
-            entry = store.get(f"group:{case['group']}")
+            entry = store.get(f"group:{case.group}")
         assert entry.verdict == "confirmed" and entry.note == "split purchase" and entry.kind == "group"
         assert "Verdict: confirmed" in screen_text(app)
         await pilot.press("escape")
@@ -430,4 +430,4 @@ async def test_the_map_opens_a_group_as_one_case(demo):
         await pilot.press("o")
         await settle(app, pilot)
         assert type(app.screen).__name__ == "GroupScreen"
-        assert app.screen.case["group"] == int(app.result.groups.group[chosen])
+        assert app.screen.case.group == int(app.result.groups.group[chosen])

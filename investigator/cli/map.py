@@ -37,5 +37,5 @@ def run_map(args: argparse.Namespace) -> int:
     result = scan(args.data, options=ScanOptions(**opts), progress=StderrBar())
     draw_map(result.map, result.flagged, result.consensus, result.groups, out,
              subtitle=f"{result.table.name}: {result.n_records:,} records, {int(result.flagged.sum()):,} flagged")
-    print(f"Map written to {out} ({result.run['map']['method']})")
+    print(f"Map written to {out} ({result.run.map.method})")
     return 0

@@ -32,14 +32,14 @@ def robust_fit_labels(result, positions: np.ndarray) -> tuple[list[tuple[np.ndar
     precision) and, per record, the index of its fit (its kind of normal, or 0)."""
     kinds = result.kinds
     if kinds is None:
-        m = result.methods["robust_distance"].method
+        m = result.method_results["robust_distance"].method
         return [(m.mcd_.location, m.precision_)], np.zeros(len(positions), dtype=int)
     return ([(f.location, np.linalg.inv(f.covariance)) for f in kinds.fits],
             np.asarray(kinds.labels)[positions])
 
 
 def robust_distance_contributions(result, positions: np.ndarray, X: np.ndarray) -> np.ndarray:
-    method = result.methods["robust_distance"].method
+    method = result.method_results["robust_distance"].method
     cols = method.columns_
     out = np.zeros(X.shape)
     fits, labels = robust_fit_labels(result, positions)
@@ -92,7 +92,7 @@ def method_contributions(result, positions: np.ndarray) -> dict[str, np.ndarray]
     """Contribution values per method key for the records at ``positions`` (0-based)."""
     X = result.features.values[positions]
     out = {}
-    for key, r in result.methods.items():
+    for key, r in result.method_results.items():
         m = r.method
         if key == "robust_distance":
             out[key] = robust_distance_contributions(result, positions, X)

@@ -17,12 +17,14 @@ from __future__ import annotations
 
 import numpy as np
 
+from investigator.explain.explanation import Change, NearestOrdinary
+
 MARGIN = 1e-9  # land just under the cutoff, not on it
 
 
-def nearest_ordinary(result, i: int) -> dict | None:
+def nearest_ordinary(result, i: int) -> NearestOrdinary | None:
     """The change, or None when the record is not above the robust_distance cutoff or nothing suffices."""
-    rd = result.methods.get("robust_distance")
+    rd = result.method_results.get("robust_distance")
     if rd is None or not rd.flags[i]:
         return None
     m = rd.method
@@ -101,7 +103,7 @@ def _along(P, Pr, E, d2, c):
     return (1 - np.sqrt(1 - (d2 - c) / red)) * step
 
 
-def _describe(result, i, features, deltas, method, d2_before) -> dict:
+def _describe(result, i, features, deltas, method, d2_before) -> NearestOrdinary:
     x = result.features.values[i].copy()
     changes = []
     for j, delta in zip(features, deltas, strict=True):
@@ -109,16 +111,15 @@ def _describe(result, i, features, deltas, method, d2_before) -> dict:
         before = float(result.features.raw[i, j])
         new_t = (x[j] + delta) * spec.scale + spec.center
         after = float(spec.to_original(new_t))
-        changes.append({"feature": spec.name, "from": before, "to": after, "change": after - before,
-                        "change_scaled": float(delta)})
+        changes.append(Change(spec.name, before, after, after - before, float(delta)))
         x[j] += delta
     location, P = _fit_of(result, i)
     r = x[method.columns_] - location
-    return {
-        "method": "robust_distance",
-        "features_changed": len(changes),
-        "changes": changes,
-        "distance_before": d2_before,
-        "distance_after": float(r @ P @ r),
-        "cutoff": float(result.methods["robust_distance"].cutoffs[i]),
-    }
+    return NearestOrdinary(
+        method="robust_distance",
+        features_changed=len(changes),
+        changes=tuple(changes),
+        distance_before=d2_before,
+        distance_after=float(r @ P @ r),
+        cutoff=float(result.method_results["robust_distance"].cutoffs[i]),
+    )

@@ -21,6 +21,18 @@ import numpy as np
 import pandas as pd
 
 from investigator.explain.contributions import method_contributions, shares
+from investigator.explain.explanation import (
+    Contribution,
+    Explanation,
+    MethodScore,
+    Peer,
+    PeerDifference,
+    Peers,
+    TopFeature,
+    Typical,
+    TypicalLevel,
+    TypicalRange,
+)
 from investigator.explain.nearest import nearest_ordinary
 from investigator.prepare.features import Features
 from investigator.prepare.roles import CATEGORICAL
@@ -49,14 +61,8 @@ class Pool:
         return self.source in ("scan", "sample")
 
 
-def ordinary_pool(result) -> Pool:
-    """The pool of ordinary records (computed once per result)."""
-    if result._pool is None:
-        result._pool = _pool(result)
-    return result._pool
-
-
-def _pool(result) -> Pool:
+def build_pool(result) -> Pool:
+    """The pool of ordinary records of ``result`` (built once per result by its :class:`Explainer`)."""
     if result.reference is not None:
         ref = result.reference
         return Pool(result.reference_features, np.arange(ref.n_rows), ref.row_numbers, ref.keys, "reference")
@@ -66,24 +72,20 @@ def _pool(result) -> Pool:
     return Pool(result.features, ordinary, result.table.row_numbers, result.keys, "scan")
 
 
-def typical_ranges(result) -> list[dict]:
-    """Per feature, what an ordinary record looks like (cached on the result)."""
-    if result._typical is not None:
-        return result._typical
-    pool = ordinary_pool(result)
+def typical_ranges(pool: Pool) -> tuple[Typical, ...]:
+    """Per feature, what an ordinary record of ``pool`` looks like."""
     F, members = pool.features, pool.positions
-    out = []
+    out: list[Typical] = []
     for j, spec in enumerate(F.specs):
         if spec.role == CATEGORICAL:
             share = pd.Series(F.levels[j][members]).value_counts(normalize=True)
-            out.append({"level": str(share.index[0]), "share": float(share.iloc[0])})
+            out.append(TypicalLevel(str(share.index[0]), float(share.iloc[0])))
         else:
             keep = members[~F.imputed[members, j]]
             t = F.transformed[keep, j]
             q1, med, q3 = (float(spec.to_original(v)) for v in np.quantile(t, [0.25, 0.5, 0.75]))
-            out.append({"median": med, "q1": q1, "q3": q3})
-    result._typical = out
-    return out
+            out.append(TypicalRange(med, q1, q3))
+    return tuple(out)
 
 
 def raw_value(features: Features, i: int, j: int):
@@ -105,11 +107,10 @@ def peer_candidates(pool: Pool, options) -> np.ndarray:
     return np.sort(rng.choice(members, size=PEER_SAMPLE, replace=False))
 
 
-def find_peers(result, positions: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+def find_peers(result, pool: Pool, positions: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
     """Rows (in the pool's features) and distances of the k nearest ordinary records to each record."""
     from sklearn.neighbors import NearestNeighbors
 
-    pool = ordinary_pool(result)
     members = peer_candidates(pool, result.options)
     same = pool.may_hold_the_record
     k = min(k, len(members) - 1 if same and len(members) > 1 else len(members))
@@ -125,20 +126,21 @@ def find_peers(result, positions: np.ndarray, k: int) -> tuple[np.ndarray, np.nd
     return cand[keep].reshape(len(positions), k), dist[keep].reshape(len(positions), k)
 
 
-def explain_positions(result, positions, peers: int = 5) -> list[dict]:
-    """Explanations for the records at 0-based ``positions`` (batched where it pays)."""
+def explain_positions(result, positions, pool: Pool, typical: tuple[Typical, ...],
+                      peers: int = 5) -> list[Explanation]:
+    """Explanations for the records at 0-based ``positions`` (batched where it pays), with peers from
+    ``pool`` and the ``typical`` ranges of its records (what :class:`Explainer` keeps)."""
     positions = np.asarray(positions, dtype=int)
     if len(positions) == 0:
         return []
     contrib = method_contributions(result, positions)
-    peer_pos, peer_dist = find_peers(result, positions, peers)
-    typical = typical_ranges(result)
+    peer_pos, peer_dist = find_peers(result, pool, positions, peers)
     return [
-        _one(result, i, n, contrib, peer_pos[n], peer_dist[n], typical) for n, i in enumerate(positions)
+        _one(result, pool, i, n, contrib, peer_pos[n], peer_dist[n], typical) for n, i in enumerate(positions)
     ]
 
 
-def _one(result, i, n, contrib, peer_pos, peer_dist, typical) -> dict:
+def _one(result, pool, i, n, contrib, peer_pos, peer_dist, typical) -> Explanation:
     names = result.features.names
     per_method = {}
     share_rows = []
@@ -146,8 +148,7 @@ def _one(result, i, n, contrib, peer_pos, peer_dist, typical) -> dict:
         v = values[n]
         sh = shares(v[None, :])[0]
         order = np.argsort(-np.abs(sh), kind="stable")
-        per_method[key] = [{"feature": names[j], "value": float(v[j]), "share": float(sh[j])}
-                           for j in order if v[j] != 0]
+        per_method[key] = tuple(Contribution(names[j], float(v[j]), float(sh[j])) for j in order if v[j] != 0)
         share_rows.append(shares(np.maximum(v, 0)[None, :])[0])
     mean_share = np.mean(share_rows, axis=0)
     z = result.features.values[i]
@@ -156,44 +157,42 @@ def _one(result, i, n, contrib, peer_pos, peer_dist, typical) -> dict:
         if mean_share[j] <= 0:
             break
         spec = result.features.specs[j]
-        pointing = [key for key, row in zip(contrib, share_rows, strict=True)
-                    if row[j] >= POINTS_AT or (row.max() > 0 and row.argmax() == j)]
-        direction = _direction(spec, z[j])
-        top.append({
-            "feature": spec.name, "value": raw_value(result.features, i, j), "direction": direction,
-            "typical": dict(typical[j]), "robust_z": float(z[j]), "share": float(mean_share[j]),
-            "methods": pointing, "imputed": bool(result.features.imputed[i, j]),
-        })
-    return {
-        "row": int(result.table.row_numbers[i]),
-        "key": result.keys[i],
-        "flagged": bool(result.flagged[i]),
-        "votes": int(result.votes[i]),
-        "flag_reason": result.flag_reason[i] or None,
-        "rank": int(result.rank[i]),
-        "consensus": float(result.consensus[i]),
-        "consensus_z": float(result.consensus_z[i]),
-        "methods": {
-            key: {"score": float(r.scores[i]), "cutoff": float(r.cutoffs[i]), "flag": bool(r.flags[i]),
-                  "z": float(r.z[i]), "far_beyond": bool(r.far_beyond[i]), "unified": float(r.unified[i])}
-            for key, r in result.methods.items()
+        pointing = tuple(key for key, row in zip(contrib, share_rows, strict=True)
+                         if row[j] >= POINTS_AT or (row.max() > 0 and row.argmax() == j))
+        top.append(TopFeature(
+            feature=spec.name, value=raw_value(result.features, i, j), direction=_direction(spec, z[j]),
+            typical=typical[j], robust_z=float(z[j]), share=float(mean_share[j]), methods=pointing,
+            imputed=bool(result.features.imputed[i, j]),
+        ))
+    return Explanation(
+        row=int(result.table.row_numbers[i]),
+        key=result.keys[i],
+        flagged=bool(result.flagged[i]),
+        votes=int(result.votes[i]),
+        flag_reason=result.flag_reason[i] or None,
+        rank=int(result.rank[i]),
+        consensus=float(result.consensus[i]),
+        consensus_z=float(result.consensus_z[i]),
+        method_scores={
+            key: MethodScore(float(r.scores[i]), float(r.cutoffs[i]), bool(r.flags[i]), float(r.z[i]),
+                             bool(r.far_beyond[i]), float(r.unified[i]))
+            for key, r in result.method_results.items()
         },
-        "contributions": per_method,
-        "top_features": top,
-        "column_hits": result.column_hits[i],
-        "peers": _peers(result, i, peer_pos, peer_dist),
-        "nearest_ordinary": nearest_ordinary(result, i),
-        "stability": None if result.stability is None else float(result.stability[i]),
-        "resamples": result.options.resamples or None,
-    }
+        contributions=per_method,
+        top_features=tuple(top),
+        column_hits=tuple(result.column_hits[i]),
+        peers=_peers(result, pool, i, peer_pos, peer_dist),
+        nearest_ordinary=nearest_ordinary(result, i),
+        stability=None if result.stability is None else float(result.stability[i]),
+        resamples=result.options.resamples or None,
+    )
 
 
-def _peers(result, i, peer_pos, peer_dist) -> dict:
-    pool = ordinary_pool(result)
+def _peers(result, pool, i, peer_pos, peer_dist) -> Peers:
     F, names = pool.features, result.features.names
-    rows = [{"row": int(pool.rows[p]), "key": pool.keys[p], "distance": float(d),
-             "values": {names[j]: raw_value(F, int(p), j) for j in range(len(names))}}
-            for p, d in zip(peer_pos, peer_dist, strict=True)]
+    rows = tuple(Peer(int(pool.rows[p]), pool.keys[p], float(d),
+                      {names[j]: raw_value(F, int(p), j) for j in range(len(names))})
+                 for p, d in zip(peer_pos, peer_dist, strict=True))
     differences = []
     if len(peer_pos):
         gap = result.features.values[i] - np.median(F.values[peer_pos], axis=0)
@@ -204,9 +203,9 @@ def _peers(result, i, peer_pos, peer_dist) -> dict:
                 typical = max(peer_values, key=peer_values.count)  # ties: the nearest peer's value
             else:
                 typical = float(spec.to_original(np.median(F.transformed[peer_pos, j])))
-            differences.append({"feature": spec.name, "value": raw_value(result.features, i, j),
-                                "peers": typical, "gap_scaled": float(gap[j])})
-    return {"records": rows, "differences": differences, "from": pool.source}
+            differences.append(PeerDifference(spec.name, raw_value(result.features, i, j), typical,
+                                              float(gap[j])))
+    return Peers(rows, tuple(differences), pool.source)
 
 
 def _direction(spec, z: float) -> str:
@@ -220,10 +219,9 @@ def _direction(spec, z: float) -> str:
 SIGNS = {"higher": "+", "lower": "-", "typical": "~", "rarer": "rare", "common": "common"}
 
 
-def top_features_text(explanation: dict, limit: int = 3) -> str:
+def top_features_text(explanation: Explanation, limit: int = 3) -> str:
     """E.g. "amount (+, 61%); hour (+, 22%)" for CSV/Parquet."""
-    return "; ".join(f"{t['feature']} ({SIGNS[t['direction']]}, {t['share']:.0%})"
-                     for t in explanation["top_features"][:limit])
+    return "; ".join(f"{t.feature} ({SIGNS[t.direction]}, {t.share:.0%})" for t in explanation.top_features[:limit])
 
 
 def top_features_texts(result, positions, limit: int = 3) -> list[str]:

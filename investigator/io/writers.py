@@ -1,4 +1,6 @@
-"""Writing a scan result: JSON (the full contract), CSV and Parquet (one row per record).
+"""What writing results needs, whatever is written: JSON text without NaN, spreadsheet-safe CSV cells, and a
+usable --out path checked before any work. Which result goes into which file is the output layer's
+(:mod:`investigator.output.records`).
 
 CSV cells that a spreadsheet would run as a formula (starting with = + - @, a tab or a carriage return) are
 prefixed with an apostrophe (OWASP, "CSV Injection"). Numbers are written as numbers.
@@ -57,25 +59,3 @@ def check_out_path(path: Path) -> None:
         raise InputError(f"--out {path}: unknown format '{suffix}'; use one of {', '.join(FORMATS)}")
     if not path.parent.exists():
         raise InputError(f"--out {path}: folder {path.parent} does not exist; create it first")
-
-
-def write_result(result, path: Path) -> Path:
-    check_out_path(path)
-    suffix = path.suffix.lower()
-    tmp = path.with_name(path.name + ".part")
-    if suffix == ".json":
-        tmp.write_text(to_json_text(result.to_dict()), encoding="utf-8")
-    elif suffix == ".csv":
-        safe_frame(_key_as_text(result.to_frame())).to_csv(tmp, index=False, lineterminator="\n")
-    else:
-        frame = _key_as_text(result.to_frame())
-        frame.to_parquet(tmp, index=False)
-    tmp.replace(path)  # never leave a half-written output under the real name
-    return path
-
-
-def _key_as_text(frame: pd.DataFrame) -> pd.DataFrame:
-    # Keys can mix numbers and text; one type per column keeps CSV and Parquet readers consistent.
-    if not pd.api.types.is_integer_dtype(frame["key"]):
-        frame = frame.assign(key=frame["key"].astype(str))
-    return frame

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from investigator.explain.explanation import Explanation, Typical, TypicalLevel
+
 # How often a flag recurs over resampled runs (--resamples) for it to be called stable or unstable.
 STABLE = 0.9
 UNSTABLE = 0.5
@@ -25,98 +27,96 @@ def _fmt(value) -> str:
     return str(value)
 
 
-def _typical(t: dict) -> str:
-    if "level" in t:
-        return f"mostly {t['level']} ({t['share']:.0%})"
-    return f"{_fmt(t['median'])} ({_fmt(t['q1'])} to {_fmt(t['q3'])})"
+def _typical(t: Typical) -> str:
+    if isinstance(t, TypicalLevel):
+        return f"mostly {t.level} ({t.share:.0%})"
+    return f"{_fmt(t.median)} ({_fmt(t.q1)} to {_fmt(t.q3)})"
 
 
-def _headline(e: dict) -> str:
-    m = len(e["methods"])
-    who = f"Record {e['key']}" + (f" (row {e['row']})" if e["key"] != e["row"] else "")
-    why = e.get("flag_reason") or ""
-    if e["flagged"] and why.startswith("far beyond ") and why != "far beyond combined":
+def _headline(e: Explanation) -> str:
+    m = len(e.method_scores)
+    who = f"Record {e.key}" + (f" (row {e.row})" if e.key != e.row else "")
+    why = e.flag_reason or ""
+    if e.flagged and why.startswith("far beyond ") and why != "far beyond combined":
         names = why.removeprefix("far beyond ")
         lead = (f"{who} is flagged: {names} puts it far beyond its cutoff (beyond the far-out fence of its "
-                f"scores), though only {e['votes']} of {m} methods put it above their cutoff")
-    elif e["flagged"] and why == "far beyond combined":
+                f"scores), though only {e.votes} of {m} methods put it above their cutoff")
+    elif e.flagged and why == "far beyond combined":
         lead = (f"{who} is flagged: the methods' evidence together is far beyond that of ordinary records, "
-                f"though only {e['votes']} of {m} methods put it above their cutoff")
-    elif e["flagged"]:
-        lead = f"{who} is flagged: {e['votes']} of {m} methods put it above their cutoff"
-    elif e["votes"]:
-        lead = f"{who} is not flagged: only {e['votes']} of {m} methods put it above their cutoff"
+                f"though only {e.votes} of {m} methods put it above their cutoff")
+    elif e.flagged:
+        lead = f"{who} is flagged: {e.votes} of {m} methods put it above their cutoff"
+    elif e.votes:
+        lead = f"{who} is not flagged: only {e.votes} of {m} methods put it above their cutoff"
     else:
         lead = f"{who} is not flagged: no method puts it above its cutoff"
-    rank = f"rank {e['rank']:,}, " if e.get("rank") is not None else ""
-    lead += f" ({rank}consensus {e['consensus']:.3f})."
+    rank = f"rank {e.rank:,}, " if e.rank is not None else ""
+    lead += f" ({rank}consensus {e.consensus:.3f})."
     parts = []
-    for t in e["top_features"][:2]:
-        if t["direction"] == "rarer":
-            parts.append(f"{t['feature']} has a rare value ({_fmt(t['value'])}; typical: "
-                         f"{_typical(t['typical'])})")
-        elif t["direction"] in ("higher", "lower"):
-            parts.append(f"{t['feature']} is {t['direction']} than typical ({_fmt(t['value'])} against "
-                         f"a median of {_fmt(t['typical']['median'])})")
+    for t in e.top_features[:2]:
+        if t.direction == "rarer":
+            parts.append(f"{t.feature} has a rare value ({_fmt(t.value)}; typical: {_typical(t.typical)})")
+        elif t.direction in ("higher", "lower"):
+            median = t.typical.median if not isinstance(t.typical, TypicalLevel) else None
+            parts.append(f"{t.feature} is {t.direction} than typical ({_fmt(t.value)} against "
+                         f"a median of {_fmt(median)})")
     if parts:
-        intro = " It stands out mainly because " if e["votes"] else " Its largest deviations: "
+        intro = " It stands out mainly because " if e.votes else " Its largest deviations: "
         lead += intro + " and ".join(parts) + "."
     return lead
 
 
-def explanation_text(e: dict) -> str:
+def explanation_text(e: Explanation) -> str:
     lines = [_headline(e)]
-    if e.get("stability") is not None:
-        runs = e["resamples"]
-        seen = round(e["stability"] * runs)
-        lines.append(f"Flagged in {seen} of {runs} resampled runs: {stability_label(e['stability'])}.")
-    nearest = e.get("nearest_ordinary")
+    if e.stability is not None and e.resamples is not None:
+        runs = e.resamples
+        seen = round(e.stability * runs)
+        lines.append(f"Flagged in {seen} of {runs} resampled runs: {stability_label(e.stability)}.")
+    nearest = e.nearest_ordinary
     if nearest:
-        change = " and ".join(f"{c['feature']} {_fmt(c['to'])} instead of {_fmt(c['from'])}"
-                              for c in nearest["changes"])
-        if nearest["features_changed"] > 2:
+        change = " and ".join(f"{c.feature} {_fmt(c.after)} instead of {_fmt(c.before)}" for c in nearest.changes)
+        if nearest.features_changed > 2:
             lines.append("No change to one or two features alone brings it under the robust_distance cutoff.")
         lines.append(f"Smallest change found that brings it under the robust_distance cutoff: {change} "
-                     f"(distance {nearest['distance_before']:.1f} -> {nearest['distance_after']:.1f}, cutoff "
-                     f"{nearest['cutoff']:.2f}).")
-    elif e["methods"].get("robust_distance", {}).get("flag"):
+                     f"(distance {nearest.distance_before:.1f} -> {nearest.distance_after:.1f}, cutoff "
+                     f"{nearest.cutoff:.2f}).")
+    elif e.flagged_by("robust_distance"):
         lines.append("No change to the features robust_distance uses brings it under its cutoff.")
     lines += ["", "Methods", f"  {'method':<18} {'score':>10} {'cutoff':>10}  flag  top features"]
-    for key, m in e["methods"].items():
-        contrib = e["contributions"].get(key, [])[:3]
-        tops = ", ".join(f"{c['feature']} {c['share']:.0%}" for c in contrib)
-        flag = "yes" if m["flag"] else "no"
-        lines.append(f"  {key:<18} {m['score']:>10.4g} {m['cutoff']:>10.4g}  {flag:<4}  {tops}")
-    if any(c["share"] < 0 for c in e["contributions"].get("robust_distance", [])):
+    for key, m in e.method_scores.items():
+        tops = ", ".join(f"{c.feature} {c.share:.0%}" for c in e.contributions_of(key)[:3])
+        flag = "yes" if m.flag else "no"
+        lines.append(f"  {key:<18} {m.score:>10.4g} {m.cutoff:>10.4g}  {flag:<4}  {tops}")
+    if any(c.share < 0 for c in e.contributions_of("robust_distance")):
         lines.append("  (a negative robust_distance share: given the other features, this one brings the "
                      "record closer to the centre)")
-    if e["top_features"]:
+    if e.top_features:
         lines += ["", "Features that stand out (across methods)",
                   f"  {'feature':<16} {'value':>12}  {'direction':<9} {'typical (median, IQR)':<28} "
                   f"{'z':>6} {'share':>6}  methods"]
-        for t in e["top_features"]:
-            lines.append(f"  {t['feature']:<16} {_fmt(t['value']):>12}  {t['direction']:<9} "
-                         f"{_typical(t['typical']):<28} {t['robust_z']:>6.1f} {t['share']:>6.0%}  "
-                         f"{', '.join(t['methods'])}")
-    if e["column_hits"]:
+        for t in e.top_features:
+            lines.append(f"  {t.feature:<16} {_fmt(t.value):>12}  {t.direction:<9} "
+                         f"{_typical(t.typical):<28} {t.robust_z:>6.1f} {t.share:>6.0%}  "
+                         f"{', '.join(t.methods)}")
+    if e.column_hits:
         lines += ["", "Column hits"]
-        for h in e["column_hits"]:
+        for h in e.column_hits:
             side = "above" if h["side"] == "upper" else "below"
             lines.append(f"  {h['column']}: {h['rule']} ({_fmt(h['value'])} is {side} {_fmt(h['limit'])})")
-    peers = e["peers"]["records"]
+    peers = e.peers.records
     if peers:
-        names = [t["feature"] for t in e["top_features"][:4]] or list(peers[0]["values"])[:4]
+        names = [t.feature for t in e.top_features[:4]] or list(peers[0].values)[:4]
         lines += ["", f"Peers: the {len(peers)} nearest unflagged records",
                   f"  {'row':>6} {'key':<14} {'distance':>8}  " + "  ".join(f"{n[:12]:>12}" for n in names)]
-        own = {t["feature"]: t["value"] for t in e["top_features"]}
-        lines.append(f"  {'this':>6} {str(e['key'])[:14]:<14} {'':>8}  "
+        own = {t.feature: t.value for t in e.top_features}
+        lines.append(f"  {'this':>6} {str(e.key)[:14]:<14} {'':>8}  "
                      + "  ".join(f"{_fmt(own.get(n)):>12}" for n in names))
         for p in peers:
-            lines.append(f"  {p['row']:>6} {str(p['key'])[:14]:<14} {p['distance']:>8.2f}  "
-                         + "  ".join(f"{_fmt(p['values'].get(n)):>12}" for n in names))
-        diffs = e["peers"]["differences"]
+            lines.append(f"  {p.row:>6} {str(p.key)[:14]:<14} {p.distance:>8.2f}  "
+                         + "  ".join(f"{_fmt(p.values.get(n)):>12}" for n in names))
+        diffs = e.peers.differences
         if diffs:
             lines.append("  Differences that matter most: " + "; ".join(
-                f"{d['feature']} {_fmt(d['value'])} vs {_fmt(d['peers'])}" for d in diffs))
+                f"{d.feature} {_fmt(d.value)} vs {_fmt(d.peers)}" for d in diffs))
     lines += ["", "A flag is a lead for a person to review, not proof of error or fraud."]
     return "\n".join(lines)

@@ -2,6 +2,12 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:  # this layer reads the result it is given; it never imports the pipeline
+    from investigator.pipeline.dask_engine import DatasetScan
+    from investigator.pipeline.result import ScanResult
+
 CAUTION = (
     "Flags are leads for a person to review, not proof of error or fraud; follow your audit standards "
     "or quality system."
@@ -13,13 +19,13 @@ def _short(value, width: int = 14) -> str:
     return text if len(text) <= width else text[: width - 1] + "~"
 
 
-def summary_text(result, top: int = 10) -> str:
+def summary_text(result: ScanResult, top: int = 10) -> str:
     run = result.run
     lines = []
-    src = run["input"]
-    digest = src.get("sha256", "")
+    src = run.input
+    digest = src.sha256 or ""
     lines.append(f"Scanned {result.table.name}" + (f" (sha256 {digest[:12]}...)" if digest else ""))
-    lines.append(f"{src['rows']:,} records, {src['columns']} columns, key: {src['key']}")
+    lines.append(f"{src.rows:,} records, {src.columns} columns, key: {src.key}")
     feats = []
     for spec in result.features.specs:
         tag = {"log": " (log)", "rarity": " (category)"}.get(spec.transform, "")
@@ -28,26 +34,27 @@ def summary_text(result, top: int = 10) -> str:
     left = [f"{c.name} ({c.role})" for c in result.columns if not c.is_feature]
     if left:
         lines.append("Left out: " + ", ".join(left))
-    if run["notices"]:
+    if run.notices:
         lines.append("Notices:")
-        lines += [f"  - {n}" for n in run["notices"]]
-    nb = run.get("neighbors")
-    search = f"; neighbours: {nb['search']}, k={nb['k']}" if nb else ""
-    lines.append("Methods: " + ", ".join(result.methods) + search)
-    lines.append("Rule: " + run["rule"])
-    sampled = [a["part"] for a in run.get("approximations") or [] if a["used"] and a["exact_turns_off"]]
+        lines += [f"  - {n}" for n in run.notices]
+    nb = run.neighbors
+    search = f"; neighbours: {nb.search}, k={nb.k}" if nb else ""
+    lines.append("Methods: " + ", ".join(result.method_results) + search)
+    lines.append("Rule: " + run.rule)
+    sampled = [a.part for a in run.approximations if a.used and a.exact_turns_off]
     if sampled:
         lines.append(f"Sampled for size: {'; '.join(sampled)} (run.approximations says how; --exact turns it off)")
-    if "reference" in run:
-        ref = run["reference"]
-        lines.append(f"Reference: {ref['input'].get('path', 'a data frame')}, {ref['used']:,} of "
-                     f"{ref['input']['rows']:,} records used (phase I left out {ref['phase_i']['excluded']:,}); "
-                     "hotelling reported beside the methods, without a vote")
-    spec = result.out_of_spec
-    if spec is not None:
-        lines.append(f"Out of specification: {sum(1 for h in spec if h):,} records break a --limits limit "
+    if run.reference is not None:
+        ref = run.reference
+        path = ref.input.path if ref.input.path is not None else "a data frame"
+        lines.append(f"Reference: {path}, {ref.used:,} of {ref.input.rows:,} records used (phase I left out "
+                     f"{ref.phase_i.excluded:,}); hotelling reported beside the methods, without a vote")
+    out_of_spec = result.out_of_spec
+    if out_of_spec is not None:
+        lines.append(f"Out of specification: {sum(1 for h in out_of_spec if h):,} records break a --limits limit "
                      "(a rule breach, apart from the statistical flags)")
-    benford = (run.get("screens") or {}).get("benford", {})
+    screens = run.screens or {}  # each check's own report (checks/)
+    benford = screens.get("benford", {})
     for col, tests in benford.items():
         for label, key in (("first digit", "first_digit"), ("first two digits", "first_two_digits")):
             t = tests[key]
@@ -56,14 +63,14 @@ def summary_text(result, top: int = 10) -> str:
                          f"values; most over-represented: {', '.join(map(str, t['excess_digits']))}{warn}")
     if benford:
         lines.append("  " + next(iter(benford.values()))["first_digit"]["caution"])
-    dup = (run.get("screens") or {}).get("duplicates")
+    dup = screens.get("duplicates")
     if dup:
         lines.append(f"Same values on {', '.join(dup['columns'])}: {dup['n_groups']:,} groups, "
                      f"{dup['records_in_groups']:,} records")
     n, flagged = result.n_records, int(result.flagged.sum())
     with_hits = sum(1 for h in result.column_hits if h)
     lines.append(
-        f"Flagged: {flagged:,} of {n:,} records ({flagged / n:.1%}); {with_hits:,} records have column hits"
+        f"Flagged: {flagged:,} of {n:,} records ({flagged / max(n, 1):.1%}); {with_hits:,} records have column hits"
     )
     order = [i for i in result.ranking() if result.flagged[i]][:top]
     if order:
@@ -73,12 +80,10 @@ def summary_text(result, top: int = 10) -> str:
         stable_head = f" {'runs':>7}" if result.stability is not None else ""
         lines.append(f"  {'rank':>6} {'row':>6}  {'key':<14} {'consensus':>9} {'votes':>5}{stable_head}  "
                      "why | methods above their cutoff | column hits")
-        m = sum(1 for r in result.methods.values() if r.method.votes)  # hotelling does not vote
+        results = result.method_results
+        m = sum(1 for r in results.values() if r.method.votes)  # hotelling does not vote
         for i in order:
-            strongest = sorted(
-                (k for k, r in result.methods.items() if r.flags[i]),
-                key=lambda k: -result.methods[k].z[i],
-            )
+            strongest = sorted((k for k, r in results.items() if r.flags[i]), key=lambda k: -results[k].z[i])
             cols = sorted({h["column"] for h in result.column_hits[i]})
             detail = f"{result.flag_reason[i]} | " + ", ".join(strongest) + (f" | {', '.join(cols)}" if cols else "")
             stable = ""
@@ -95,28 +100,28 @@ def summary_text(result, top: int = 10) -> str:
     return "\n".join(lines)
 
 
-def dataset_summary_text(scan) -> str:
+def dataset_summary_text(scan: DatasetScan) -> str:
     """The summary of a Dask scan (:class:`investigator.pipeline.dask_engine.DatasetScan`)."""
     run, top = scan.run, scan.top
-    src, fit = run["input"], run["fit"]
-    lines = [f"Scanned {src['path']} on Dask ({run['cluster']['scheduler']})",
-             f"{src['rows']:,} records in {src['partitions']} partitions ({src['files']} files), key: {src['key']}",
-             f"Fitted on a random sample of {fit['sample']:,} records"]
-    feats = [s["name"] + {"log": " (log)", "rarity": " (category)"}.get(s["transform"], "") for s in run["features"]]
+    src, fitted = run.input, run.fitted
+    lines = [f"Scanned {src.path} on Dask ({run.cluster['scheduler']})",
+             f"{src.rows:,} records in {src.partitions} partitions ({src.files} files), key: {src.key}",
+             f"Fitted on a random sample of {run.fit.sample:,} records"]
+    feats = [s.name + {"log": " (log)", "rarity": " (category)"}.get(s.transform, "") for s in fitted.features]
     lines.append(f"Features ({len(feats)}): " + ", ".join(feats))
-    if run["notices"]:
+    if fitted.notices:
         lines.append("Notices (from the sample):")
-        lines += [f"  - {n}" for n in run["notices"]]
-    nb = run.get("neighbors")
-    search = f"; neighbours: {nb['search']}, k={nb['k']}" if nb else ""
-    lines.append("Methods: " + ", ".join(run["methods"]) + search)
-    lines.append("Rule: " + run["rule"])
-    n, flagged = src["rows"], run["flagged"]
+        lines += [f"  - {n}" for n in fitted.notices]
+    nb = fitted.neighbors
+    search = f"; neighbours: {nb.search}, k={nb.k}" if nb else ""
+    lines.append("Methods: " + ", ".join(fitted.methods) + search)
+    lines.append("Rule: " + fitted.rule)
+    n, flagged = src.rows or 0, run.flagged
     lines.append(f"Flagged: {flagged:,} of {n:,} records ({flagged / n:.1%})")
     if len(top):
         lines += ["", f"Top {len(top)} flagged records by consensus:",
                   f"  {'row':>9}  {'key':<14} {'consensus':>9} {'votes':>5}  top features"]
-        m = len(run["methods"]) - ("hotelling" in run["methods"])
+        m = len(fitted.methods) - ("hotelling" in fitted.methods)
         for r in top.itertuples(index=False):
             lines.append(f"  {r.row:>9}  {_short(r.key):<14} {r.consensus:>9.3f} {r.votes:>2}/{m:<2}  "
                          f"{r.top_features}")

@@ -31,6 +31,7 @@ import pandas as pd
 
 from investigator.errors import InputError
 from investigator.pipeline.options import ScanOptions
+from investigator.pipeline.run_record import DatasetRunRecord, InputRecord, SampleFit
 from investigator.progress import Progress, silent
 
 FIT_SAMPLE = 200_000
@@ -43,7 +44,7 @@ class DatasetScan:
     """What a Dask scan wrote and found: the output folder, the run record and the top flagged records."""
 
     out: Path
-    run: dict
+    run: DatasetRunRecord
     top: pd.DataFrame  # the flagged records with the highest consensus (row, key, consensus, votes, ...)
 
     def summary(self) -> str:
@@ -235,7 +236,8 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
         from dask.distributed import as_completed
 
         columns = ["row", "key", "consensus", "consensus_z", "votes", "top_features"]
-        writes = [delayed(_write_part)(part, str(tmp / f"part.{i:05d}.parquet"), list(model.methods), columns, top)
+        writes = [delayed(_write_part)(part, str(tmp / f"part.{i:05d}.parquet"), list(model.fitted_methods),
+                                       columns, top)
                   for i, part in enumerate(scored)]
         summaries = []
         for done, future in enumerate(as_completed(client.compute(writes)), 1):
@@ -243,7 +245,7 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
             progress(f"scored {done:,} of {len(writes):,} partitions", 0.4 + 0.55 * done / len(writes))
         top_frame, counts = _combine_summaries(summaries, top)
         run = _run_record(model, data, files, lengths, fit_sample, cluster_info, counts, started, out)
-        (tmp / RUN_FILE).write_text(json.dumps(run, indent=1, default=_plain) + "\n", encoding="utf-8")
+        (tmp / RUN_FILE).write_text(json.dumps(run.to_dict(), indent=1, default=_plain) + "\n", encoding="utf-8")
         if out.exists():
             shutil.rmtree(out)  # an earlier results folder (checked above), replaced by the complete new one
         tmp.replace(out)
@@ -277,32 +279,22 @@ def _combine_summaries(summaries: list[dict], top: int) -> tuple[pd.DataFrame, d
     return best.head(top).reset_index(drop=True), counts
 
 
-def _run_record(model, data, files, lengths, fit_sample, cluster_info, counts, started, out) -> dict:
-    fit_run = model.run
-    total = int(sum(lengths))
-    keep = ("columns", "features", "parameters", "seed", "versions", "neighbors", "methods", "column_rules",
-            "rule", "notices", "approximations", "structure", "kinds")
+def _run_record(model, data, files, lengths, fit_sample, cluster_info, counts, started, out) -> DatasetRunRecord:
     import dask
 
-    run = {
-        "started": started,
-        "engine": "dask",
-        "cluster": cluster_info,
-        "input": {"path": str(data), "format": "parquet dataset", "files": len(files), "partitions": len(lengths),
-                  "rows": total, "key": model.key_column or "row"},
-        "fit": {"sample": model.n_fit, "of": total, "asked": fit_sample,
-                "drawn": "uniformly without replacement across all records, seed [seed, 19]",
-                "fitted_on_the_sample": "preparation, neighbour reference, MCD, isolation forest, local densities, "
-                                        "every method's cutoff and scale, kinds of normal, column-rule limits, "
-                                        "the contamination threshold, the peer pool",
-                "structure_of_the_sample": fit_run.get("structure")},
-        **{k: fit_run[k] for k in keep if k in fit_run and k != "structure"},
-        "flagged": counts.get("flagged", 0),
-        "flags_by_method": {k.removeprefix("flag_"): v for k, v in counts.items() if k != "flagged"},
-        "output": {"folder": str(out), "format": "parquet dataset", "files": len(lengths)},
-    }
-    run["versions"] = {**run.get("versions", {}), "dask": dask.__version__}
-    return run
+    total = int(sum(lengths))
+    return DatasetRunRecord(
+        started=started,
+        cluster=cluster_info,
+        input=InputRecord(path=str(data), format="parquet dataset", files=len(files), partitions=len(lengths),
+                          rows=total, key=model.key_column or "row"),
+        fit=SampleFit(sample=model.n_fit, of=total, asked=fit_sample, structure_of_the_sample=model.run.structure),
+        fitted=model.run,
+        flagged=counts.get("flagged", 0),
+        flags_by_method={k.removeprefix("flag_"): v for k, v in counts.items() if k != "flagged"},
+        output={"folder": str(out), "format": "parquet dataset", "files": len(lengths)},
+        dask_version=dask.__version__,
+    )
 
 
 def _plain(value):

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import platform
 from datetime import UTC, datetime
 
@@ -18,6 +19,15 @@ from investigator.methods.neighbors import NeighborSearch
 from investigator.pipeline.combine import combine
 from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.result import MethodResult, ScanResult
+from investigator.pipeline.run_record import (
+    InputRecord,
+    KindsRecord,
+    MapRecord,
+    MethodFit,
+    NeighborRecord,
+    ReferenceRecord,
+    RunRecord,
+)
 from investigator.prepare.features import FeaturePreparer, Features
 from investigator.prepare.roles import NUMERIC, assign_roles
 from investigator.progress import Progress, silent
@@ -116,21 +126,21 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     progress("combining", 0.92)
     combination = combine_results(results, options,
                                   combined_far=reference_combined_fence(results) if reference is not None else None)
-    grouping = coords = map_info = kinds = None
+    grouping = coords = mapped = kinds = None
     if reference is None:
         progress("groups", 0.93)
         kinds, results, combination = _kinds_of_normal(features, results, combination, options, notices)
         from investigator.structure.groups import find_groups
 
         grouping = find_groups(features.values, combination.flagged, seed=options.seed,
-                               kinds=None if kinds is None else kinds.labels)
+                               kind_labels=None if kinds is None else kinds.labels)
         notices += list(grouping.notices)
         if options.map != "none":
             from investigator.structure.map import embed
 
             progress("map", 0.95)
             mapped = embed(features.values, options.map, seed=options.seed, keep=combination.flagged)
-            coords, map_info = mapped.coords, mapped.describe()
+            coords = mapped.coords
             notices += list(mapped.notices)
     stability = None
     if options.resamples:
@@ -142,33 +152,53 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
         notices.append(f"column '{name}': MAD is zero, so the modified z-score rule is skipped there")
     hits = rules.hits(features)
     extras = _extras(table, options, notices)
-    run = _run_record(table, options, columns, preparer, search, results, combination, rules, notices,
-                      started)
-    if kinds is not None:
-        run["kinds"] = {**kinds.describe(), "cutoffs": {
-            k: [float(sc.cutoff) for sc in r.kinds.scales] for k, r in results.items() if r.kinds is not None},
-            "far_beyond_z": {k: [float(sc.far) for sc in r.kinds.scales] for k, r in results.items()
-                             if r.kinds is not None}}
-    if reference is not None:
-        run["reference"] = {"input": {**reference.source.as_dict(), "rows": ref_info["rows"]},
-                            "used": int(reference.n_rows), **{k: v for k, v in ref_info.items() if k != "rows"}}
     from investigator.pipeline.approximations import approximations
 
     n_ordinary = n if reference is not None else int((~combination.flagged).sum())
-    run["approximations"] = approximations(n, n_ordinary, options, search, results)
-    run["screens"] = extras["screens"] or None
-    if grouping is not None:
-        run["structure"] = grouping.describe()
-    if map_info is not None:
-        run["map"] = map_info
+    run = RunRecord(
+        started=started,
+        input=InputRecord(**table.source.as_dict(), rows=table.n_rows, columns=int(table.frame.shape[1]),
+                          key=table.key_column or "row"),
+        columns=tuple(columns),
+        features=tuple(preparer.specs_),
+        parameters=options.as_dict(),
+        seed=options.seed,
+        versions=_versions(),
+        neighbors=NeighborRecord(**search.describe()) if search is not None else None,
+        method_fits={k: MethodFit(**r.method.describe()) for k, r in results.items()},
+        column_rules=rules.describe(),
+        rule=combination.rule,
+        flagged=int(combination.flagged.sum()),
+        notices=tuple(notices),
+        kinds=_kinds_record(kinds, results) if kinds is not None else None,
+        reference=_reference_record(reference, ref_info) if reference is not None else None,
+        approximations=approximations(n, n_ordinary, options, search, results),
+        screens=extras["screens"] or None,
+        structure=grouping.describe() if grouping is not None else None,
+        map=MapRecord(mapped.method, dict(mapped.parameters), tuple(mapped.notices)) if mapped is not None else None,
+    )
     progress("done", 1.0)
     result = ScanResult(table, options, columns, features, preparer, search, graph, results, combination,
                         rules, hits, run, stability, reference=reference,
                         reference_features=ref_features if reference is not None else None,
                         out_of_spec=extras["out_of_spec"], groups=grouping, map=coords, kinds=kinds)
     if grouping is not None:
-        result.group_cases = _group_cases(result, grouping)
+        from investigator.structure.cases import group_cases
+
+        result.group_cases = group_cases(grouping, features, table.frame, combination.flagged, table.keys)
     return result
+
+
+def _kinds_record(kinds: KindsOfNormal, results: dict[str, MethodResult]) -> KindsRecord:
+    calibrated = {k: r.calibration for k, r in results.items() if r.calibration is not None}
+    return KindsRecord(dict(kinds.parameters), kinds.sizes(),
+                       {k: [float(sc.cutoff) for sc in c.scales] for k, c in calibrated.items()},
+                       {k: [float(sc.far) for sc in c.scales] for k, c in calibrated.items()})
+
+
+def _reference_record(reference: Table, info: dict) -> ReferenceRecord:
+    return ReferenceRecord(InputRecord(**reference.source.as_dict(), rows=info["rows"]), int(reference.n_rows),
+                           info["extra_columns"], info["missing_columns"], info["phase_i"], info["unseen_levels"])
 
 
 def kinds_fitter(options: ScanOptions, seed: int | None = None) -> FastMCD:
@@ -209,31 +239,13 @@ def apply_kinds(results: dict, kinds: KindsOfNormal, X: np.ndarray, labels: np.n
             scores = kinds.distances(X)[np.arange(len(X)), labels]
         else:
             scores = r.scores
-        calibration = r.kinds
+        calibration = r.calibration
         if calibration is None:
             rows = np.arange(len(X)) if calibrate_on is None else calibrate_on
             calibration = calibrate_kinds(r.method, scores[rows], labels[rows])
         z, flags, cutoffs = calibration.apply(r.method, scores, labels)
         out[key] = MethodResult(key, r.method, scores, flags, z, cutoffs, calibration.far(labels), calibration)
     return out
-
-
-def _group_cases(result: ScanResult, grouping) -> list[dict]:
-    """Each small group as one case: size, members and what they share that the rest does not."""
-    from investigator.structure.profile import group_profile
-
-    cases = []
-    for gid in grouping.small_ids:
-        members = grouping.members(gid)
-        mask = np.zeros(result.n_records, dtype=bool)
-        mask[members] = True
-        cases.append({
-            "group": int(gid), "size": int(len(members)),
-            "members": [{"row": int(i) + 1, "key": result.keys[i]} for i in members],
-            "flagged": int(result.flagged[members].sum()),
-            "profile": group_profile(mask, result.features, result.table.frame),
-        })
-    return cases
 
 
 def _reference_only_methods(options: ScanOptions, methods: list) -> list:
@@ -365,26 +377,6 @@ def _versions() -> dict:
             "pandas": pandas.__version__, "scipy": scipy.__version__, "scikit-learn": sklearn.__version__}
 
 
-def _run_record(table, options, columns, preparer, search, results, combination, rules, notices,
-                started) -> dict:
-    return {
-        "started": started,
-        "input": {**table.source.as_dict(), "rows": table.n_rows, "columns": int(table.frame.shape[1]),
-                  "key": table.key_column or "row"},
-        "columns": [c.as_dict() for c in columns],
-        "features": [s.as_dict() for s in preparer.specs_],
-        "parameters": options.as_dict(),
-        "seed": options.seed,
-        "versions": _versions(),
-        "neighbors": search.describe() if search is not None else None,
-        "methods": {k: r.method.describe() for k, r in results.items()},
-        "column_rules": rules.describe(),
-        "rule": combination.rule,
-        "flagged": int(combination.flagged.sum()),
-        "notices": notices,
-    }
-
-
 def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanResult:
     """Scan a table (a path to CSV/TSV/Parquet/XLSX, or a pandas DataFrame) and return a ScanResult.
 
@@ -422,7 +414,7 @@ def attach_verdicts(result: ScanResult, data, store=None) -> ScanResult:
     with ReviewStore(store, create=False) as review:
         matching = match_store(result.table, review)
     result.verdicts, result.notes = matching.verdicts(), matching.notes()
-    result.run["review_store"] = str(store)
+    result.run = dataclasses.replace(result.run, review_store=str(store))
     return result
 
 
@@ -433,7 +425,7 @@ def check(data, *, reference, progress: Progress = silent, reference_sheet: str 
     Preparation and every method are fitted on the reference only, after phase I cleaning (records the
     robust fit flags in the reference are excluded unless ``keep_reference_outliers=True``); the records of
     ``data`` are scored against it. Same options as :func:`scan`; the result has the same contract, with
-    ``run["reference"]`` describing the reference.
+    ``run.reference`` describing the reference.
     """
     opts = options.pop("options", None)
     if opts is None:

@@ -7,13 +7,14 @@ limits new records are judged by. ``--keep-reference-outliers`` lists them but k
 
 from __future__ import annotations
 
-from typing import Any
+import dataclasses
 
 import numpy as np
 
 from investigator.errors import InputError
 from investigator.io.tables import Table, _list
 from investigator.pipeline.options import ScanOptions
+from investigator.pipeline.run_record import PhaseOneRecord, RecordRef
 from investigator.prepare.features import FeaturePreparer, column_numbers
 from investigator.prepare.roles import NUMERIC, ColumnInfo
 
@@ -52,32 +53,30 @@ def check_columns(table: Table, reference: Table, columns: list[ColumnInfo], not
 
 
 def clean_reference(reference: Table, preparer: FeaturePreparer, options: ScanOptions,
-                    notices: list[str]) -> tuple[Table, dict]:
+                    notices: list[str]) -> tuple[Table, PhaseOneRecord]:
     """Phase I: the reference records the robust fit flags, listed, and left out unless asked to keep them."""
     from investigator.methods.robust_distance import RobustDistance
 
     features = preparer.transform(reference)
     use = [j for j, s in enumerate(features.specs) if s.role == NUMERIC]
-    info: dict[str, Any] = {"method": "robust_distance", "excluded": 0, "records": []}
     if not use or len(reference.frame) <= len(use) + 1:
         notices.append("reference: phase I cleaning skipped (no feature the robust fit can use)")
-        return reference, info
+        return reference, PhaseOneRecord("robust_distance", 0, ())
     # The chi-square cutoff, not raised for heavy tails: a flag here only keeps a record out of the fit.
     rd = RobustDistance(cutoff=options.cutoff, seed=options.seed, columns=np.array(use),
                         adapt_cutoff=False).fit(features.values)
     flags = rd.flags(rd.reference_scores_)
     keys, rows = reference.keys, reference.row_numbers
-    info["cutoff"] = float(rd.cutoff_)
-    info["records"] = [{"row": int(rows[i]), "key": keys[i]} for i in np.flatnonzero(flags)]
+    flagged = tuple(RecordRef(int(rows[i]), keys[i]) for i in np.flatnonzero(flags))
+    info = PhaseOneRecord("robust_distance", 0, flagged, float(rd.cutoff_))
     if not flags.any():
         return reference, info
-    shown = ", ".join(str(r["key"]) for r in info["records"][:8])
+    shown = ", ".join(str(r.key) for r in flagged[:8])
     more = f" and {flags.sum() - 8} more" if flags.sum() > 8 else ""
     if options.keep_reference_outliers:
         notices.append(f"reference: {flags.sum()} records the robust fit flags are kept "
                        f"(--keep-reference-outliers): {shown}{more}")
         return reference, info
-    info["excluded"] = int(flags.sum())
     notices.append(f"reference: {flags.sum()} of {len(flags)} records the robust fit flags are left out "
                    f"before fitting (phase I): {shown}{more}")
-    return reference.subset(~flags), info
+    return reference.subset(~flags), dataclasses.replace(info, excluded=int(flags.sum()))

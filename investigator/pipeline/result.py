@@ -1,4 +1,10 @@
-"""The result of a scan: one object that everything downstream reads (outputs, explanations, TUI)."""
+"""The result of a scan: one object that everything downstream reads (outputs, explanations, TUI).
+
+It holds the data: the records, the prepared features, every method's result, the combination, the run
+record and the groups. Its explanations come from ``result.explainer``
+(:class:`investigator.explain.explainer.Explainer`), and its serialisation (records as dicts, the frame, the
+JSON, writing files) from :mod:`investigator.output.records`; the methods here that do either only hand on.
+"""
 
 from __future__ import annotations
 
@@ -7,16 +13,24 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
 
+from investigator.explain.explainer import Explainer
+from investigator.explain.explanation import Explanation
 from investigator.io.tables import Table
 from investigator.methods.base import Method, gaussian_scaling
 from investigator.methods.column_rules import ColumnRules
 from investigator.methods.neighbors import NeighborGraph, NeighborSearch
 from investigator.pipeline.combine import Combination
 from investigator.pipeline.options import ScanOptions
+from investigator.pipeline.run_record import RunRecord
 from investigator.prepare.features import FeaturePreparer, Features
 from investigator.prepare.roles import ColumnInfo
+from investigator.structure.cases import GroupCase
+from investigator.structure.groups import Grouping
+from investigator.structure.kinds import KindCalibration, KindsOfNormal
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 if TYPE_CHECKING:
     from investigator.structure.groups import Grouping
@@ -27,7 +41,8 @@ if TYPE_CHECKING:
 class MethodResult:
     """One method's view of every record: raw ``scores``, ``flags`` (above the cutoff), ``z`` (the z-values
     the combination averages), and per record the ``cutoff`` and ``far`` (the z-value beyond which it flags
-    alone) that applied, which differ between kinds of normal (``kinds``: the per-kind calibration, or None).
+    alone) that applied, which differ between kinds of normal (``calibration``: the per-kind calibration,
+    or None).
     """
 
     key: str
@@ -37,7 +52,7 @@ class MethodResult:
     z: np.ndarray
     cutoffs: np.ndarray
     far: np.ndarray
-    kinds: KindCalibration | None = None
+    calibration: KindCalibration | None = None
 
     @classmethod
     def overall(cls, method: Method, scores: np.ndarray) -> MethodResult:
@@ -56,15 +71,16 @@ class MethodResult:
         return self.z > self.far
 
 
-@dataclass
+@dataclass(eq=False)
 class ScanResult:
     """Everything a scan computed.
 
     Attributes: ``table`` (raw records), ``options``, ``columns`` (roles), ``features`` (prepared matrix),
     ``preparer`` (fitted preparation), ``neighbors`` (the shared search) and ``graph`` (each record's
-    neighbours), ``methods`` (per method key: fitted method, scores, flags, unified scores),
+    neighbours), ``method_results`` (per method key: fitted method, scores, flags, z-values),
     ``combination`` (votes, consensus, flagged), ``rules`` and ``column_hits``, ``run`` (the run record),
-    ``stability`` (with ``resamples``: the share of resampled runs that flag each record).
+    ``stability`` (with ``resamples``: the share of resampled runs that flag each record), and
+    ``explainer`` (explanations, built on first use).
     """
 
     table: Table
@@ -74,11 +90,11 @@ class ScanResult:
     preparer: FeaturePreparer
     neighbors: NeighborSearch | None
     graph: NeighborGraph | None
-    methods: dict[str, MethodResult]
+    method_results: dict[str, MethodResult]
     combination: Combination
     rules: ColumnRules
     column_hits: list[list[dict]]
-    run: dict
+    run: RunRecord
     stability: np.ndarray | None = None  # share of resampled runs flagging each record (--resamples)
     reference: Table | None = None  # check mode: the cleaned reference the methods were fitted on
     reference_features: Features | None = None
@@ -87,11 +103,12 @@ class ScanResult:
     notes: list[str | None] | None = None
     groups: Grouping | None = None  # small groups, large clusters, patterns
     map: np.ndarray | None = None  # n x 2 map coordinates (with --map)
-    group_cases: list[dict] | None = None  # each small group as one case, with its profile
+    group_cases: list[GroupCase] | None = None  # each small group as one case, with its profile
     kinds: KindsOfNormal | None = None  # the large clusters, each with its own fit
-    _explanations: dict | None = field(default=None, init=False, repr=False)
-    _typical: list | None = field(default=None, init=False, repr=False)
-    _pool: object | None = field(default=None, init=False, repr=False)
+    explainer: Explainer = field(init=False, repr=False)
+
+    def __post_init__(self) -> None:
+        self.explainer = Explainer(self)
 
     # -- plain arrays --------------------------------------------------------------------------------
     @property
@@ -130,10 +147,10 @@ class ScanResult:
         return self.table.keys
 
     def scores(self, method: str) -> np.ndarray:
-        return self.methods[method].scores
+        return self.method_results[method].scores
 
     def flags(self, method: str) -> np.ndarray:
-        return self.methods[method].flags
+        return self.method_results[method].flags
 
     def ranking(self) -> np.ndarray:
         """Record positions (0-based) ordered by consensus, highest first; ties keep file order."""
@@ -154,123 +171,44 @@ class ScanResult:
             raise InputError(f"--key '{key}' not found in {self.table.name}")
         return keys.index(str(key))
 
-    # -- explanations --------------------------------------------------------------------------------
-    def explain(self, row_or_key=None, *, row: int | None = None, key=None, peers: int = 5) -> dict:
+    # -- explanations (``explainer``) ----------------------------------------------------------------
+    def explain(self, row_or_key=None, *, row: int | None = None, key=None, peers: int = 5) -> Explanation:
         """Why a record stands out: contributions per method, the combined view, peers, the smallest
         change that would make it ordinary, and stability. ``row_or_key`` is the key when the scan has an
-        --id column, otherwise the 1-based row (which is then the key)."""
-        from investigator.explain.view import explain_positions
-
+        --id column, otherwise the 1-based row (which is then the key). ``.to_dict()`` gives the JSON form."""
         if row is None and key is None:
             if row_or_key is None:
                 raise TypeError("explain() needs a row or a key")
             key = row_or_key
-        return explain_positions(self, [self.position(row=row, key=key)], peers=peers)[0]
+        return self.explainer.explain([self.position(row=row, key=key)], peers=peers)[0]
 
-    def explanations(self) -> dict[int, dict]:
-        """Explanations of every flagged record, by 0-based position (computed once)."""
-        if self._explanations is None:
-            from investigator.explain.view import explain_positions
-
-            flagged = np.flatnonzero(self.flagged)
-            self._explanations = dict(zip(flagged.tolist(), explain_positions(self, flagged), strict=True))
-        return self._explanations
-
-    # -- records -------------------------------------------------------------------------------------
+    # -- serialisation (investigator.output.records) -------------------------------------------------
     def record(self, i: int) -> dict:
-        names = self.features.names
-        explained = self.explanations().get(i)
-        extra = {
-            "contributions": explained["contributions"] if explained else None,
-            "top_features": explained["top_features"] if explained else None,
-            "peers": [{"row": p["row"], "key": p["key"]} for p in explained["peers"]["records"]]
-            if explained else None,
-            "nearest_ordinary": explained["nearest_ordinary"] if explained else None,
-        }
-        if self.stability is not None:
-            extra["stability"] = _num(self.stability[i])
-        if self.out_of_spec is not None:
-            extra["out_of_spec"] = self.out_of_spec[i]
-        if self.verdicts is not None:
-            extra["verdict"], extra["note"] = self.verdicts[i], self.notes[i] if self.notes is not None else None
-        if self.groups is not None:
-            g = self.groups.record(i)
-            extra.update(pattern=g["pattern"], group=g["group"], group_size=g["group_size"])
-        if self.map is not None:
-            extra["map"] = [float(self.map[i, 0]), float(self.map[i, 1])]
-        if self.kinds is not None:
-            extra["kind"] = int(self.kinds.labels[i]) + 1
-        return {
-            "row": int(self.table.row_numbers[i]),
-            "key": self.keys[i],
-            "scores": {k: _num(r.scores[i]) for k, r in self.methods.items()},
-            "flags": {k: bool(r.flags[i]) for k, r in self.methods.items()},
-            "rank": int(self.rank[i]),
-            "consensus": _num(self.consensus[i]),
-            "consensus_z": _num(self.consensus_z[i]),
-            "votes": int(self.votes[i]),
-            "flagged": bool(self.flagged[i]),
-            "flag_reason": self.flag_reason[i] or None,
-            "column_hits": self.column_hits[i],
-            "imputed": [names[j] for j in np.flatnonzero(self.features.imputed[i])],
-            **extra,
-        }
+        """The record at 0-based position ``i`` as in the JSON output."""
+        from investigator.output.records import record
+
+        return record(self, i)
 
     def records(self) -> list[dict]:
-        return [self.record(i) for i in range(self.n_records)]
+        from investigator.output.records import records
+
+        return records(self)
 
     def to_frame(self) -> pd.DataFrame:
-        """One row per record: row, key, rank, consensus, consensus_z, votes, flagged, flag_reason,
-        score_<method>, flag_<method>, ..."""
-        out = {
-            "row": self.table.row_numbers,
-            "key": self.keys,
-            "rank": self.rank,
-            "consensus": self.consensus,
-            "consensus_z": self.consensus_z,
-            "votes": self.votes,
-            "flagged": self.flagged,
-            "flag_reason": list(self.flag_reason),
-        }
-        for k, r in self.methods.items():
-            out[f"score_{k}"] = r.scores
-        for k, r in self.methods.items():
-            out[f"flag_{k}"] = r.flags
-        out["column_hits"] = ["; ".join(f"{h['column']}: {h['rule']}" for h in hits)
-                              for hits in self.column_hits]
-        out["imputed"] = ["; ".join(self.features.names[j] for j in np.flatnonzero(m))
-                          for m in self.features.imputed]
-        from investigator.explain.view import top_features_texts
+        """One row per record, the CSV/Parquet columns (docs/output.md)."""
+        from investigator.output.records import to_frame
 
-        flagged = np.flatnonzero(self.flagged)
-        texts = np.full(self.n_records, "", dtype=object)
-        texts[flagged] = top_features_texts(self, flagged)
-        out["top_features"] = texts
-        if self.stability is not None:
-            out["stability"] = self.stability
-        if self.out_of_spec is not None:
-            out["out_of_spec"] = ["; ".join(f"{h['column']} {h['side']} limit" for h in hits)
-                                  for hits in self.out_of_spec]
-        if self.verdicts is not None:
-            out["verdict"], out["note"] = self.verdicts, self.notes
-        if self.map is not None:
-            out["map_x"], out["map_y"] = self.map[:, 0], self.map[:, 1]
-        if self.kinds is not None:
-            out["kind"] = self.kinds.labels + 1
-        if self.groups is not None:
-            out["pattern"] = list(self.groups.pattern)
-            out["group"] = [int(g) if g > 0 else None for g in self.groups.group]
-        return pd.DataFrame(out)
+        return to_frame(self)
 
     def to_dict(self) -> dict:
-        out = {"run": self.run, "records": self.records()}
-        if self.group_cases is not None:
-            out["groups"] = self.group_cases
-        return out
+        """The JSON output: run record, records and groups."""
+        from investigator.output.records import to_dict
+
+        return to_dict(self)
 
     def write(self, path: str | Path) -> Path:
         """Write the result; the format follows the extension (.json, .csv, .parquet)."""
-        from investigator.io.writers import write_result
+        from investigator.output.records import write_result
 
         return write_result(self, Path(path))
 
@@ -278,8 +216,3 @@ class ScanResult:
         from investigator.output.summary import summary_text
 
         return summary_text(self, top=top)
-
-
-def _num(x) -> float | None:
-    x = float(x)
-    return x if np.isfinite(x) else None

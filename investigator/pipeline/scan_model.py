@@ -25,6 +25,9 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
+from investigator.explain.explainer import Explainer
+from investigator.explain.explanation import Typical
+from investigator.explain.view import Pool
 from investigator.io.tables import Source, Table
 from investigator.methods.base import Method
 from investigator.methods.column_rules import ColumnRules
@@ -32,13 +35,13 @@ from investigator.methods.neighbors import NeighborSearch
 from investigator.pipeline.combine import TOP_SHARE, rule_sentence
 from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.result import MethodResult, ScanResult
+from investigator.pipeline.run_record import RunRecord
 from investigator.prepare.features import FeaturePreparer
 from investigator.prepare.roles import ColumnInfo
+from investigator.structure.kinds import KindCalibration, KindsOfNormal
 
 if TYPE_CHECKING:
     from investigator.checks.limits import Limit
-    from investigator.explain.view import Pool
-    from investigator.structure.kinds import KindCalibration, KindsOfNormal
 
 MODEL_PEERS = 10_000  # ordinary sample records a partition's explanations find peers among
 
@@ -54,31 +57,31 @@ class ScanModel:
     columns: list[ColumnInfo]
     preparer: FeaturePreparer
     search: NeighborSearch | None
-    methods: dict[str, Method]
+    fitted_methods: dict[str, Method]  # per method key, the fitted Method
     rules: ColumnRules
     kinds: KindsOfNormal | None  # the kinds of normal of the fit sample, or None
     calibrations: dict[str, KindCalibration]  # per method key, its per-kind scales (empty without kinds)
     combined_far: float | None  # the far-out level of the combined evidence on the fit sample
     z_threshold: float | None  # with contamination: the consensus z the fit sample's flagged reach
     pool: Pool  # ordinary sample records (peers)
-    typical: list[dict]  # typical ranges of the ordinary sample records
+    typical: tuple[Typical, ...]  # typical ranges of the ordinary sample records
     limits: list[Limit] | None
     key_column: str | None
     source: Source
-    run: dict  # the fit's run record
+    run: RunRecord  # the fit's run record
     n_fit: int
 
     @classmethod
     def fit(cls, sample: Table, options: ScanOptions, progress=None) -> ScanModel:
         """Fit on ``sample``; its ``rows`` must be the records' 1-based rows in the whole dataset."""
-        from investigator.explain.view import Pool, ordinary_pool, peer_candidates, typical_ranges
+        from investigator.explain.view import peer_candidates
         from investigator.pipeline.engine import run_scan
         from investigator.progress import silent
 
         fit = run_scan(sample, options, progress or silent)
         search = fit.neighbors
-        pool = ordinary_pool(fit)
-        typical = typical_ranges(fit)
+        pool = fit.explainer.pool
+        typical = fit.explainer.typical
         members = peer_candidates(pool, options)
         if len(members) > MODEL_PEERS:  # the model travels to every worker: a smaller pool keeps it light
             members = np.sort(np.random.default_rng([options.seed, 23]).choice(members, MODEL_PEERS, replace=False))
@@ -93,8 +96,8 @@ class ScanModel:
             from investigator.checks.limits import load_limits
 
             limits = load_limits(options.limits, sample)
-        calibrations = {k: r.kinds for k, r in fit.methods.items() if r.kinds is not None}
-        return cls(options, fit.columns, fit.preparer, search, {k: r.method for k, r in fit.methods.items()},
+        calibrations = {k: r.calibration for k, r in fit.method_results.items() if r.calibration is not None}
+        return cls(options, fit.columns, fit.preparer, search, {k: r.method for k, r in fit.method_results.items()},
                    fit.rules, fit.kinds, calibrations, fit.combination.combined_far, threshold, pool, typical,
                    limits, sample.key_column, sample.source, fit.run, sample.n_rows)
 
@@ -110,9 +113,9 @@ class ScanModel:
         # A record of the sample is also in the neighbour reference: the same table, never its own neighbour.
         graph = self.search.query(X, same_table=True) if self.search is not None else None
         results: dict[str, MethodResult] = {}
-        for key, m in self.methods.items():
+        for key, m in self.fitted_methods.items():
             scores = m.score(X, graph) if m.needs_neighbors else m.score(X)
-            results[key] = dataclasses.replace(MethodResult.overall(m, scores), kinds=self.calibrations.get(key))
+            results[key] = dataclasses.replace(MethodResult.overall(m, scores), calibration=self.calibrations.get(key))
         kinds = None
         if self.kinds is not None:  # each record judged within the kind it is nearest to
             labels = self.kinds.assign(X)
@@ -123,16 +126,18 @@ class ScanModel:
             flagged = combination.z >= self.z_threshold
             combination = dataclasses.replace(
                 combination, flagged=flagged, reason=np.where(flagged, TOP_SHARE, "").astype(object),
-                rule=rule_sentence(len(self.methods) - ("hotelling" in self.methods), self.options.contamination))
+                rule=rule_sentence(len(self.fitted_methods) - ("hotelling" in self.fitted_methods),
+                                   self.options.contamination))
         out_of_spec = None
         if self.limits is not None:
             from investigator.checks.limits import spec_hits
 
             out_of_spec = spec_hits(table, self.limits)
+        # The block's run record is the fit's: everything that decided its scores was fitted there.
         result = ScanResult(table, self.options, self.columns, features, self.preparer, self.search, graph,
-                            results, combination, self.rules, self.rules.hits(features), {},
+                            results, combination, self.rules, self.rules.hits(features), self.run,
                             out_of_spec=out_of_spec, kinds=kinds)
-        result._pool, result._typical = self.pool, self.typical
+        result.explainer = Explainer(result, pool=self.pool, typical=self.typical)  # peers among the fit's
         return result
 
     def score_frame(self, frame: pd.DataFrame, first_row: int) -> pd.DataFrame:

@@ -5,8 +5,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-import numpy as np
-
+from investigator.explain.explanation import Explanation, NearestOrdinary
 from investigator.explain.view import top_features_text
 from investigator.output.explanation import _fmt
 
@@ -19,7 +18,7 @@ class Case:
     #                      not flagged. The scan's own rank among all records is record["rank"].
     position: int        # 0-based
     record: dict         # result.record(position): scores, flags, column hits, ... (and pattern/group if any)
-    explanation: dict    # result.explain()-style dict
+    explanation: Explanation
     match: object | None  # the verdict in force (review.matching.RecordMatch), or None
 
     @property
@@ -35,17 +34,15 @@ def flagged_positions(result) -> list[int]:
 def build_cases(result, review, limit: int | None = None) -> list[Case]:
     """The first ``limit`` flagged records by consensus, then every other record with a verdict (flagged ones
     beyond the limit first, all by consensus): a verdict is part of the record of the investigation."""
-    from investigator.explain.view import explain_positions
-
     flagged = flagged_positions(result)
     rank = {i: n for n, i in enumerate(flagged, 1)}
     judged = set(review.matching.matches) if review.matching is not None else set()
     top = flagged if limit is None else flagged[:limit]
     beyond = [i for i in flagged[len(top):] if i in judged]
     others = [int(i) for i in result.ranking() if int(i) in judged and not result.flagged[i]]
-    explained = dict(result.explanations()) if top or beyond else {}
-    if others:  # explained on request: explanations() covers the flagged records only
-        explained.update(zip(others, explain_positions(result, np.array(others)), strict=True))
+    explained = dict(result.explainer.flagged()) if top or beyond else {}
+    if others:  # explained on request: the explainer keeps the flagged records' only
+        explained.update(zip(others, result.explainer.explain(others), strict=True))
     return [Case(rank.get(i), i, result.record(i), explained[i], review.match(i)) for i in top + beyond + others]
 
 
@@ -58,23 +55,22 @@ def column_hits_text(hits: list[dict]) -> str:
                      f"{'above' if h['side'] == 'upper' else 'below'} {_fmt(h['limit'])})" for h in hits)
 
 
-def nearest_text(nearest: dict | None) -> str:
+def nearest_text(nearest: NearestOrdinary | None) -> str:
     """E.g. "amount 240.3 instead of 2,403 (robust distance 60.5 -> 11.1, cutoff 11.14)"."""
     if not nearest:
         return ""
-    change = " and ".join(f"{c['feature']} {_fmt(c['to'])} instead of {_fmt(c['from'])}"
-                          for c in nearest["changes"])
-    return (f"{change} (robust distance {nearest['distance_before']:.1f} -> {nearest['distance_after']:.1f}, "
-            f"cutoff {nearest['cutoff']:.2f})")
+    change = " and ".join(f"{c.feature} {_fmt(c.after)} instead of {_fmt(c.before)}" for c in nearest.changes)
+    return (f"{change} (robust distance {nearest.distance_before:.1f} -> {nearest.distance_after:.1f}, "
+            f"cutoff {nearest.cutoff:.2f})")
 
 
-def top_text(explanation: dict, limit: int = 5) -> str:
+def top_text(explanation: Explanation, limit: int = 5) -> str:
     return top_features_text(explanation, limit=limit)
 
 
 def table_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
     """The cases table: headers and one row per case (numbers as numbers, text as text)."""
-    methods = list(result.methods)
+    methods = list(result.method_results)
     extra = [k for k in ("stability", "pattern", "group") if any(k in c.record for c in cases)]
     headers = (["case", "rank", "row", "key", "consensus", "consensus_z", "votes", "flagged", "flag_reason"]
                + [f"flag_{k}" for k in methods]
@@ -89,7 +85,7 @@ def table_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
              r["flag_reason"]]
             + [r["flags"][k] for k in methods]
             + [top_text(c.explanation), column_hits_text(r["column_hits"]),
-               nearest_text(c.explanation.get("nearest_ordinary"))]
+               nearest_text(c.explanation.nearest_ordinary)]
             + [_plain(r.get(k)) for k in extra]
             + [entry.verdict if entry else None, entry.note if entry else None,
                entry.reviewer if entry else None, entry.at if entry else None,

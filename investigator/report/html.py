@@ -9,16 +9,18 @@ result, the review store and the generation time, which is written once, in the 
 from __future__ import annotations
 
 import base64
-import numbers
 
 import numpy as np
 
+from investigator.explain.explanation import Peer, PeerDifference
 from investigator.output.explanation import _fmt, _headline, _typical
 from investigator.output.summary import CAUTION
 from investigator.report import plots
 from investigator.report.cases import Case, build_cases, column_hits_text, nearest_text, top_text
 from investigator.report.markup import Safe, definitions, esc, items, join, share_bar, table, tag
 from investigator.report.reviews import Review
+from investigator.structure.cases import GroupCase
+from investigator.structure.profile import FeatureProfile
 
 TOP_SUMMARY = 10   # cases listed in the summary
 TOP_PLOTTED = 10   # cases in the contributions chart
@@ -76,9 +78,8 @@ def render_html(result, review: Review, *, cases: int = 50, generated: str) -> s
         ("method", "How it was scanned", _how(result)),
         ("found", "What was found", _found(result, flagged, counts)),
     ]
-    groups = _group_dicts(result, getattr(result, "groups", None))
-    if groups:
-        sections.append(("groups", "Groups", _groups(groups, review)))
+    if result.group_cases:
+        sections.append(("groups", "Groups", _groups(result.group_cases, review)))
     coords = _map_coordinates(result)
     if coords is not None:
         sections.append(("map", "Map", _map(result, coords, flagged)))
@@ -157,16 +158,15 @@ def _detail_text(counts: dict) -> str:
 
 def _summary(result, review: Review, shown: list[Case], counts: dict, generated: str) -> Safe:
     run, n = result.run, result.n_records
-    src = run["input"]
+    src = run.input
     hits = sum(1 for h in result.column_hits if h)
     n_flagged = counts["flagged"]
     facts = [
-        ("Data", f"{result.table.name} ({src.get('format', '')}): {n:,} records, {src.get('columns', '')} "
-                 f"columns, key: {src.get('key', 'row')}"),
-        ("SHA-256", tag("span", src.get("sha256") or "(not a file)", class_="mono")),
+        ("Data", f"{result.table.name} ({src.format or ''}): {n:,} records, {src.columns} columns, key: {src.key}"),
+        ("SHA-256", tag("span", src.sha256 or "(not a file)", class_="mono")),
         ("Features", f"{len(result.features.names)}: " + ", ".join(result.features.names)),
-        ("Methods", ", ".join(result.methods)),
-        ("Rule", run["rule"]),
+        ("Methods", ", ".join(result.method_results)),
+        ("Rule", run.rule),
         ("Flagged", f"{n_flagged:,} of {n:,} records ({n_flagged / n:.1%}); {hits:,} records have column "
                     "hits (per-column rules, reported apart from the flags)"),
         ("Verdicts", _verdict_summary(review)),
@@ -175,7 +175,7 @@ def _summary(result, review: Review, shown: list[Case], counts: dict, generated:
     top = [c for c in shown if c.record["flagged"]][:TOP_SUMMARY]
     parts = [
         tag("h1", f"Investigation report: {result.table.name}"),
-        tag("p", f"Generated {generated} from the scan started {run.get('started', '')}.", id="generated",
+        tag("p", f"Generated {generated} from the scan started {run.started}.", id="generated",
             class_="generated"),
         tag("p", CAUTION, class_="caution"),
         definitions(facts),
@@ -216,39 +216,36 @@ def _verdict_summary(review: Review) -> str:
 
 def _scanned(result) -> Safe:
     run = result.run
-    src = run["input"]
-    facts = [("File", src.get("path") or "a data frame (no file)"), ("Format", src.get("format", ""))]
-    if src.get("sha256"):
-        facts.append(("SHA-256 of the file's bytes", tag("span", src["sha256"], class_="mono")))
-    for key, label in (("encoding", "Encoding"), ("delimiter", "Delimiter"), ("sheet", "Sheet")):
-        if src.get(key) is not None:
-            facts.append((label, src[key]))
-    facts += [("Records", f"{src['rows']:,}"), ("Columns", src.get("columns", "")),
-              ("Key", src.get("key", "row"))]
+    src = run.input
+    facts = [("File", src.path or "a data frame (no file)"), ("Format", src.format or "")]
+    if src.sha256:
+        facts.append(("SHA-256 of the file's bytes", tag("span", src.sha256, class_="mono")))
+    for value, label in ((src.encoding, "Encoding"), (src.delimiter, "Delimiter"), (src.sheet, "Sheet")):
+        if value is not None:
+            facts.append((label, value))
+    facts += [("Records", f"{src.rows:,}"), ("Columns", src.columns), ("Key", src.key)]
     parts = [definitions(facts)]
-    ref = run.get("reference")
+    ref = run.reference
     if ref:
-        r = ref["input"]
+        r = ref.input
         parts.append(tag("h3", "Reference"))
         parts.append(definitions([
-            ("File", r.get("path") or "a data frame"),
-            ("SHA-256", tag("span", r.get("sha256") or "", class_="mono")),
-            ("Records", f"{r.get('rows', 0):,}, of which {ref['used']:,} used; phase I left out "
-                        f"{ref['phase_i']['excluded']:,}"),
+            ("File", r.path or "a data frame"),
+            ("SHA-256", tag("span", r.sha256 or "", class_="mono")),
+            ("Records", f"{r.rows or 0:,}, of which {ref.used:,} used; phase I left out {ref.phase_i.excluded:,}"),
         ]))
     parts.append(tag("h3", "Features and how each was prepared"))
     parts.append(table(
         ["feature", "role", "transform", "decision", "missing", "filled with", "centre", "scale"],
-        [[f["name"], f["role"], f["transform"], f.get("decision", ""), f.get("missing", 0),
-          _fmt(f.get("fill")), _fmt(f.get("center")), f"{_fmt(f.get('scale'))} ({f.get('scale_method', '')})"]
-         for f in run["features"]], numeric=(4, 5, 6)))
-    left = [c for c in run["columns"] if c["name"] not in set(result.features.names)]
+        [[f.name, f.role, f.transform, f.decision, f.missing, _fmt(f.fill), _fmt(f.center),
+          f"{_fmt(f.scale)} ({f.scale_method})"]
+         for f in run.features], numeric=(4, 5, 6)))
+    left = [c for c in run.columns if c.name not in set(result.features.names)]
     if left:
         parts.append(tag("h3", "Columns left out"))
-        parts.append(table(["column", "role", "why"], [[c["name"], c["role"], c.get("reason", "")]
-                                                        for c in left]))
+        parts.append(table(["column", "role", "why"], [[c.name, c.role, c.reason] for c in left]))
     parts.append(tag("h3", "Notices"))
-    parts.append(items(run["notices"]) if run["notices"] else tag("p", "None."))
+    parts.append(items(run.notices) if run.notices else tag("p", "None."))
     return join(parts)
 
 
@@ -259,22 +256,21 @@ def _how(result) -> Safe:
     import matplotlib
 
     run = result.run
-    parts = [tag("p", "Combination rule: " + run["rule"], class_="rule")]
+    parts = [tag("p", "Combination rule: " + run.rule, class_="rule")]
     parts.append(table(
         ["method", "score", "cutoff", "cutoff rule", "parameters"],
-        [[k, m.get("score", ""), _fmt(m.get("cutoff")), m.get("cutoff_rule", ""), _kv(m.get("parameters"))]
-         for k, m in run["methods"].items()], numeric=(2,)))
-    nb = run.get("neighbors")
-    if nb:
-        parts.append(tag("p", "Neighbour search: " + _kv(nb)))
+        [[k, m.score, _fmt(m.cutoff), m.cutoff_rule, _kv(m.parameters)] for k, m in run.method_fits.items()],
+        numeric=(2,)))
+    if run.neighbors:
+        parts.append(tag("p", "Neighbour search: " + _kv(run.neighbors.to_dict())))  # every field, as in JSON
     parts.append(tag("h3", "Column rules (reported as column hits, apart from the flags)"))
-    parts.append(items(f"{k}: {v}" for k, v in run["column_rules"].items()))
+    parts.append(items(f"{k}: {v}" for k, v in run.column_rules.items()))
     parts.append(tag("h3", "Options"))
     parts.append(table(["option", "value"], [[k, "(default)" if v is None else _option(v)]
-                                             for k, v in run["parameters"].items()]))
-    parts.append(tag("p", f"Seed: {run.get('seed')}. The same data, options and seed give the same scores "
+                                             for k, v in run.parameters.items()]))
+    parts.append(tag("p", f"Seed: {run.seed}. The same data, options and seed give the same scores "
                           "and flags."))
-    versions = {**run.get("versions", {}), "matplotlib (this report)": matplotlib.__version__}
+    versions = {**run.versions, "matplotlib (this report)": matplotlib.__version__}
     parts.append(tag("h3", "Versions"))
     parts.append(table(["package", "version"], list(versions.items())))
     return join(parts)
@@ -291,18 +287,19 @@ def _option(value) -> str:
 
 def _found(result, shown: list[Case], counts: dict) -> Safe:
     n, n_flagged = result.n_records, counts["flagged"]
-    voting = [k for k in result.methods if k != "hotelling"]
+    results = result.method_results
+    voting = [k for k in results if k != "hotelling"]
     votes = np.bincount(result.votes, minlength=len(voting) + 1)
     parts = [tag("p", f"{n_flagged:,} of {n:,} records flagged ({n_flagged / n:.1%})."),
              table(["method", "records above its cutoff", "share"],
-                   [[k, f"{int(r.flags.sum()):,}", f"{r.flags.mean():.1%}"] for k, r in result.methods.items()],
+                   [[k, f"{int(r.flags.sum()):,}", f"{r.flags.mean():.1%}"] for k, r in results.items()],
                    numeric=(1, 2)),
              table(["votes", "records"], [[v, f"{int(c):,}"] for v, c in enumerate(votes)], numeric=(0, 1))]
     parts.append(_img(plots.method_plots({k: (r.scores, float(np.median(r.cutoffs)), r.flags)
-                                          for k, r in result.methods.items()}),
+                                          for k, r in results.items()}),
                       "Per method: histogram of the scores with the cutoff as a dashed line", "plot-methods"))
     if shown:
-        bars = [(str(c.record["key"]), [(t["feature"], t["share"]) for t in c.explanation["top_features"]])
+        bars = [(str(c.record["key"]), [(t.feature, t.share) for t in c.explanation.top_features])
                 for c in shown[:TOP_PLOTTED]]
         parts.append(_img(plots.contributions_plot(bars),
                           "Bar chart of the feature shares of the top cases", "plot-contributions"))
@@ -312,7 +309,7 @@ def _found(result, shown: list[Case], counts: dict) -> Safe:
              "column hits", "verdict"],
             [[tag("a", c.rank, href=f"#{c.anchor}"), f"{c.record['rank']:,}", c.record["row"], c.record["key"],
               f"{c.record['consensus']:.3f}", f"{c.record['votes']}/{len(voting)}", c.record["flag_reason"] or "",
-              ", ".join(k for k in result.methods if c.record["flags"].get(k)), top_text(c.explanation, 3),
+              ", ".join(k for k in results if c.record["flags"].get(k)), top_text(c.explanation, 3),
               ", ".join(sorted({h["column"] for h in c.record["column_hits"]})), _verdict_text(c.match)]
              for c in shown], numeric=(0, 1, 2, 4, 5), nowrap=(3, 10)))
         if counts["left"]:
@@ -335,7 +332,7 @@ def _column_hits(result) -> Safe:
                     "per-column rule; it is reported beside the flags and does not vote.")
     if not counts:
         return join([head, note])
-    rules = list(result.run["column_rules"])
+    rules = list(result.run.column_rules)
     columns = sorted({c for c, _ in counts})
     return join([head, note, table(["column", *rules],
                                    [[c, *(f"{counts.get((c, r), 0):,}" for r in rules)] for c in columns],
@@ -353,7 +350,7 @@ def _extras(result) -> Safe:
         breaking = sum(1 for h in result.out_of_spec if h)
         parts.append(tag("p", f"Out of specification: {breaking:,} records break a --limits limit (a rule "
                               "breach, kept apart from the statistical flags)."))
-    screens = result.run.get("screens") or {}
+    screens = result.run.screens or {}  # each check's own report (checks/)
     for col, tests in (screens.get("benford") or {}).items():
         for label, key in (("first digit", "first_digit"), ("first two digits", "first_two_digits")):
             t = tests[key]
@@ -374,82 +371,38 @@ def _extras(result) -> Safe:
 # -- groups and map (present when the result has them) -------------------------------------------------------
 
 
-def _as_dict(group) -> dict:
-    if isinstance(group, dict):
-        return group
-    if hasattr(group, "as_dict"):
-        return group.as_dict()
-    import dataclasses
-
-    if dataclasses.is_dataclass(group):
-        return dataclasses.asdict(group)
-    return dict(vars(group))
-
-
-def _group_dicts(result, groups) -> list[dict]:
-    """The groups as dicts, from a list of dicts or objects, or from a grouping object that has per-record
-    group ids (``small_ids``, ``members(id)``, ``size_of(id)``)."""
-    if groups is None:
-        return []
-    if getattr(result, "group_cases", None):  # the scan's own group cases, with members and profiles
-        return [{**g, "members": [m["key"] for m in g["members"]]} for g in result.group_cases]
-    if hasattr(groups, "small_ids") and hasattr(groups, "members"):
-        keys = result.keys
-        out = []
-        for gid in groups.small_ids:
-            rows = [int(i) for i in groups.members(gid)]
-            out.append({"group": gid, "size": len(rows), "members": [keys[i] for i in rows]})
-        return out
-    return [_as_dict(g) for g in groups]
-
-
-def _groups(groups: list[dict], review: Review) -> Safe:
+def _groups(cases: list[GroupCase], review: Review) -> Safe:
     verdicts = {e.case_id: e for e in (review.matching.groups if review.matching is not None else [])}
-    parts = [tag("p", f"{_plural(len(groups), 'group')} of records that are unusual together (a pattern, "
+    parts = [tag("p", f"{_plural(len(cases), 'group')} of records that are unusual together (a pattern, "
                       "rather than a lone record).")]
-    for g in groups:
-        name = next((g[k] for k in ("id", "group", "name", "label") if k in g), "?")
-        members = next((g[k] for k in ("members", "keys", "rows") if k in g), None)
-        size = g.get("size", len(members) if members is not None else None)
-        count = _plural(int(size), "record") if isinstance(size, numbers.Integral) else "size unknown"
-        parts.append(tag("h3", f"Group {name}: {count}"))
-        verdict = verdicts.get(f"group:{name}")
+    for g in cases:
+        parts.append(tag("h3", f"Group {g.group}: {_plural(g.size, 'record')}"))
+        verdict = verdicts.get(f"group:{g.group}")
         if verdict is not None:
             parts.append(tag("p", "Verdict: ", tag("span", verdict.verdict, class_="verdict"),
                              f" by {verdict.reviewer} at {verdict.at}"
                              + (f"; note: {verdict.note}" if verdict.note else "")))
-        if members is not None:
-            listed = list(members)[:MEMBERS_SHOWN]
-            more = f" and {len(members) - len(listed):,} more" if len(members) > len(listed) else ""
-            parts.append(tag("p", "Members: " + ", ".join(map(str, listed)) + more))
-        facts = [(k, v) for k, v in g.items() if k not in ("id", "group", "name", "label", "members", "keys",
-                                                           "rows", "size", "profile")
-                 and not isinstance(v, list | dict)]
-        if facts:
-            parts.append(definitions((k, _fmt(v) if isinstance(v, float) else v) for k, v in facts))
-        parts.append(_profile(g.get("profile")))
+        keys = g.keys
+        listed = keys[:MEMBERS_SHOWN]
+        more = f" and {len(keys) - len(listed):,} more" if len(keys) > len(listed) else ""
+        parts.append(tag("p", "Members: " + ", ".join(map(str, listed)) + more))
+        parts.append(definitions([("flagged", g.flagged)]))
+        parts.append(_profile(g.profile))
     return join(parts)
 
 
-def _profile(profile) -> Safe:
-    """A group's profile: a list of dicts as a table, a dict as facts, anything else as text."""
+def _profile(profile: tuple[FeatureProfile, ...]) -> Safe:
+    """A group's profile as a table, one column per field the profile rows have (as in the JSON)."""
     if not profile:
         return join([])
-    if isinstance(profile, dict):
-        return definitions((k, _cell(v)) for k, v in profile.items())
-    if isinstance(profile, list | tuple) and all(isinstance(p, dict) for p in profile):
-        headers: list = []
-        for p in profile:
-            headers += [k for k in p if k not in headers]
-        return table(headers, [[_cell(p.get(h)) for h in headers] for p in profile])
-    return tag("p", str(profile))
+    rows = [p.to_dict() for p in profile]
+    headers: list = []
+    for p in rows:
+        headers += [k for k in p if k not in headers]
+    return table(headers, [[_cell(p.get(h)) for h in headers] for p in rows])
 
 
 def _cell(value) -> str:
-    if isinstance(value, dict) and ({"level", "share"} <= set(value) or {"median", "q1", "q3"} <= set(value)):
-        return _typical(value)
-    if isinstance(value, dict):
-        return ", ".join(f"{k}: {_cell(v)}" for k, v in value.items())
     if isinstance(value, float):
         return _fmt(value)
     if isinstance(value, list | tuple):
@@ -563,14 +516,14 @@ def _case_details(result, shown: list[Case], counts: dict) -> Safe:
     return join(parts)
 
 
-def _peer_value(difference: dict, peers: list[dict]):
+def _peer_value(difference: PeerDifference, peers: tuple[Peer, ...]):
     """The peers' value of a feature: for a category, their commonest level, ties going to the nearest peer.
 
     Taken from the peers themselves because the explanation breaks such ties in set order, which changes
     from one Python process to the next (string hashing is randomised), and the report must not."""
-    if not isinstance(difference["value"], str):
-        return difference["peers"]
-    levels = [p["values"].get(difference["feature"]) for p in peers]
+    if not isinstance(difference.value, str):
+        return difference.peers
+    levels = [p.values.get(difference.feature) for p in peers]
     return max(levels, key=levels.count)  # max keeps the first of equal counts: the nearest peer's level
 
 
@@ -587,46 +540,45 @@ def _case(result, c: Case) -> Safe:
             text.append(tag("span", "; the record has changed since the verdict (see Verdicts)",
                             class_="changed"))
         parts.append(tag("p", "Verdict: ", *text))
-    nearest = e.get("nearest_ordinary")
+    nearest = e.nearest_ordinary
     if nearest:
         prefix = ("No change to one or two features alone brings it under the robust_distance cutoff. "
-                  if nearest["features_changed"] > 2 else "")
+                  if nearest.features_changed > 2 else "")
         parts.append(tag("p", prefix + "Smallest change that brings it under the robust_distance cutoff: "
                          + nearest_text(nearest) + "."))
-    if e.get("stability") is not None:
-        parts.append(tag("p", f"Flagged in {e['stability']:.0%} of {e['resamples']} resampled runs."))
+    if e.stability is not None:
+        parts.append(tag("p", f"Flagged in {e.stability:.0%} of {e.resamples} resampled runs."))
     for key in ("pattern", "group"):
         if r.get(key) is not None:
             parts.append(tag("p", f"{key.capitalize()}: {r[key]}"))
     parts.append(table(
         ["method", "score", "cutoff", "above", "top contributions"],
-        [[k, _fmt(m["score"]), _fmt(m["cutoff"]), "yes" if m["flag"] else "no",
-          ", ".join(f"{x['feature']} {x['share']:.0%}" for x in e["contributions"].get(k, [])[:3])]
-         for k, m in e["methods"].items()], numeric=(1, 2)))
-    if e["top_features"]:
+        [[k, _fmt(m.score), _fmt(m.cutoff), "yes" if m.flag else "no",
+          ", ".join(f"{x.feature} {x.share:.0%}" for x in e.contributions_of(k)[:3])]
+         for k, m in e.method_scores.items()], numeric=(1, 2)))
+    if e.top_features:
         parts.append(tag("h4", "Features that stand out (across methods)"))
         parts.append(table(
             ["feature", "value", "direction", "typical (median, IQR)", "robust z", "share", "methods"],
-            [[t["feature"], _fmt(t["value"]) + (" (imputed)" if t.get("imputed") else ""), t["direction"],
-              _typical(t["typical"]), f"{t['robust_z']:.1f}", share_bar(t["share"]), ", ".join(t["methods"])]
-             for t in e["top_features"]], numeric=(1, 4), nowrap=(4, 5)))
+            [[t.feature, _fmt(t.value) + (" (imputed)" if t.imputed else ""), t.direction,
+              _typical(t.typical), f"{t.robust_z:.1f}", share_bar(t.share), ", ".join(t.methods)]
+             for t in e.top_features], numeric=(1, 4), nowrap=(4, 5)))
     if r["column_hits"]:
         parts.append(tag("p", "Column hits: " + column_hits_text(r["column_hits"])))
-    peers = e["peers"]["records"]
+    peers = e.peers.records
     if peers:
-        names = [t["feature"] for t in e["top_features"][:4]] or list(peers[0]["values"])[:4]
-        own = {t["feature"]: t["value"] for t in e["top_features"]}
-        source = "reference" if e["peers"].get("from") == "reference" else "unflagged"
+        names = [t.feature for t in e.top_features[:4]] or list(peers[0].values)[:4]
+        own = {t.feature: t.value for t in e.top_features}
+        source = "reference" if e.peers.source == "reference" else "unflagged"
         parts.append(tag("h4", f"Peers: the {len(peers)} nearest {source} records"))
         rows = [[tag("strong", "this record"), r["key"], "", *(_fmt(own.get(n)) for n in names)]]
-        rows += [[p["row"], p["key"], f"{p['distance']:.2f}", *(_fmt(p["values"].get(n)) for n in names)]
-                 for p in peers]
+        rows += [[p.row, p.key, f"{p.distance:.2f}", *(_fmt(p.values.get(n)) for n in names)] for p in peers]
         parts.append(table(["row", "key", "distance", *names], rows, numeric=range(0, 3 + len(names)),
                            nowrap=(1,)))
-        diffs = e["peers"]["differences"]
+        diffs = e.peers.differences
         if diffs:
             parts.append(tag("p", "Differences from the peers that matter most: " + "; ".join(
-                f"{d['feature']} {_fmt(d['value'])} vs {_fmt(_peer_value(d, peers))}" for d in diffs) + "."))
+                f"{d.feature} {_fmt(d.value)} vs {_fmt(_peer_value(d, peers))}" for d in diffs) + "."))
     return tag("article", *parts, class_="case")
 
 

@@ -44,8 +44,8 @@ def store_for(result, store: str | Path | None = None) -> Path | None:
             raise InputError(f"--store {path}: no review store there; check the path, or leave --store out to "
                              "use the one beside the data file")
         return path
-    if result.run.get("review_store"):
-        return Path(result.run["review_store"])
+    if result.run.review_store:
+        return Path(result.run.review_store)
     source = result.table.source.path
     return default_store_path(source) if source else None
 

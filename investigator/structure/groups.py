@@ -115,7 +115,8 @@ class Grouping:
                 "notices": list(self.notices)}
 
 
-def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0, kinds: np.ndarray | None = None) -> Grouping:
+def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0,
+                kind_labels: np.ndarray | None = None) -> Grouping:
     """Find small groups among the records, and each flagged record's pattern.
 
     Parameters
@@ -123,8 +124,9 @@ def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0, kinds: np.
     X : n x p prepared (robust-scaled) features, as ``Features.values``.
     flagged : n booleans, the scan's flags.
     seed : seed of the samples drawn on large data (the same seed gives the same groups).
-    kinds : per record its kind of normal (0-based, from :func:`investigator.structure.kinds.find_kinds`), or None
-        when the records form one kind; kinds are reported as the large clusters.
+    kind_labels : per record its kind of normal (0-based, the ``labels`` of
+        :func:`investigator.structure.kinds.find_kinds`), or None when the records form one kind; kinds are
+        reported as the large clusters.
 
     Returns
     -------
@@ -143,8 +145,8 @@ def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0, kinds: np.
     notices: list[str] = []
     labels = np.full(n, -1)
     n_large = 0
-    if kinds is not None:
-        labels = np.asarray(kinds, dtype=int)
+    if kind_labels is not None:
+        labels = np.asarray(kind_labels, dtype=int)
         n_large = int(labels.max()) + 1
     groups = np.full(n, -1)
     if n <= m:

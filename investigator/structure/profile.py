@@ -19,6 +19,8 @@ group as in the rest: a shared date or note is often what makes a pattern readab
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 import pandas as pd
 
@@ -30,8 +32,34 @@ SHARED = 0.5  # a column the scan did not use is shown when half the group share
 DISTINCT = 1.0  # ... that is at least e times as common in the group as in the rest
 
 
+@dataclass(frozen=True, slots=True)
+class FeatureProfile:
+    """How one feature (or unused column) of a group compares with the rest: the typical values of both,
+    the signed difference and its direction; for numbers the group's range, for levels both shares."""
+
+    feature: str
+    role: str  # the feature's role, or "other" for a column the scan did not use
+    used: bool
+    group: float | str
+    rest: float | str
+    difference: float
+    direction: str
+    group_range: tuple[float, float] | None = None  # numbers
+    group_share: float | None = None  # levels
+    rest_share: float | None = None
+
+    def to_dict(self) -> dict:
+        out = {"feature": self.feature, "role": self.role, "used": self.used, "group": self.group,
+               "rest": self.rest, "difference": self.difference, "direction": self.direction}
+        if self.group_range is not None:
+            out["group_range"] = list(self.group_range)
+        else:
+            out.update(group_share=self.group_share, rest_share=self.rest_share)
+        return out
+
+
 def group_profile(member_mask: np.ndarray, features: Features,
-                  frame: pd.DataFrame | None = None) -> list[dict]:
+                  frame: pd.DataFrame | None = None) -> list[FeatureProfile]:
     """Profile of one group against the rest, features that differ most first.
 
     Parameters
@@ -42,10 +70,10 @@ def group_profile(member_mask: np.ndarray, features: Features,
 
     Returns
     -------
-    One dict per feature: ``feature``, ``role``, ``used``, ``group`` and ``rest`` (typical values in the
-    column's own units, or levels), ``difference`` (signed: robust SDs for numbers, nats for categories),
-    ``direction`` (``higher`` / ``lower`` / ``more common`` / ``similar``), and ``group_range`` for numbers
-    or ``group_share`` / ``rest_share`` for categories.
+    One :class:`FeatureProfile` per feature: ``feature``, ``role``, ``used``, ``group`` and ``rest``
+    (typical values in the column's own units, or levels), ``difference`` (signed: robust SDs for numbers,
+    nats for categories), ``direction`` (``higher`` / ``lower`` / ``more common`` / ``similar``), and
+    ``group_range`` for numbers or ``group_share`` / ``rest_share`` for categories.
     """
     mask = np.asarray(member_mask, dtype=bool)
     if mask.shape != (len(features.values),) or not mask.any() or mask.all():
@@ -53,18 +81,16 @@ def group_profile(member_mask: np.ndarray, features: Features,
     rows = []
     for j, spec in enumerate(features.specs):
         if spec.role == CATEGORICAL:
-            rows.append({"feature": spec.name, "role": spec.role, "used": True,
-                         **_levels(features.levels[j], mask)})
+            rows.append(FeatureProfile(spec.name, spec.role, True, **_levels(features.levels[j], mask)))
         else:
-            rows.append({"feature": spec.name, "role": spec.role, "used": True,
-                         **_numbers(features, j, mask)})
-    rows.sort(key=lambda r: -abs(r["difference"]))  # stable: ties keep the feature order
+            rows.append(FeatureProfile(spec.name, spec.role, True, **_numbers(features, j, mask)))
+    rows.sort(key=lambda r: -abs(r.difference))  # stable: ties keep the feature order
     if frame is not None:
         used = set(features.names)
-        others = [{"feature": str(c), "role": "other", "used": False, **_levels(_as_levels(frame[c]), mask)}
+        others = [FeatureProfile(str(c), "other", False, **_levels(_as_levels(frame[c]), mask))
                   for c in frame.columns if c not in used]
-        others = [r for r in others if r["group_share"] >= SHARED and r["difference"] >= DISTINCT]
-        rows += sorted(others, key=lambda r: -r["difference"])
+        others = [r for r in others if (r.group_share or 0.0) >= SHARED and r.difference >= DISTINCT]
+        rows += sorted(others, key=lambda r: -r.difference)
     return rows
 
 
@@ -84,7 +110,7 @@ def _numbers(features: Features, j: int, mask: np.ndarray) -> dict:
     diff = float(np.median(scaled[mask]) - np.median(scaled[~mask]))
     direction = "similar" if abs(diff) < SIMILAR else "higher" if diff > 0 else "lower"
     return {"group": typical(mask), "rest": typical(~mask), "difference": diff, "direction": direction,
-            "group_range": [low, high]}
+            "group_range": (low, high)}
 
 
 def _levels(levels: np.ndarray, mask: np.ndarray) -> dict:

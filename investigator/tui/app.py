@@ -7,6 +7,7 @@ them, so the first frame appears before pandas and scikit-learn are loaded.
 from __future__ import annotations
 
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from textual.app import App
 from textual.binding import Binding
@@ -17,6 +18,9 @@ from investigator.tui import jobs
 from investigator.tui.screens.cases import CasesScreen
 from investigator.tui.screens.columns import ColumnsScreen
 from investigator.tui.screens.map import MapScreen
+
+if TYPE_CHECKING:  # imported in the workers, after the first frame
+    from investigator.tui.models.record import RecordView
 
 # Absolute, so subclasses elsewhere (the benchmark) find it; it ships as package data (pyproject).
 STYLES = Path(__file__).with_name("investigator.tcss")
@@ -180,7 +184,7 @@ class InvestigatorApp(App):
 
         self.push_screen(RecordScreen(position, order))
 
-    def cached_view(self, position: int) -> dict | None:
+    def cached_view(self, position: int) -> RecordView | None:
         return self.views.get(position) if self.views is not None else None
 
     def request_view(self, position: int, callback, prefetch: list[int] = ()) -> None:
@@ -224,7 +228,7 @@ class InvestigatorApp(App):
 
     def save_verdict(self, position: int, state: str, note: str) -> None:
         table, store = self.result.table, self.store_path()
-        run_id = self.result.run.get("started")
+        run_id = self.result.run.started
         self.run_worker(lambda: jobs.save_verdict(table, position, state, note, store, run_id), thread=True,
                         name="verdict", group="verdict", exit_on_error=False)
 
@@ -244,9 +248,9 @@ class InvestigatorApp(App):
         from investigator.tui.screens.group import GroupScreen
 
         grouping = getattr(self.result, "groups", None)
-        cases = getattr(self.result, "group_cases", None) or []
+        cases = self.result.group_cases or []
         gid = int(grouping.group[position]) if grouping is not None else -1
-        case = next((c for c in cases if c["group"] == gid), None)
+        case = next((c for c in cases if c.group == gid), None)
         if case is None:
             self.notify("This record is not in a group of unusual records.", timeout=4)
             return
@@ -256,7 +260,7 @@ class InvestigatorApp(App):
         from investigator.tui.screens.verdict import VerdictScreen
 
         case = screen.case
-        ask = VerdictScreen(f"group {case['group']} ({case['size']} records)", None, screen.verdict, None)
+        ask = VerdictScreen(f"group {case.group} ({case.size} records)", None, screen.verdict, None)
 
         def save(answer) -> None:
             if not answer:
@@ -264,12 +268,12 @@ class InvestigatorApp(App):
             state, note = answer
             try:
                 entry = jobs.save_group_verdict(case, state, note, self.store_path(),
-                                                self.result.run.get("started"), self.result.table.source.sha256)
+                                                self.result.run.started, self.result.table.source.sha256)
             except Exception as exc:  # a store problem: one line, the UI goes on
                 self.notify(f"Verdict not saved: {self._message(exc)}", severity="error", timeout=10)
                 return
             screen.set_verdict(entry.verdict)
-            self.notify(f"Saved: group {case['group']} is {entry.verdict} (in {self.store_path().name})")
+            self.notify(f"Saved: group {case.group} is {entry.verdict} (in {self.store_path().name})")
 
         self.push_screen(ask, save)
 

@@ -9,6 +9,10 @@ from __future__ import annotations
 import threading
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:  # the engine is imported in the workers only
+    from investigator.structure.cases import GroupCase
 
 
 class ScanCancelled(Exception):
@@ -82,26 +86,25 @@ def save_verdict(table, position: int, state: str, note: str | None, store: Path
     return entry, matching.verdicts(), matching.notes()
 
 
-def save_group_verdict(case: dict, state: str, note: str | None, store: Path, run_id: str | None,
+def save_group_verdict(case: GroupCase, state: str, note: str | None, store: Path, run_id: str | None,
                        data_sha256: str | None):
     """Save a verdict on a group case (``group:<id>``, its members' keys kept with it)."""
     from investigator.review.store import ReviewStore, check_verdict, group_case
 
     state = check_verdict(state)
-    members = [m["key"] for m in case["members"]]
     with ReviewStore(store) as review:
-        return review.set(group_case(f"group:{case['group']}", members), state, note, run_id=run_id,
+        return review.set(group_case(f"group:{case.group}", case.keys), state, note, run_id=run_id,
                           data_sha256=data_sha256)
 
 
-def group_verdict(case: dict, store: Path) -> str | None:
+def group_verdict(case: GroupCase, store: Path) -> str | None:
     """The group's current verdict, if the store has one."""
     from investigator.review.store import ReviewStore
 
     if not Path(store).exists():
         return None
     with ReviewStore(store, create=False) as review:
-        entry = review.get(f"group:{case['group']}")
+        entry = review.get(f"group:{case.group}")
     return entry.verdict if entry is not None else None
 
 

@@ -138,8 +138,8 @@ def cases_data(result) -> CasesData:
     data = CasesData(
         keys=keys, rows=np.asarray(result.table.row_numbers), consensus=np.asarray(result.consensus),
         votes=np.asarray(result.votes), flagged=np.asarray(result.flagged, dtype=bool),
-        scores={k: np.asarray(r.scores, dtype=float) for k, r in result.methods.items()},
-        flags={k: np.asarray(r.flags, dtype=bool) for k, r in result.methods.items()},
+        scores={k: np.asarray(r.scores, dtype=float) for k, r in result.method_results.items()},
+        flags={k: np.asarray(r.flags, dtype=bool) for k, r in result.method_results.items()},
         ranking=np.asarray(result.ranking()), pattern=pattern,
         rank=np.asarray(result.rank), reason=np.asarray(result.flag_reason, dtype=object),
     )

@@ -7,24 +7,46 @@ from __future__ import annotations
 
 import threading
 from collections import OrderedDict
+from dataclasses import dataclass
+
+from investigator.explain.explanation import Explanation, Typical
 
 
-def record_view(result, position: int) -> dict:
-    """``result.explain`` for the record at 0-based ``position``, with ``values``: every feature's raw value,
-    typical range and robust z (what the methods saw)."""
-    from investigator.explain.view import raw_value, typical_ranges
+@dataclass(frozen=True, slots=True)
+class FeatureValue:
+    """One feature of the record as the methods saw it: raw value, typical range, robust z, imputed."""
+
+    feature: str
+    value: float | str | None
+    typical: Typical
+    robust_z: float
+    imputed: bool
+
+
+@dataclass(frozen=True, slots=True)
+class RecordView:
+    """What the Record screen draws: the explanation, every feature's value, and the headline sentence."""
+
+    explanation: Explanation
+    values: tuple[FeatureValue, ...]
+    headline: str
+
+
+def record_view(result, position: int) -> RecordView:
+    """``result.explain`` for the record at 0-based ``position``, with every feature's raw value, typical
+    range and robust z (what the methods saw)."""
+    from investigator.explain.view import raw_value
     from investigator.output.explanation import explanation_text
 
     e = result.explain(row=position + 1)
-    typical = typical_ranges(result)
+    typical = result.explainer.typical
     z = result.features.values[position]
-    e["values"] = [
-        {"feature": spec.name, "value": raw_value(result.features, position, j), "typical": typical[j],
-         "robust_z": float(z[j]), "imputed": bool(result.features.imputed[position, j])}
+    values = tuple(
+        FeatureValue(spec.name, raw_value(result.features, position, j), typical[j], float(z[j]),
+                     bool(result.features.imputed[position, j]))
         for j, spec in enumerate(result.features.specs)
-    ]
-    e["headline"] = explanation_text(e).split("\n", 1)[0]
-    return e
+    )
+    return RecordView(e, values, explanation_text(e).split("\n", 1)[0])
 
 
 class ViewCache:
@@ -34,16 +56,16 @@ class ViewCache:
     def __init__(self, result, size: int = 256) -> None:
         self.result = result
         self.size = size
-        self._views: OrderedDict[int, dict] = OrderedDict()
+        self._views: OrderedDict[int, RecordView] = OrderedDict()
         self._lock = threading.Lock()
 
-    def get(self, position: int) -> dict | None:
+    def get(self, position: int) -> RecordView | None:
         view = self._views.get(position)
         if view is not None:
             self._views.move_to_end(position)
         return view
 
-    def compute(self, position: int) -> dict:
+    def compute(self, position: int) -> RecordView:
         with self._lock:
             view = self._views.get(position)
             if view is None:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from rich.table import Table
 from textual.app import ComposeResult
 from textual.binding import Binding
@@ -11,18 +13,21 @@ from textual.widgets import Footer, Header, Static
 
 from investigator.output.explanation import _fmt
 
+if TYPE_CHECKING:  # the engine's types; the screen only reads them
+    from investigator.structure.cases import GroupCase
+
 MEMBERS_SHOWN = 50
 
 
 class GroupScreen(Screen):
-    """One group case (``result.group_cases`` entry): what its members share, and who they are."""
+    """One group case (an entry of ``result.group_cases``): what its members share, and who they are."""
 
     BINDINGS = [
         Binding("v", "verdict", "Verdict on the group"),
         Binding("escape", "back", "Back"),
     ]
 
-    def __init__(self, case: dict, verdict: str | None = None, **kwargs) -> None:
+    def __init__(self, case: GroupCase, verdict: str | None = None, **kwargs) -> None:
         super().__init__(**kwargs)
         self.case = case
         self.verdict = verdict
@@ -39,22 +44,20 @@ class GroupScreen(Screen):
 
     def _head(self) -> str:
         c = self.case
-        return (f"Group {c['group']}: {c['size']} records, {c['flagged']} flagged - a pattern (records unusual "
+        return (f"Group {c.group}: {c.size} records, {c.flagged} flagged - a pattern (records unusual "
                 f"together), not a lone record. Verdict: {self.verdict or 'none'}")
 
     def _profile(self) -> Table:
         table = Table(box=None, pad_edge=False)
         for col in ("feature", "group", "rest", "difference"):
             table.add_column(col, justify="left" if col == "feature" else "right")
-        for p in self.case["profile"][:8]:
-            diff = p.get("difference")
-            table.add_row(str(p["feature"]), _fmt(p.get("group")), _fmt(p.get("rest")),
-                          "" if diff is None else f"{diff:+.1f}")
+        for p in self.case.profile[:8]:
+            table.add_row(p.feature, _fmt(p.group), _fmt(p.rest), f"{p.difference:+.1f}")
         return table
 
     def _members(self) -> str:
-        members = self.case["members"]
-        shown = ", ".join(f"{m['key']} (row {m['row']})" for m in members[:MEMBERS_SHOWN])
+        members = self.case.members
+        shown = ", ".join(f"{m.key} (row {m.row})" for m in members[:MEMBERS_SHOWN])
         more = f" and {len(members) - MEMBERS_SHOWN} more" if len(members) > MEMBERS_SHOWN else ""
         return shown + more
 

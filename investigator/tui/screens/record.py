@@ -12,7 +12,9 @@ from textual.containers import VerticalScroll
 from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
+from investigator.explain.explanation import Explanation
 from investigator.output.explanation import _fmt, _typical
+from investigator.tui.models.record import RecordView
 from investigator.tui.widgets.contribution_bars import ContributionBars
 
 DEBOUNCE_S = 0.06  # moving fast through records asks the engine only for the one the user stops on
@@ -35,7 +37,7 @@ class RecordScreen(Screen):
         where = np.flatnonzero(order == position)
         self.index = int(where[0]) if len(where) else 0
         self.position = position
-        self.view: dict | None = None
+        self.view: RecordView | None = None
         self._timer = None
 
     def compose(self) -> ComposeResult:
@@ -92,7 +94,7 @@ class RecordScreen(Screen):
     def _request(self) -> None:
         self.app.request_view(self.position, self._received, prefetch=self._neighbours())
 
-    def _received(self, position: int, view: dict) -> None:
+    def _received(self, position: int, view: RecordView) -> None:
         if position == self.position and self.is_mounted:
             self._draw(view)
 
@@ -117,71 +119,70 @@ class RecordScreen(Screen):
             f"{d.consensus[p]:.4f} · votes {d.votes[p]}/{len(d.methods)} · verdict: {verdict}{note} · "
             f"{self.index + 1} of {len(self.order)}")
 
-    def _draw(self, e: dict) -> None:
-        self.view = e
-        self.query_one("#record-headline", Static).update(e["headline"])
+    def _draw(self, view: RecordView) -> None:
+        self.view = view
+        e = view.explanation
+        self.query_one("#record-headline", Static).update(view.headline)
         self.query_one("#record-change", Static).update(_change(e))
         self.query_one("#record-methods", Static).update(_methods(e))
         self.query_one(ContributionBars).show(e)
-        self.query_one("#record-values", Static).update(_values(e))
-        hits = e["column_hits"]
+        self.query_one("#record-values", Static).update(_values(view))
+        hits = e.column_hits
         self.query_one("#record-hits", Static).update(
             "\n".join(f"{h['column']}: {h['rule']} ({_fmt(h['value'])} is "
                       f"{'above' if h['side'] == 'upper' else 'below'} {_fmt(h['limit'])})" for h in hits)
             or "none: no single column is out of the ordinary by the per-column rules")
-        self.query_one("#record-peers", Static).update(_peers(e))
+        self.query_one("#record-peers", Static).update(_peers(view))
 
 
-def _change(e: dict) -> str:
-    nearest = e.get("nearest_ordinary")
+def _change(e: Explanation) -> str:
+    nearest = e.nearest_ordinary
     if nearest:
-        change = " and ".join(f"{c['feature']} {_fmt(c['to'])} instead of {_fmt(c['from'])}"
-                              for c in nearest["changes"])
+        change = " and ".join(f"{c.feature} {_fmt(c.after)} instead of {_fmt(c.before)}" for c in nearest.changes)
         return (f"Smallest change that makes it ordinary (robust_distance): {change} (distance "
-                f"{nearest['distance_before']:.1f} -> {nearest['distance_after']:.1f}, cutoff "
-                f"{nearest['cutoff']:.2f}).")
-    if e["methods"].get("robust_distance", {}).get("flag"):
+                f"{nearest.distance_before:.1f} -> {nearest.distance_after:.1f}, cutoff "
+                f"{nearest.cutoff:.2f}).")
+    if e.flagged_by("robust_distance"):
         return "No change to the features robust_distance uses brings it under its cutoff."
     return "robust_distance does not flag it: no change needed there."
 
 
-def _methods(e: dict) -> Table:
+def _methods(e: Explanation) -> Table:
     t = Table(box=None, padding=(0, 1), show_edge=False)
     for h, j in (("method", "left"), ("score", "right"), ("cutoff", "right"), ("flag", "left"),
                  ("top features", "left")):
         t.add_column(h, justify=j)
-    for key, m in e["methods"].items():
-        tops = ", ".join(f"{c['feature']} {c['share']:.0%}" for c in e["contributions"].get(key, [])[:2])
-        verdict = "yes: above" if m["flag"] else "no: below"
-        t.add_row(key, f"{m['score']:.4g}", f"{m['cutoff']:.4g}", verdict, tops,
-                  style="bold" if m["flag"] else "")
+    for key, m in e.method_scores.items():
+        tops = ", ".join(f"{c.feature} {c.share:.0%}" for c in e.contributions_of(key)[:2])
+        verdict = "yes: above" if m.flag else "no: below"
+        t.add_row(key, f"{m.score:.4g}", f"{m.cutoff:.4g}", verdict, tops, style="bold" if m.flag else "")
     return t
 
 
-def _values(e: dict) -> Table:
+def _values(view: RecordView) -> Table:
     t = Table(box=None, padding=(0, 1), show_edge=False)
     for h, j in (("feature", "left"), ("value", "right"), ("typical", "left"), ("z", "right"), ("", "left")):
         t.add_column(h, justify=j)
-    top = {f["feature"]: f["direction"] for f in e["top_features"]}
-    for v in e["values"]:
-        mark = {"higher": "▲ higher", "lower": "▼ lower", "rarer": "◆ rare"}.get(top.get(v["feature"]), "")
-        value = _fmt(v["value"]) + (" (imputed)" if v["imputed"] else "")
-        t.add_row(v["feature"], value, _typical(v["typical"]), f"{v['robust_z']:+.1f}", mark,
-                  style="bold" if mark else "")
+    top = {f.feature: f.direction for f in view.explanation.top_features}
+    for v in view.values:
+        mark = {"higher": "▲ higher", "lower": "▼ lower", "rarer": "◆ rare"}.get(top.get(v.feature), "")
+        value = _fmt(v.value) + (" (imputed)" if v.imputed else "")
+        t.add_row(v.feature, value, _typical(v.typical), f"{v.robust_z:+.1f}", mark, style="bold" if mark else "")
     return t
 
 
-def _peers(e: dict) -> Table | str:
-    peers = e["peers"]["records"]
+def _peers(view: RecordView) -> Table | str:
+    e = view.explanation
+    peers = e.peers.records
     if not peers:
         return "no unflagged peers"
-    names = [t["feature"] for t in e["top_features"][:4]] or list(peers[0]["values"])[:4]
+    names = [t.feature for t in e.top_features[:4]] or list(peers[0].values)[:4]
     t = Table(box=None, padding=(0, 1), show_edge=False)
     t.add_column("record")
     for n in names:
         t.add_column(n[:12], justify="right")
-    own = {v["feature"]: v["value"] for v in e["values"]}
-    t.add_row(f"this ({e['key']})", *[_fmt(own.get(n)) for n in names], style="bold")
+    own = {v.feature: v.value for v in view.values}
+    t.add_row(f"this ({e.key})", *[_fmt(own.get(n)) for n in names], style="bold")
     for p in peers:
-        t.add_row(f"{p['key']} d={p['distance']:.2f}", *[_fmt(p["values"].get(n)) for n in names])
+        t.add_row(f"{p.key} d={p.distance:.2f}", *[_fmt(p.values.get(n)) for n in names])
     return t

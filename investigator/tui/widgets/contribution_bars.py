@@ -9,11 +9,13 @@ from __future__ import annotations
 from rich.text import Text
 from textual.widgets import Static
 
+from investigator.explain.explanation import Contribution, Explanation
 
-def bars_text(contributions: dict[str, list[dict]], flags: dict[str, bool], width: int = 80,
+
+def bars_text(contributions: dict[str, tuple[Contribution, ...]], flags: dict[str, bool], width: int = 80,
               top: int = 4) -> Text:
     out = Text()
-    name_w = min(16, max((len(c["feature"]) for v in contributions.values() for c in v[:top]), default=8))
+    name_w = min(16, max((len(c.feature) for v in contributions.values() for c in v[:top]), default=8))
     bar_w = max(8, width - name_w - 12)
     for method, items in contributions.items():
         mark = "flags it" if flags.get(method) else "does not flag it"
@@ -22,10 +24,10 @@ def bars_text(contributions: dict[str, list[dict]], flags: dict[str, bool], widt
         if not items:
             out.append("  (no contribution)\n", style="dim")
         for c in items[:top]:
-            share = c["share"]
+            share = c.share
             n = max(0, min(bar_w, round(abs(share) * bar_w)))
             bar = ("█" if share >= 0 else "░") * n
-            out.append(f"  {c['feature'][:name_w]:<{name_w}} ")
+            out.append(f"  {c.feature[:name_w]:<{name_w}} ")
             out.append(f"{bar:<{bar_w}}", style="bold" if flags.get(method) else "")
             out.append(f" {share:>+5.0%}\n")
     return out
@@ -38,9 +40,9 @@ class ContributionBars(Static):
 
     def __init__(self, **kwargs) -> None:
         super().__init__("", **kwargs)
-        self.explanation: dict | None = None
+        self.explanation: Explanation | None = None
 
-    def show(self, explanation: dict | None) -> None:
+    def show(self, explanation: Explanation | None) -> None:
         self.explanation = explanation
         self._draw()
 
@@ -52,5 +54,5 @@ class ContributionBars(Static):
         if e is None:
             self.update("")
             return
-        flags = {k: m["flag"] for k, m in e["methods"].items()}
-        self.update(bars_text(e["contributions"], flags, width=max(40, self.size.width or 80)))
+        flags = {k: m.flag for k, m in e.method_scores.items()}
+        self.update(bars_text(e.contributions, flags, width=max(40, self.size.width or 80)))

@@ -1,0 +1,147 @@
+"""A scan result as records: one dict per record (the JSON's ``records``), one row per record (CSV, Parquet),
+the whole JSON document, and writing them to a file. The contract is docs/output.md.
+
+This layer works on the result it is given (``ScanResult``, which hands its ``record()``, ``to_frame()``,
+``to_dict()`` and ``write()`` on to here); it never builds one.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import numpy as np
+import pandas as pd
+
+from investigator.explain.explanation import Explanation
+from investigator.io.writers import check_out_path, safe_frame, to_json_text
+
+if TYPE_CHECKING:
+    from investigator.pipeline.result import ScanResult
+
+
+def record(result: ScanResult, i: int, explained: Explanation | None = None) -> dict:
+    """The record at 0-based position ``i``; ``explained``: its explanation when flagged (default: the
+    explainer's)."""
+    if explained is None:
+        explained = result.explainer.flagged().get(i)
+    names = result.features.names
+    results = result.method_results
+    extra: dict[str, object] = {
+        "contributions": explained.contributions_dict() if explained else None,
+        "top_features": [t.to_dict() for t in explained.top_features] if explained else None,
+        "peers": [{"row": p.row, "key": p.key} for p in explained.peers.records] if explained else None,
+        "nearest_ordinary": explained.nearest_ordinary.to_dict()
+        if explained and explained.nearest_ordinary is not None else None,
+    }
+    if result.stability is not None:
+        extra["stability"] = _num(result.stability[i])
+    if result.out_of_spec is not None:
+        extra["out_of_spec"] = result.out_of_spec[i]
+    if result.verdicts is not None:
+        extra["verdict"] = result.verdicts[i]
+        extra["note"] = result.notes[i] if result.notes is not None else None
+    if result.groups is not None:
+        g = result.groups.record(i)
+        extra.update(pattern=g["pattern"], group=g["group"], group_size=g["group_size"])
+    if result.map is not None:
+        extra["map"] = [float(result.map[i, 0]), float(result.map[i, 1])]
+    if result.kinds is not None:
+        extra["kind"] = int(result.kinds.labels[i]) + 1
+    return {
+        "row": int(result.table.row_numbers[i]),
+        "key": result.keys[i],
+        "scores": {k: _num(r.scores[i]) for k, r in results.items()},
+        "flags": {k: bool(r.flags[i]) for k, r in results.items()},
+        "rank": int(result.rank[i]),
+        "consensus": _num(result.consensus[i]),
+        "consensus_z": _num(result.consensus_z[i]),
+        "votes": int(result.votes[i]),
+        "flagged": bool(result.flagged[i]),
+        "flag_reason": result.flag_reason[i] or None,
+        "column_hits": result.column_hits[i],
+        "imputed": [names[j] for j in np.flatnonzero(result.features.imputed[i])],
+        **extra,
+    }
+
+
+def records(result: ScanResult) -> list[dict]:
+    explained = result.explainer.flagged()
+    return [record(result, i, explained.get(i)) for i in range(result.n_records)]
+
+
+def to_frame(result: ScanResult) -> pd.DataFrame:
+    """One row per record: row, key, rank, consensus, consensus_z, votes, flagged, flag_reason,
+    score_<method>, flag_<method>, ..."""
+    results = result.method_results
+    out = {
+        "row": result.table.row_numbers,
+        "key": result.keys,
+        "rank": result.rank,
+        "consensus": result.consensus,
+        "consensus_z": result.consensus_z,
+        "votes": result.votes,
+        "flagged": result.flagged,
+        "flag_reason": list(result.flag_reason),
+    }
+    for k, r in results.items():
+        out[f"score_{k}"] = r.scores
+    for k, r in results.items():
+        out[f"flag_{k}"] = r.flags
+    out["column_hits"] = ["; ".join(f"{h['column']}: {h['rule']}" for h in hits) for hits in result.column_hits]
+    out["imputed"] = ["; ".join(result.features.names[j] for j in np.flatnonzero(m))
+                      for m in result.features.imputed]
+    flagged = np.flatnonzero(result.flagged)
+    texts = np.full(result.n_records, "", dtype=object)
+    texts[flagged] = result.explainer.top_features_texts(flagged)
+    out["top_features"] = texts
+    if result.stability is not None:
+        out["stability"] = result.stability
+    if result.out_of_spec is not None:
+        out["out_of_spec"] = ["; ".join(f"{h['column']} {h['side']} limit" for h in hits)
+                              for hits in result.out_of_spec]
+    if result.verdicts is not None:
+        out["verdict"], out["note"] = result.verdicts, result.notes
+    if result.map is not None:
+        out["map_x"], out["map_y"] = result.map[:, 0], result.map[:, 1]
+    if result.kinds is not None:
+        out["kind"] = result.kinds.labels + 1
+    if result.groups is not None:
+        out["pattern"] = list(result.groups.pattern)
+        out["group"] = [int(g) if g > 0 else None for g in result.groups.group]
+    return pd.DataFrame(out)
+
+
+def to_dict(result: ScanResult) -> dict:
+    """The JSON document: ``run``, ``records`` and, in a scan, ``groups``."""
+    out = {"run": result.run.to_dict(), "records": records(result)}
+    if result.group_cases is not None:
+        out["groups"] = [g.to_dict() for g in result.group_cases]
+    return out
+
+
+def write_result(result: ScanResult, path: Path) -> Path:
+    """Write ``result`` to ``path``; the format follows the extension (.json, .csv, .parquet)."""
+    check_out_path(path)
+    suffix = path.suffix.lower()
+    tmp = path.with_name(path.name + ".part")
+    if suffix == ".json":
+        tmp.write_text(to_json_text(to_dict(result)), encoding="utf-8")
+    elif suffix == ".csv":
+        safe_frame(_key_as_text(to_frame(result))).to_csv(tmp, index=False, lineterminator="\n")
+    else:
+        _key_as_text(to_frame(result)).to_parquet(tmp, index=False)
+    tmp.replace(path)  # never leave a half-written output under the real name
+    return path
+
+
+def _key_as_text(frame: pd.DataFrame) -> pd.DataFrame:
+    # Keys can mix numbers and text; one type per column keeps CSV and Parquet readers consistent.
+    if not pd.api.types.is_integer_dtype(frame["key"]):
+        frame = frame.assign(key=frame["key"].astype(str))
+    return frame
+
+
+def _num(x) -> float | None:
+    x = float(x)
+    return x if np.isfinite(x) else None
