@@ -9,11 +9,11 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from planted import planted_outliers
 from sklearn.metrics import roc_auc_score
 from sklearn.neighbors import NearestNeighbors
 
 import investigator
+from fixtures.planted import planted_outliers
 from investigator.errors import InputError
 from investigator.explain import view
 from investigator.explain.nearest import _best_pair

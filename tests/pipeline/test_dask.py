@@ -14,9 +14,9 @@ import os
 import numpy as np
 import pandas as pd
 import pytest
-from planted import planted_outliers
 
 import investigator
+from fixtures.planted import planted_outliers
 from investigator.cli.main import main
 from investigator.io.tables import Source, Table, load_table
 from investigator.pipeline.dask_engine import RUN_FILE, draw_sample, scan_dataset

@@ -14,21 +14,10 @@ import pandas as pd
 import pytest
 
 import investigator.pipeline.engine
+from fixtures.tables import SHAPES, make_frame
 from investigator.cli.main import main
 
-N = 36
-
-
-def make_frame(n: int = N, seed: int = 21) -> pd.DataFrame:
-    """Invented delivery records: a text key, three numbers and a category."""
-    rng = np.random.default_rng(seed)
-    return pd.DataFrame({
-        "delivery": [f"D{i:03d}" for i in range(n)],
-        "distance": rng.gamma(4, 10, n).round(1),
-        "minutes": rng.normal(45, 8, n).round(1),
-        "parcels": rng.poisson(6, n) + 1,
-        "van": rng.choice(["small", "large"], n),
-    })
+N = SHAPES["deliveries"].n  # records in the invented deliveries table
 
 
 def run(*args, env=None) -> subprocess.CompletedProcess:
@@ -115,7 +104,7 @@ def test_corrupt_xlsx_subprocess(tmp_path):
 
 
 def test_unknown_id_subprocess(tmp_path):
-    make_frame().to_csv(tmp_path / "deliveries.csv", index=False)
+    make_frame("deliveries").to_csv(tmp_path / "deliveries.csv", index=False)
     done = run("scan", tmp_path / "deliveries.csv", "--id", "order")
     assert done.returncode == 2
     assert_one_line_error(done.stderr, "deliveries.csv", "'order'", "delivery")
@@ -127,7 +116,7 @@ def test_unknown_id_subprocess(tmp_path):
      ("--methods", "nope", "'nope'"), ("--seed", "-1", "--seed")],
 )
 def test_bad_option_values_subprocess(tmp_path, option, value, word):
-    make_frame().to_csv(tmp_path / "deliveries.csv", index=False)
+    make_frame("deliveries").to_csv(tmp_path / "deliveries.csv", index=False)
     done = run("scan", tmp_path / "deliveries.csv", option, value)
     assert done.returncode == 2
     assert_one_line_error(done.stderr, word)
@@ -138,7 +127,7 @@ def test_bad_option_values_subprocess(tmp_path, option, value, word):
 
 @pytest.fixture
 def deliveries(tmp_path):
-    frame = make_frame()
+    frame = make_frame("deliveries")
     frame.loc[7, "minutes"] = np.nan
     frame.loc[20, "distance"] = 900.0
     frame.to_csv(tmp_path / "deliveries.csv", index=False)
@@ -219,8 +208,8 @@ def test_output_folder_missing_exits_2(deliveries, tmp_path, capsys):
 def workbook(tmp_path):
     path = tmp_path / "deliveries.xlsx"
     with pd.ExcelWriter(path) as writer:
-        make_frame(30, seed=1).to_excel(writer, sheet_name="March", index=False)
-        second = make_frame(40, seed=2)
+        make_frame("deliveries", 30, seed=1).to_excel(writer, sheet_name="March", index=False)
+        second = make_frame("deliveries", 40, seed=2)
         second["delivery"] = "A" + second["delivery"]
         second.to_excel(writer, sheet_name="April", index=False)
     return path, second

@@ -10,8 +10,7 @@ import pytest
 
 pytest.importorskip("pytest_textual_snapshot")
 
-from tui_helpers import settle, wait_until  # noqa: E402
-
+from fixtures.tui import settle, wait_until  # noqa: E402
 from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402
 from investigator.pipeline.options import ScanOptions  # noqa: E402
 from investigator.tui.app import InvestigatorApp  # noqa: E402

@@ -18,22 +18,11 @@ import pytest
 from numpy.testing import assert_allclose
 
 import investigator
+from fixtures.tables import SHAPES, make_frame
 from investigator import InputError
 from investigator.cli.main import main
 
-N = 40
-
-
-def make_frame(n: int = N, seed: int = 7) -> pd.DataFrame:
-    """Invented measurements of parts: a text key, three numbers and a category."""
-    rng = np.random.default_rng(seed)
-    return pd.DataFrame({
-        "part_id": [f"P-{i:03d}" for i in range(n)],
-        "width": rng.normal(10, 2, n).round(3),
-        "height": rng.normal(0, 1, n).round(3),
-        "weight": rng.gamma(2, 3, n).round(2),
-        "batch": rng.choice(["north", "south", "east"], n),
-    })
+N = SHAPES["parts"].n  # records in the invented parts table
 
 
 def write_csv(path, frame: pd.DataFrame, **kwargs):
@@ -105,7 +94,7 @@ def _one_row(tmp):
 
 
 def _four_rows(tmp):
-    return write_csv(tmp / "four.csv", make_frame(4)), {}, ["four.csv", "4 data rows"]
+    return write_csv(tmp / "four.csv", make_frame("parts", 4)), {}, ["four.csv", "4 data rows"]
 
 
 def _fewer_rows_than_features(tmp):
@@ -125,7 +114,7 @@ def _only_text(tmp):
 
 
 def _all_nan_named_in_features(tmp):
-    frame = make_frame().assign(blank=np.nan)
+    frame = make_frame("parts").assign(blank=np.nan)
     path = write_csv(tmp / "blank_col.csv", frame)
     return path, {"features": "width,blank"}, ["blank_col.csv", "'blank'", "no values"]
 
@@ -143,7 +132,7 @@ def _duplicate_header_csv_spaces(tmp):
 
 
 def _duplicate_header_xlsx(tmp):
-    rows = make_frame()[["width", "height", "weight"]].values.tolist()
+    rows = make_frame("parts")[["width", "height", "weight"]].values.tolist()
     path = write_xlsx(tmp / "dup.xlsx", ["width", "height", "width"], rows)
     return path, {}, ["dup.xlsx", "'width'", "twice"]
 
@@ -156,26 +145,26 @@ def _duplicate_header_parquet(tmp):
 
 
 def _unknown_id(tmp):
-    return write_csv(tmp / "parts.csv", make_frame()), {"id": "serial"}, ["parts.csv", "'serial'", "part_id"]
+    return write_csv(tmp / "parts.csv", make_frame("parts")), {"id": "serial"}, ["parts.csv", "'serial'", "part_id"]
 
 
 def _unknown_feature(tmp):
-    path = write_csv(tmp / "parts.csv", make_frame())
+    path = write_csv(tmp / "parts.csv", make_frame("parts"))
     return path, {"features": "width,depth"}, ["parts.csv", "--features", "'depth'"]
 
 
 def _unknown_exclude(tmp):
-    path = write_csv(tmp / "parts.csv", make_frame())
+    path = write_csv(tmp / "parts.csv", make_frame("parts"))
     return path, {"exclude": "colour"}, ["parts.csv", "--exclude", "'colour'"]
 
 
 def _unknown_log(tmp):
-    path = write_csv(tmp / "parts.csv", make_frame())
+    path = write_csv(tmp / "parts.csv", make_frame("parts"))
     return path, {"log": "width,depth"}, ["parts.csv", "--log", "'depth'"]
 
 
 def _id_also_feature(tmp):
-    path = write_csv(tmp / "parts.csv", make_frame())
+    path = write_csv(tmp / "parts.csv", make_frame("parts"))
     return path, {"id": "part_id", "features": "part_id,width"}, ["parts.csv", "'part_id'"]
 
 
@@ -185,7 +174,7 @@ def _corrupt_parquet(tmp):
 
 
 def _truncated_parquet(tmp):
-    make_frame().to_parquet(tmp / "full.parquet")
+    make_frame("parts").to_parquet(tmp / "full.parquet")
     raw = (tmp / "full.parquet").read_bytes()
     (tmp / "cut.parquet").write_bytes(raw[: len(raw) // 2])
     return tmp / "cut.parquet", {}, ["cut.parquet", "Parquet"]
@@ -197,7 +186,7 @@ def _corrupt_xlsx(tmp):
 
 
 def _truncated_xlsx(tmp):
-    make_frame().to_excel(tmp / "full.xlsx", index=False)
+    make_frame("parts").to_excel(tmp / "full.xlsx", index=False)
     raw = (tmp / "full.xlsx").read_bytes()
     (tmp / "cut.xlsx").write_bytes(raw[: len(raw) // 2])
     return tmp / "cut.xlsx", {}, ["cut.xlsx", ".xlsx"]
@@ -205,7 +194,7 @@ def _truncated_xlsx(tmp):
 
 def _xlsx_with_damaged_part(tmp, part: str):
     """A real workbook whose zip is intact but one XML part is cut in half."""
-    make_frame().to_excel(tmp / "full.xlsx", index=False)
+    make_frame("parts").to_excel(tmp / "full.xlsx", index=False)
     name = f"damaged_{part.split('/')[-1].split('.')[0]}.xlsx"
     with zipfile.ZipFile(tmp / "full.xlsx") as zin, zipfile.ZipFile(tmp / name, "w") as zout:
         for item in zin.infolist():
@@ -236,28 +225,28 @@ def _old_xls(tmp):
 
 
 def _duplicate_key(tmp):
-    frame = make_frame()
+    frame = make_frame("parts")
     frame.loc[9, "part_id"] = frame.loc[2, "part_id"]
     path = write_csv(tmp / "parts.csv", frame)
     return path, {"id": "part_id"}, ["parts.csv", "'part_id'", "P-002", "rows 3, 10", "unique"]
 
 
 def _duplicate_numeric_key(tmp):
-    frame = make_frame().assign(part_id=np.arange(1000, 1000 + N))
+    frame = make_frame("parts").assign(part_id=np.arange(1000, 1000 + N))
     frame.loc[30, "part_id"] = 1004
     frame.to_parquet(tmp / "parts.parquet")
     return tmp / "parts.parquet", {"id": "part_id"}, ["parts.parquet", "'part_id'", "1004", "unique"]
 
 
 def _empty_key(tmp):
-    frame = make_frame()
+    frame = make_frame("parts")
     frame.loc[6, "part_id"] = None
     path = write_csv(tmp / "parts.csv", frame)
     return path, {"id": "part_id"}, ["parts.csv", "'part_id'", "row 7"]
 
 
 def _empty_key_xlsx(tmp):
-    frame = make_frame()
+    frame = make_frame("parts")
     rows = frame.values.tolist()
     rows[11][0] = None
     path = write_xlsx(tmp / "parts.xlsx", list(frame.columns), rows)
@@ -271,50 +260,50 @@ def _ragged_csv(tmp):
 
 
 def _sheet_on_csv(tmp):
-    return write_csv(tmp / "parts.csv", make_frame()), {"sheet": "data"}, ["parts.csv", "--sheet"]
+    return write_csv(tmp / "parts.csv", make_frame("parts")), {"sheet": "data"}, ["parts.csv", "--sheet"]
 
 
 def _unknown_sheet(tmp):
-    frame = make_frame()
+    frame = make_frame("parts")
     path = write_xlsx(tmp / "book.xlsx", list(frame.columns), frame.values.tolist(), sheet="measurements")
     return path, {"sheet": "summary"}, ["book.xlsx", "'summary'", "measurements"]
 
 
 def _line_break_in_header(tmp):
     """Spreadsheet headers often hold a line break; the message must still be one line."""
-    frame = make_frame().rename(columns={"weight": "weight\n(kg)"})
+    frame = make_frame("parts").rename(columns={"weight": "weight\n(kg)"})
     path = write_csv(tmp / "wrapped.csv", frame)
     return path, {"id": "serial"}, ["wrapped.csv", "'serial'", "weight\\n(kg)"]
 
 
 def _line_break_in_duplicate_xlsx(tmp):
-    rows = make_frame()[["width", "height", "weight"]].values.tolist()
+    rows = make_frame("parts")[["width", "height", "weight"]].values.tolist()
     path = write_xlsx(tmp / "wrapped.xlsx", ["mass\n(kg)", "height", "mass\n(kg)"], rows)
     return path, {}, ["wrapped.xlsx", "twice"]
 
 
 def _bad_cutoff(tmp):
-    return write_csv(tmp / "parts.csv", make_frame()), {"cutoff": 2}, ["--cutoff", "2"]
+    return write_csv(tmp / "parts.csv", make_frame("parts")), {"cutoff": 2}, ["--cutoff", "2"]
 
 
 def _bad_contamination(tmp):
-    return write_csv(tmp / "parts.csv", make_frame()), {"contamination": 0.9}, ["--contamination", "0.9"]
+    return write_csv(tmp / "parts.csv", make_frame("parts")), {"contamination": 0.9}, ["--contamination", "0.9"]
 
 
 def _zero_contamination(tmp):
-    return write_csv(tmp / "parts.csv", make_frame()), {"contamination": 0}, ["--contamination"]
+    return write_csv(tmp / "parts.csv", make_frame("parts")), {"contamination": 0}, ["--contamination"]
 
 
 def _bad_method(tmp):
-    return write_csv(tmp / "parts.csv", make_frame()), {"methods": "nope"}, ["--methods", "'nope'"]
+    return write_csv(tmp / "parts.csv", make_frame("parts")), {"methods": "nope"}, ["--methods", "'nope'"]
 
 
 def _bad_seed(tmp):
-    return write_csv(tmp / "parts.csv", make_frame()), {"seed": -1}, ["--seed", "-1"]
+    return write_csv(tmp / "parts.csv", make_frame("parts")), {"seed": -1}, ["--seed", "-1"]
 
 
 def _empty_features(tmp):
-    return write_csv(tmp / "parts.csv", make_frame()), {"features": ","}, ["--features", "empty"]
+    return write_csv(tmp / "parts.csv", make_frame("parts")), {"features": ","}, ["--features", "empty"]
 
 
 CASES = {
@@ -398,7 +387,7 @@ def test_input_error_is_not_an_internal_error():
 
 
 def test_frame_with_duplicate_column_names():
-    frame = make_frame()[["width", "height", "weight"]]
+    frame = make_frame("parts")[["width", "height", "weight"]]
     frame.columns = ["width", "height", "width"]
     with pytest.raises(InputError, match="'width' appears twice"):
         investigator.scan(frame)
@@ -407,7 +396,7 @@ def test_frame_with_duplicate_column_names():
 @pytest.mark.parametrize("rows", [0, 1, 4])
 def test_frame_with_too_few_rows(rows):
     with pytest.raises(InputError, match="data frame"):
-        investigator.scan(make_frame(rows + 1).iloc[:rows])
+        investigator.scan(make_frame("parts", rows + 1).iloc[:rows])
 
 
 def test_frame_without_columns():
@@ -417,7 +406,7 @@ def test_frame_without_columns():
 
 def test_frame_unknown_id():
     with pytest.raises(InputError, match="'serial' not found"):
-        investigator.scan(make_frame(), id="serial")
+        investigator.scan(make_frame("parts"), id="serial")
 
 
 # -- survivable oddities -------------------------------------------------------------------------------------
@@ -429,7 +418,7 @@ def _roles(result) -> dict[str, str]:
 
 @pytest.mark.parametrize("fmt", ["csv", "xlsx", "parquet"])
 def test_all_nan_column_is_left_out_as_empty(fmt, tmp_path):
-    frame = make_frame().assign(blank=np.nan)
+    frame = make_frame("parts").assign(blank=np.nan)
     path = tmp_path / f"parts.{fmt}"
     if fmt == "csv":
         write_csv(path, frame)
@@ -445,7 +434,7 @@ def test_all_nan_column_is_left_out_as_empty(fmt, tmp_path):
 
 
 def test_all_infinite_column_is_left_out_as_empty():
-    frame = make_frame().assign(overflow=np.inf)
+    frame = make_frame("parts").assign(overflow=np.inf)
     result = investigator.scan(frame, id="part_id")
     assert _roles(result)["overflow"] == "empty"
     assert "overflow" not in result.features.names
@@ -455,7 +444,7 @@ def test_all_infinite_column_is_left_out_as_empty():
 
 @pytest.mark.parametrize("fmt", ["csv", "parquet", "frame"])
 def test_infinite_values_are_missing_with_a_notice(fmt, tmp_path):
-    frame = make_frame()
+    frame = make_frame("parts")
     frame.loc[4, "width"] = np.inf
     frame.loc[17, "width"] = -np.inf
     if fmt == "csv":
@@ -487,7 +476,7 @@ def _scores(data, **options):
 
 
 def test_semicolon_delimiter_same_as_comma(tmp_path):
-    frame = make_frame()
+    frame = make_frame("parts")
     _, expected = _scores(write_csv(tmp_path / "comma.csv", frame))
     result, got = _scores(write_csv(tmp_path / "semi.csv", frame, sep=";"))
     assert result.run["input"]["delimiter"] == ";"
@@ -498,7 +487,7 @@ def test_semicolon_delimiter_same_as_comma(tmp_path):
 
 @pytest.mark.parametrize("suffix", [".tsv", ".txt"])
 def test_tab_delimited(tmp_path, suffix):
-    frame = make_frame()
+    frame = make_frame("parts")
     result = investigator.scan(write_csv(tmp_path / f"parts{suffix}", frame, sep="\t"), id="part_id")
     assert result.run["input"]["delimiter"] == "\t"
     assert list(result.table.frame.columns) == list(frame.columns)
@@ -506,7 +495,7 @@ def test_tab_delimited(tmp_path, suffix):
 
 
 def test_utf8_bom_is_not_part_of_the_first_name(tmp_path):
-    frame = make_frame()
+    frame = make_frame("parts")
     path = write_csv(tmp_path / "bom.csv", frame, encoding="utf-8-sig")
     assert path.read_bytes().startswith(b"\xef\xbb\xbf")
     result = investigator.scan(path, id="part_id")  # the key is the first column
@@ -516,7 +505,7 @@ def test_utf8_bom_is_not_part_of_the_first_name(tmp_path):
 
 
 def test_cp1252_file_loads_with_an_encoding_notice(tmp_path):
-    frame = make_frame()
+    frame = make_frame("parts")
     frame["batch"] = np.where(np.arange(N) % 3 == 0, "Café Süd", "Nord")
     path = write_csv(tmp_path / "windows.csv", frame, encoding="cp1252")
     raw = path.read_bytes()
@@ -529,7 +518,7 @@ def test_cp1252_file_loads_with_an_encoding_notice(tmp_path):
 
 
 def test_utf8_file_has_no_encoding_notice(tmp_path):
-    frame = make_frame()
+    frame = make_frame("parts")
     frame["batch"] = np.where(np.arange(N) % 3 == 0, "Café Süd", "Nord")
     result = investigator.scan(write_csv(tmp_path / "utf8.csv", frame, encoding="utf-8"), id="part_id")
     assert not any("UTF-8" in n for n in result.run["notices"])
@@ -537,7 +526,7 @@ def test_utf8_file_has_no_encoding_notice(tmp_path):
 
 
 def test_key_values_keep_leading_zeros(tmp_path):
-    frame = make_frame().assign(part_id=[f"{i:04d}" for i in range(N)])
+    frame = make_frame("parts").assign(part_id=[f"{i:04d}" for i in range(N)])
     result = investigator.scan(write_csv(tmp_path / "zeros.csv", frame), id="part_id")
     assert result.keys[:3] == ["0000", "0001", "0002"]
 
@@ -546,7 +535,7 @@ def test_key_values_keep_leading_zeros(tmp_path):
 
 
 def _frame_with_a_gap() -> pd.DataFrame:
-    frame = make_frame(60, seed=11)
+    frame = make_frame("parts", 60, seed=11)
     frame.loc[[5, 33], "height"] = np.nan
     frame.loc[50, "width"] = 31.5  # a clear outlier, so the scores are not all alike
     return frame
@@ -584,7 +573,7 @@ def test_xlsx_written_by_pandas_same_scores(tmp_path):
 
 
 def test_second_sheet_is_read_when_named(tmp_path):
-    first, second = make_frame(30, seed=1), make_frame(45, seed=2)
+    first, second = make_frame("parts", 30, seed=1), make_frame("parts", 45, seed=2)
     path = tmp_path / "book.xlsx"
     with pd.ExcelWriter(path) as writer:
         first.to_excel(writer, sheet_name="old", index=False)
@@ -598,7 +587,7 @@ def test_second_sheet_is_read_when_named(tmp_path):
 
 def test_trailing_empty_columns_of_a_spreadsheet_export(tmp_path):
     """'a,b,c,,' headers (blank trailing cells) are empty columns, not duplicate names."""
-    frame = make_frame()
+    frame = make_frame("parts")
     lines = [",".join(frame.columns) + ",,"] + [",".join(map(str, r)) + ",," for r in frame.values.tolist()]
     (tmp_path / "export.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
     result = investigator.scan(tmp_path / "export.csv", id="part_id")
@@ -608,7 +597,7 @@ def test_trailing_empty_columns_of_a_spreadsheet_export(tmp_path):
 
 
 def test_blank_header_cell_named_alike_in_csv_and_xlsx(tmp_path):
-    frame = make_frame()
+    frame = make_frame("parts")
     header = ["part_id", "width", "", "weight", "batch"]
     lines = [",".join(header)] + [",".join(map(str, r)) for r in frame.values.tolist()]
     (tmp_path / "blank.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")

@@ -9,8 +9,7 @@ import pytest
 
 pytest.importorskip("textual")
 
-from tui_helpers import run_async, screen_text, settle, wait_until  # noqa: E402
-
+from fixtures.tui import run_async, screen_text, settle, wait_until  # noqa: E402
 from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402
 from investigator.pipeline.options import ScanOptions  # noqa: E402
 from investigator.review.matching import record_case  # noqa: E402

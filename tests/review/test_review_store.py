@@ -22,18 +22,16 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
-from review_data import N  # noqa: F401  (shared invented data)
-from review_data import invoices as _invoices
 
+from fixtures.tables import SHAPES, make_frame
 from investigator.errors import InputError
 from investigator.io.tables import load_table
 from investigator.review import VERDICTS, Case, ReviewStore, default_store_path, group_case
 from investigator.review import store as store_module
 from investigator.review.matching import fingerprint, match_store, record_case, record_values
 
-
-def invoices(n: int = N, seed: int = 5) -> pd.DataFrame:
-    return _invoices(n, seed)
+N = SHAPES["invoices"].n  # records in the invented invoices table
+SEED = 5  # this module's draw of them (the matching cases below were written against it)
 
 
 def write(frame: pd.DataFrame, path: Path) -> Path:
@@ -118,7 +116,7 @@ def test_a_new_verdict_keeps_the_note_unless_a_note_is_given(tmp_path):
 
 
 def test_entries_carry_reviewer_utc_time_run_and_record(tmp_path, monkeypatch):
-    frame_path = write(invoices(), tmp_path / "inv.csv")
+    frame_path = write(make_frame("invoices", seed=SEED), tmp_path / "inv.csv")
     table = load_table(frame_path, id_column="invoice")
     monkeypatch.setattr(store_module.getpass, "getuser", lambda: "carla")
     with ReviewStore(tmp_path / "s.sqlite") as store:
@@ -143,7 +141,7 @@ def test_reviewer_falls_back_when_the_os_names_nobody(monkeypatch):
 
 
 def test_group_cases_fit_the_same_store(tmp_path):
-    path = write(invoices(), tmp_path / "inv.csv")
+    path = write(make_frame("invoices", seed=SEED), tmp_path / "inv.csv")
     table = load_table(path, id_column="invoice")
     with ReviewStore(tmp_path / "s.sqlite") as store:
         store.set(group_case("group:3", members=["INV-001", "INV-002"]), "follow-up", "same evening")
@@ -279,7 +277,7 @@ def test_fingerprint_ignores_column_order_and_representation_but_not_values():
 
 
 def test_a_gap_in_an_appended_row_does_not_change_other_fingerprints(tmp_path):
-    frame = invoices()
+    frame = make_frame("invoices", seed=SEED)
     before = load_table(write(frame, tmp_path / "a.csv"))
     gap = pd.DataFrame({"invoice": ["INV-900"], "amount": [10.0], "lines": [None], "supplier": ["east"]})
     after = load_table(write(pd.concat([frame, gap]), tmp_path / "b.csv"))
@@ -297,7 +295,7 @@ def rescan(frame: pd.DataFrame, seed: int = 9) -> tuple[pd.DataFrame, dict]:
     new = frame.copy()
     new.loc[new["invoice"] == changed, "amount"] = new.loc[new["invoice"] == changed, "amount"] * 10
     new = new[new["invoice"] != deleted]
-    extra = invoices(3, seed=77).assign(invoice=["INV-100", "INV-101", "INV-102"])
+    extra = make_frame("invoices", 3, seed=77).assign(invoice=["INV-100", "INV-101", "INV-102"])
     new = pd.concat([new, extra]).sample(frac=1, random_state=seed).reset_index(drop=True)
     return new, {"changed": changed, "deleted": deleted}
 
@@ -307,7 +305,7 @@ REVIEWED = {"INV-001": "confirmed", "INV-004": "follow-up", "INV-007": "benign",
 
 @pytest.mark.parametrize("keyed", [True, False], ids=["by key", "by fingerprint"])
 def test_verdicts_follow_their_records_after_a_rescan(tmp_path, keyed):
-    frame = invoices()
+    frame = make_frame("invoices", seed=SEED)
     id_column = "invoice" if keyed else None
     first = load_table(write(frame, tmp_path / "inv.csv"), id_column=id_column)
     store = ReviewStore(tmp_path / "s.sqlite")
@@ -347,7 +345,7 @@ def test_verdicts_follow_their_records_after_a_rescan(tmp_path, keyed):
 
 
 def test_identical_records_without_a_key_share_one_verdict(tmp_path):
-    frame = invoices(8).drop(columns="invoice")
+    frame = make_frame("invoices", 8, seed=SEED).drop(columns="invoice")
     frame = pd.concat([frame, frame.iloc[[2, 2]]]).reset_index(drop=True)  # rows 3, 9 and 10 are identical
     table = load_table(write(frame, tmp_path / "inv.csv"))
     with ReviewStore(tmp_path / "s.sqlite") as store:
@@ -359,7 +357,7 @@ def test_identical_records_without_a_key_share_one_verdict(tmp_path):
 
 
 def test_the_latest_of_two_matching_verdicts_is_in_force_and_the_other_listed(tmp_path):
-    path = write(invoices(), tmp_path / "inv.csv")
+    path = write(make_frame("invoices", seed=SEED), tmp_path / "inv.csv")
     by_row, by_key = load_table(path), load_table(path, id_column="invoice")
     with ReviewStore(tmp_path / "s.sqlite") as store:
         store.set(record_case(by_row, 5), "follow-up")  # first without --id, by content
@@ -372,7 +370,7 @@ def test_the_latest_of_two_matching_verdicts_is_in_force_and_the_other_listed(tm
 
 
 def test_a_verdict_recorded_with_a_key_says_how_to_match_it_when_listed_without(tmp_path):
-    frame = invoices()
+    frame = make_frame("invoices", seed=SEED)
     keyed = load_table(write(frame, tmp_path / "inv.csv"), id_column="invoice")
     with ReviewStore(tmp_path / "s.sqlite") as store:
         store.set(record_case(keyed, 4), "confirmed")

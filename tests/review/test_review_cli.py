@@ -16,16 +16,18 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
-from review_data import N, invoices  # noqa: F401  (shared invented data)
 
+from fixtures.tables import SHAPES, make_frame
 from investigator.cli.main import main
 from investigator.review import VERDICTS, default_store_path
+
+N = SHAPES["invoices"].n  # records in the invented invoices table
 
 
 @pytest.fixture
 def data(tmp_path) -> Path:
     path = tmp_path / "invoices.csv"
-    invoices().to_csv(path, index=False)
+    make_frame("invoices").to_csv(path, index=False)
     return path
 
 
@@ -96,7 +98,7 @@ def test_setting_twice_keeps_both_in_history_and_the_note(capsys, data):
 
 
 def test_without_a_key_identical_records_share_the_verdict(capsys, tmp_path):
-    frame = invoices(8).drop(columns="invoice")
+    frame = make_frame("invoices", 8).drop(columns="invoice")
     frame = pd.concat([frame, frame.iloc[[4]]]).reset_index(drop=True)  # row 9 repeats row 5
     path = tmp_path / "dup.csv"
     frame.to_csv(path, index=False)
@@ -128,7 +130,7 @@ def test_verdicts_follow_their_records_through_a_rescan(capsys, data, tmp_path):
     frame = pd.read_csv(data)
     frame.loc[frame["invoice"] == "INV-006", "lines"] += 5                # changed
     frame = frame[frame["invoice"] != "INV-009"]                        # deleted
-    frame = pd.concat([frame, invoices(2, seed=8).assign(invoice=["INV-500", "INV-501"])])  # appended
+    frame = pd.concat([frame, make_frame("invoices", 2, seed=8).assign(invoice=["INV-500", "INV-501"])])  # appended
     frame = frame.sample(frac=1, random_state=4).reset_index(drop=True)  # shuffled
     frame.to_csv(data, index=False)
     out_file = tmp_path / "verdicts.json"

@@ -4,8 +4,8 @@
 import numpy as np
 import pytest
 from scipy import stats
-from shapley import shapley_values
 
+from fixtures.shapley import shapley_values
 from investigator.errors import InputError
 from investigator.methods.hotelling import Hotelling, phase_i_limit, phase_ii_limit
 
