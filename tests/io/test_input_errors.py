@@ -7,6 +7,7 @@ All data is invented here with a fixed seed; every scan is a few dozen rows.
 
 from __future__ import annotations
 
+import re
 import zipfile
 
 import numpy as np
@@ -18,6 +19,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 import investigator
+from fixtures import BAD
 from fixtures.tables import SHAPES, make_frame
 from investigator import InputError
 from investigator.cli.main import main
@@ -61,7 +63,8 @@ def cli_error(capsys, path, options: dict | None = None, extra: tuple = ()) -> s
 
 
 # -- the bad inputs ---------------------------------------------------------------------------------------
-# Each builder writes its file into tmp_path and returns (path, options, words the message must contain).
+# Each builder writes its file into tmp_path and returns (path, options, words the message must contain). The
+# cases that are simplest as files are in fixtures/bad (see the next section).
 
 
 def _missing_file(tmp):
@@ -73,19 +76,9 @@ def _folder(tmp):
     return tmp / "a_folder.csv", {}, ["a_folder.csv", "folder"]
 
 
-def _empty_file(tmp):
-    (tmp / "empty.csv").write_bytes(b"")
-    return tmp / "empty.csv", {}, ["empty.csv", "empty"]
-
-
 def _blank_lines(tmp):
     (tmp / "blank.csv").write_text("\n \n\n", encoding="utf-8")
     return tmp / "blank.csv", {}, ["blank.csv", "empty"]
-
-
-def _header_only(tmp):
-    (tmp / "header.csv").write_text("width,height,weight\n", encoding="utf-8")
-    return tmp / "header.csv", {}, ["header.csv", "no data rows"]
 
 
 def _one_row(tmp):
@@ -117,12 +110,6 @@ def _all_nan_named_in_features(tmp):
     frame = make_frame("parts").assign(blank=np.nan)
     path = write_csv(tmp / "blank_col.csv", frame)
     return path, {"features": "width,blank"}, ["blank_col.csv", "'blank'", "no values"]
-
-
-def _duplicate_header_csv(tmp):
-    lines = ["width,height,width"] + [f"{i},{i % 7},{i % 3}" for i in range(N)]
-    (tmp / "dup.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
-    return tmp / "dup.csv", {}, ["dup.csv", "'width'", "twice", "rename"]
 
 
 def _duplicate_header_csv_spaces(tmp):
@@ -253,12 +240,6 @@ def _empty_key_xlsx(tmp):
     return path, {"id": "part_id"}, ["parts.xlsx", "'part_id'", "row 12"]
 
 
-def _ragged_csv(tmp):
-    lines = ["width,height,weight"] + [f"{i},{i % 5},{i % 7}" for i in range(N)] + ["1,2,3,4,5"]
-    (tmp / "ragged.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
-    return tmp / "ragged.csv", {}, ["ragged.csv", "same number of fields"]
-
-
 def _sheet_on_csv(tmp):
     return write_csv(tmp / "parts.csv", make_frame("parts")), {"sheet": "data"}, ["parts.csv", "--sheet"]
 
@@ -309,15 +290,12 @@ def _empty_features(tmp):
 CASES = {
     "missing file": _missing_file,
     "a folder": _folder,
-    "empty file": _empty_file,
     "only blank lines": _blank_lines,
-    "header only": _header_only,
     "one row": _one_row,
     "four rows": _four_rows,
     "fewer rows than features": _fewer_rows_than_features,
     "only text and identifiers": _only_text,
     "all-NaN column named in --features": _all_nan_named_in_features,
-    "duplicate header csv": _duplicate_header_csv,
     "duplicate header csv after spaces": _duplicate_header_csv_spaces,
     "duplicate header xlsx": _duplicate_header_xlsx,
     "duplicate header parquet": _duplicate_header_parquet,
@@ -338,7 +316,6 @@ CASES = {
     "duplicate numeric key": _duplicate_numeric_key,
     "empty key csv": _empty_key,
     "empty key xlsx": _empty_key_xlsx,
-    "ragged csv": _ragged_csv,
     "--sheet on csv": _sheet_on_csv,
     "unknown sheet": _unknown_sheet,
     "line break in a header": _line_break_in_header,
@@ -381,6 +358,35 @@ def test_input_error_is_not_an_internal_error():
     # The CLI maps InputError to 2 and everything else to 1, so it must stay a distinct class.
     assert issubclass(InputError, ValueError)
     assert InputError is not ValueError
+
+
+# -- the bad files in fixtures/bad ---------------------------------------------------------------------------
+# fixtures/bad/README.md has one line per file: what is wrong with it and the words the error must contain.
+
+
+def _bad_files() -> dict[str, list[str]]:
+    lines = (BAD / "README.md").read_text(encoding="utf-8").splitlines()
+    entries = [re.match(r"- `([^`]+)`: .* Must say: (.*)$", line) for line in lines if line.startswith("- `")]
+    return {m[1]: re.findall(r'"([^"]+)"', m[2]) for m in entries if m}
+
+
+BAD_FILES = _bad_files()
+
+
+def test_every_bad_file_is_described_once():
+    on_disk = sorted(p.name for p in BAD.iterdir() if p.name != "README.md")
+    assert sorted(BAD_FILES) == on_disk
+    assert all(len(words) >= 2 for words in BAD_FILES.values()), BAD_FILES
+
+
+@pytest.mark.parametrize("name", list(BAD_FILES))
+def test_a_bad_file_gives_the_error_its_readme_line_names(name, capsys):
+    err = cli_error(capsys, BAD / name)
+    for word in BAD_FILES[name]:
+        assert word in err, f"{word!r} missing from {err!r}"
+    with pytest.raises(InputError) as info:
+        investigator.scan(BAD / name)
+    assert "\n" not in str(info.value) and all(word in str(info.value) for word in BAD_FILES[name])
 
 
 # -- data frames through the API ----------------------------------------------------------------------------
