@@ -6,30 +6,17 @@ Data is invented here with a fixed seed; every scan is a few dozen rows.
 from __future__ import annotations
 
 import json
-import subprocess
-import sys
 
 import numpy as np
 import pandas as pd
 import pytest
 
 import investigator.pipeline.engine
+from fixtures.cli import assert_one_line_error, run
 from fixtures.tables import SHAPES, make_frame
 from investigator.cli.main import main
 
 N = SHAPES["deliveries"].n  # records in the invented deliveries table
-
-
-def run(*args, env=None) -> subprocess.CompletedProcess:
-    return subprocess.run([sys.executable, "-m", "investigator", *map(str, args)], capture_output=True,
-                          text=True, timeout=120, env=env)
-
-
-def assert_one_line_error(err: str, *words: str) -> None:
-    assert "Traceback" not in err
-    assert err.endswith("\n") and err.count("\n") == 1, f"stderr is not one line: {err!r}"
-    for word in words:
-        assert word in err, f"{word!r} missing from {err!r}"
 
 
 # -- help and usage ------------------------------------------------------------------------------------------

@@ -1,7 +1,8 @@
 """The report: HTML sections, self-containment, escaping, spreadsheet safety, a real browser, determinism,
 verdicts and bad input.
 
-Data is invented: the built-in demo (scanned once for the module) and a small table of hostile values.
+Data is invented: the built-in demo (scanned once for the session, tests/conftest.py) and a small table of
+hostile values.
 """
 
 from __future__ import annotations
@@ -26,8 +27,7 @@ from openpyxl import load_workbook
 from PIL import Image
 
 import investigator
-from investigator.cli.main import main
-from investigator.io.demo import DEMO_ID, write_demo
+from investigator.io.demo import DEMO_ID
 from investigator.report import write_report
 from investigator.report.plots import FLAGGED, ORDINARY
 from investigator.review.matching import fingerprint, record_values
@@ -70,21 +70,11 @@ class Page(HTMLParser):
         return "".join(self.text)
 
 
-def cli(capsys, *args) -> tuple[int, str, str]:
-    try:
-        code = main([str(a) for a in args])
-    except SystemExit as exc:  # argparse usage errors
-        code = exc.code
-    out = capsys.readouterr()
-    return code, out.out, out.err
-
-
 @pytest.fixture(scope="module")
-def demo(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("demo")
-    path = write_demo(folder)
-    result = investigator.scan(str(path), id=DEMO_ID)
-    report = write_report(result, folder / "report.html")
+def demo(demo_scan, tmp_path_factory):
+    """The session's demo scan (tests/conftest.py) and its report, written once for the module."""
+    path, result = demo_scan
+    report = write_report(result, tmp_path_factory.mktemp("report") / "report.html")
     return path, result, report.read_text(encoding="utf-8")
 
 
@@ -176,13 +166,13 @@ def test_no_external_url_or_script(demo):
     assert len(page.images()) >= 3
 
 
-def test_hostile_values_are_escaped(capsys, hostile, tmp_path):
+def test_hostile_values_are_escaped(cli, hostile, tmp_path):
     note = f"{HOSTILE} and <img src=x onerror=alert(2)>"
-    code, _, err = cli(capsys, "verdict", hostile, "--id", "ref", "--key", HOSTILE, "--set", "follow-up",
-                       "--note", note, "--reviewer", "<b>auditor</b>")
+    code, _, err = cli("verdict", hostile, "--id", "ref", "--key", HOSTILE, "--set", "follow-up",
+                   "--note", note, "--reviewer", "<b>auditor</b>")
     assert code == 0, err
     out = tmp_path / "report.html"
-    code, _, err = cli(capsys, "report", hostile, "--id", "ref", "--out", out)
+    code, _, err = cli("report", hostile, "--id", "ref", "--out", out)
     assert code == 0, err
     text = out.read_text(encoding="utf-8")
     page = Page(text)
@@ -321,7 +311,7 @@ def test_the_same_scan_gives_the_same_report(demo, tmp_path):
 # -- verdicts -------------------------------------------------------------------------------------------------
 
 
-def test_verdicts_and_their_history_appear(capsys, demo, tmp_path):
+def test_verdicts_and_their_history_appear(cli, demo, tmp_path):
     path, result, _ = demo
     store = tmp_path / "review.sqlite"
     flagged = [i for i in result.ranking() if result.flagged[i]]
@@ -331,7 +321,7 @@ def test_verdicts_and_their_history_appear(capsys, demo, tmp_path):
                              (str(result.keys[ordinary]), "benign", "looked at: a regular trip")):
         args = ["verdict", path, "--id", DEMO_ID, "--key", key, "--set", state, "--store", store,
                 "--reviewer", "A. Reviewer"]
-        code, _, err = cli(capsys, *(args + (["--note", note] if note is not None else [])))
+        code, _, err = cli(*(args + (["--note", note] if note is not None else [])))
         assert code == 0, err
     with ReviewStore(store) as review:
         # As if the second case had other values when judged, and one record had since left the data.
@@ -397,6 +387,6 @@ def test_groups_and_map_sections_appear_when_present(demo, tmp_path):
     assert case["profile"][0]["feature"] in plain
 
 
-def test_out_is_required(capsys, hostile):
-    code, _, err = cli(capsys, "report", hostile)
+def test_out_is_required(cli, hostile):
+    code, _, err = cli("report", hostile)
     assert code == 2 and "--out" in err and "Traceback" not in err

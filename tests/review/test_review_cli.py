@@ -11,14 +11,13 @@ import json
 import sqlite3
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import pandas as pd
 import pytest
 
+from fixtures.cli import assert_one_line_error, run
 from fixtures.tables import SHAPES, make_frame
-from investigator.cli.main import main
 from investigator.review import VERDICTS, default_store_path
 
 N = SHAPES["invoices"].n  # records in the invented invoices table
@@ -31,30 +30,9 @@ def data(tmp_path) -> Path:
     return path
 
 
-def cli(capsys, *args) -> tuple[int, str, str]:
-    try:
-        code = main([str(a) for a in args])
-    except SystemExit as exc:  # argparse usage errors
-        code = exc.code
-    captured = capsys.readouterr()
-    return code, captured.out, captured.err
-
-
 def history(store: Path) -> list[tuple]:
     with sqlite3.connect(store) as db:
         return db.execute("SELECT * FROM history ORDER BY change").fetchall()
-
-
-def assert_one_line_error(err: str, *words: str) -> None:
-    assert "Traceback" not in err
-    assert err.endswith("\n") and err.count("\n") == 1, f"stderr is not one line: {err!r}"
-    for word in words:
-        assert word in err, f"{word!r} missing from {err!r}"
-
-
-def run(*args, **kwargs) -> subprocess.CompletedProcess:
-    return subprocess.run([sys.executable, "-m", "investigator", *map(str, args)], capture_output=True,
-                          text=True, timeout=120, **kwargs)
 
 
 # -- recording and listing -----------------------------------------------------------------------------------
@@ -69,54 +47,54 @@ def test_help_lists_both_commands():
         assert word in done.stdout
 
 
-def test_a_verdict_by_key_is_stored_beside_the_data_and_listed(capsys, data):
-    code, out, err = cli(capsys, "verdict", data, "--id", "invoice", "--key", "INV-005", "--set", "confirmed",
-                         "--note", "billed twice", "--reviewer", "dana")
+def test_a_verdict_by_key_is_stored_beside_the_data_and_listed(cli, data):
+    code, out, err = cli("verdict", data, "--id", "invoice", "--key", "INV-005", "--set", "confirmed",
+                     "--note", "billed twice", "--reviewer", "dana")
     assert (code, err) == (0, "")
     assert "INV-005" in out and "confirmed" in out
     store = default_store_path(data)
     [row] = history(store)
     assert row[1:8] == ("key:invoice:INV-005", "record", "invoice", "INV-005", 6, "confirmed", "billed twice")
     assert row[8] == "dana"
-    code, out, err = cli(capsys, "verdicts", data, "--id", "invoice")
+    code, out, err = cli("verdicts", data, "--id", "invoice")
     assert (code, err) == (0, "")
     assert "row 6 (invoice INV-005): confirmed by dana" in out and "billed twice" in out
     assert "History" in out and "#1" in out
 
 
-def test_setting_twice_keeps_both_in_history_and_the_note(capsys, data):
+def test_setting_twice_keeps_both_in_history_and_the_note(cli, data):
     store = default_store_path(data)
-    cli(capsys, "verdict", data, "--row", 3, "--set", "follow-up", "--note", "ask the buyer")
-    code, out, _ = cli(capsys, "verdict", data, "--row", 3, "--set", "benign")
+    cli("verdict", data, "--row", 3, "--set", "follow-up", "--note", "ask the buyer")
+    code, out, _ = cli("verdict", data, "--row", 3, "--set", "benign")
     assert code == 0 and "was follow-up" in out
     rows = history(store)
     assert [(r[6], r[7]) for r in rows] == [("follow-up", "ask the buyer"), ("benign", "ask the buyer")]
-    code, out, _ = cli(capsys, "verdicts", data)
+    code, out, _ = cli("verdicts", data)
     listed = out.split("History")[0]
     assert "row 3: benign" in listed and "follow-up" not in listed
     assert "-> follow-up" in out.split("History")[1]
 
 
-def test_without_a_key_identical_records_share_the_verdict(capsys, tmp_path):
+def test_without_a_key_identical_records_share_the_verdict(cli, tmp_path):
     frame = make_frame("invoices", 8).drop(columns="invoice")
     frame = pd.concat([frame, frame.iloc[[4]]]).reset_index(drop=True)  # row 9 repeats row 5
     path = tmp_path / "dup.csv"
     frame.to_csv(path, index=False)
-    code, out, _ = cli(capsys, "verdict", path, "--row", 9, "--set", "benign")
+    code, out, _ = cli("verdict", path, "--row", 9, "--set", "benign")
     assert code == 0 and "all 2 identical records (rows 5, 9)" in out
-    code, out, _ = cli(capsys, "verdicts", path)
+    code, out, _ = cli("verdicts", path)
     assert "row 5: benign" in out and "row 9: benign" in out and "applies to all 2 identical" in out
 
 
-def test_without_an_id_column_the_key_is_the_row(capsys, data):
-    code, out, _ = cli(capsys, "verdict", data, "--key", 4, "--set", "benign")
+def test_without_an_id_column_the_key_is_the_row(cli, data):
+    code, out, _ = cli("verdict", data, "--key", 4, "--set", "benign")
     assert code == 0 and out.startswith("row 4: benign")
     [row] = history(default_store_path(data))
     assert row[1].startswith("fp:") and row[5] == 4 and json.loads(row[12])["invoice"] == "INV-003"
 
 
-def test_listing_without_a_store_creates_nothing(capsys, data):
-    code, out, err = cli(capsys, "verdicts", data)
+def test_listing_without_a_store_creates_nothing(cli, data):
+    code, out, err = cli("verdicts", data)
     assert (code, err) == (0, "") and "No verdicts yet" in out
     assert not default_store_path(data).exists()
 
@@ -124,9 +102,9 @@ def test_listing_without_a_store_creates_nothing(capsys, data):
 # -- re-scans ------------------------------------------------------------------------------------------------
 
 
-def test_verdicts_follow_their_records_through_a_rescan(capsys, data, tmp_path):
+def test_verdicts_follow_their_records_through_a_rescan(cli, data, tmp_path):
     for key, state in (("INV-002", "benign"), ("INV-006", "follow-up"), ("INV-009", "confirmed")):
-        assert cli(capsys, "verdict", data, "--id", "invoice", "--key", key, "--set", state)[0] == 0
+        assert cli("verdict", data, "--id", "invoice", "--key", key, "--set", state)[0] == 0
     frame = pd.read_csv(data)
     frame.loc[frame["invoice"] == "INV-006", "lines"] += 5                # changed
     frame = frame[frame["invoice"] != "INV-009"]                        # deleted
@@ -134,7 +112,7 @@ def test_verdicts_follow_their_records_through_a_rescan(capsys, data, tmp_path):
     frame = frame.sample(frac=1, random_state=4).reset_index(drop=True)  # shuffled
     frame.to_csv(data, index=False)
     out_file = tmp_path / "verdicts.json"
-    code, out, err = cli(capsys, "verdicts", data, "--id", "invoice", "--export", out_file)
+    code, out, err = cli("verdicts", data, "--id", "invoice", "--export", out_file)
     assert (code, err) == (0, "")
     exported = json.loads(out_file.read_text(encoding="utf-8"))
     by_key = {v["key"]: v for v in exported["verdicts"]}
@@ -156,11 +134,11 @@ def test_verdicts_follow_their_records_through_a_rescan(capsys, data, tmp_path):
 HOSTILE = ["=SUM(A1:A9)", "+41 20 000", "-3 credit", "@cmd", "\tTAB", "\rCR", "ordinary note"]
 
 
-def test_csv_export_neutralises_formula_like_cells(capsys, data, tmp_path):
+def test_csv_export_neutralises_formula_like_cells(cli, data, tmp_path):
     for row, note in enumerate(HOSTILE, 1):
-        assert cli(capsys, "verdict", data, "--row", row, "--set", "benign", "--note", note)[0] == 0
+        assert cli("verdict", data, "--row", row, "--set", "benign", "--note", note)[0] == 0
     out_file = tmp_path / "verdicts.csv"
-    code, _, err = cli(capsys, "verdicts", data, "--export", out_file)
+    code, _, err = cli("verdicts", data, "--export", out_file)
     assert (code, err) == (0, "")
     with out_file.open(newline="", encoding="utf-8") as f:
         table = list(csv.DictReader(f))
@@ -171,8 +149,8 @@ def test_csv_export_neutralises_formula_like_cells(capsys, data, tmp_path):
     assert all(r["latest"] == "True" and r["status"] == "in force" for r in table)
 
 
-def test_export_to_an_unknown_format_is_refused(capsys, data, tmp_path):
-    code, _, err = cli(capsys, "verdicts", data, "--export", tmp_path / "v.txt")
+def test_export_to_an_unknown_format_is_refused(cli, data, tmp_path):
+    code, _, err = cli("verdicts", data, "--export", tmp_path / "v.txt")
     assert code == 2
     assert_one_line_error(err, "v.txt", ".csv", ".json")
     assert not (tmp_path / "v.txt").exists()
@@ -197,34 +175,34 @@ BAD = {
 
 
 @pytest.mark.parametrize("case", list(BAD), ids=list(BAD))
-def test_bad_input_exits_2_with_one_line_and_leaves_the_store_alone(capsys, data, tmp_path, case):
+def test_bad_input_exits_2_with_one_line_and_leaves_the_store_alone(cli, data, tmp_path, case):
     store = default_store_path(data)
-    assert cli(capsys, "verdict", data, "--row", 4, "--set", "follow-up", "--note", "keep me")[0] == 0
+    assert cli("verdict", data, "--row", 4, "--set", "follow-up", "--note", "keep me")[0] == 0
     (tmp_path / "plain-file").write_text("not a folder", encoding="utf-8")
     before = history(store)
     args, words = BAD[case]
     args = [str(a).replace("{tmp}", str(tmp_path)) for a in args]
-    code, out, err = cli(capsys, "verdict", data, *args)
+    code, out, err = cli("verdict", data, *args)
     assert code == 2 and out == ""
     assert_one_line_error(err, *words)
     assert history(store) == before
     assert not (tmp_path / "plain-file" / "s.sqlite").exists()
 
 
-def test_a_store_that_is_not_a_database_is_refused_and_kept(capsys, data, tmp_path):
+def test_a_store_that_is_not_a_database_is_refused_and_kept(cli, data, tmp_path):
     other = tmp_path / "ledger.sqlite"
     other.write_bytes(b"these are someone's notes, not a database" * 10)
     before = other.read_bytes()
     for command in (["verdict", data, "--row", 1, "--set", "benign"], ["verdicts", data]):
-        code, _, err = cli(capsys, *command, "--store", other)
+        code, _, err = cli(*command, "--store", other)
         assert code == 2
         assert_one_line_error(err, str(other))
     assert other.read_bytes() == before
 
 
-def test_the_data_file_is_never_taken_for_the_store(capsys, data):
+def test_the_data_file_is_never_taken_for_the_store(cli, data):
     before = data.read_bytes()
-    code, _, err = cli(capsys, "verdict", data, "--row", 1, "--set", "benign", "--store", data)
+    code, _, err = cli("verdict", data, "--row", 1, "--set", "benign", "--store", data)
     assert code == 2
     assert_one_line_error(err, "data file")
     assert data.read_bytes() == before
@@ -239,37 +217,52 @@ def test_bad_input_in_a_terminal_shows_no_traceback(data):
 
 # -- two programs at once ------------------------------------------------------------------------------------
 
+# The second program stands in for the TUI: it records verdicts through the API without pause until told to
+# stop. The two sides synchronise on files and lines, never on time: the writer says "ready" once it has
+# written, and "after N" once it has written again after seeing the file mark-N, which the test creates only
+# when the CLI's N-th verdict is committed. So its writes are known to come before, between and after the
+# CLI's, whichever side the scheduler favours.
 API_WRITER = """
-import sys, pathlib
+import os, sys, pathlib
 from investigator.review.store import Case, ReviewStore
-store, stop = ReviewStore(sys.argv[1], reviewer="tui"), pathlib.Path(sys.argv[2])
-n = 0
-while not stop.exists() and n < 20000:
+store, signals = ReviewStore(sys.argv[1], reviewer="tui"), pathlib.Path(sys.argv[2])
+parent, n, told = os.getppid(), 0, set()
+while not (signals / "stop").exists() and os.getppid() == parent:  # also stop if the test process is gone
+    marks = {m.name for m in signals.glob("mark-*")} - told  # seen before this write, so it comes after them
     store.set(Case(case_id=f"group:{n}", kind="group"), "follow-up", f"group note {n}")
     n += 1
+    if n == 1:
+        print("ready", flush=True)
+    for mark in sorted(marks):
+        print("after", mark.removeprefix("mark-"), flush=True)
+    told |= marks
 print(n, flush=True)
 """
 
 
 def test_the_tui_and_the_cli_writing_at_once_lose_nothing(data, tmp_path):
-    store, stop = default_store_path(data), tmp_path / "stop"
-    tui = subprocess.Popen([sys.executable, "-c", API_WRITER, str(store), str(stop)],
+    store, signals = default_store_path(data), tmp_path / "signals"
+    signals.mkdir()
+    tui = subprocess.Popen([sys.executable, "-c", API_WRITER, str(store), str(signals)],
                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     try:
-        deadline = time.monotonic() + 30
-        while not store.exists() and time.monotonic() < deadline:  # the TUI's store is open and in use
-            time.sleep(0.01)
-        for row in (2, 7):
+        assert tui.stdout.readline() == "ready\n", "the TUI writer did not start"  # it has written once
+        for n, row in enumerate((2, 7), 1):
             done = run("verdict", data, "--row", row, "--set", "confirmed", "--reviewer", "cli")
             assert done.returncode == 0, done.stderr
-        assert tui.poll() is None, "the TUI writer ended before the CLI wrote: nothing overlapped"
+            (signals / f"mark-{n}").touch()
+            assert tui.stdout.readline() == f"after {n}\n", "the TUI writer stopped while the CLI wrote"
     finally:
-        stop.touch()
+        (signals / "stop").touch()
         out, err = tui.communicate(timeout=60)
     assert tui.returncode == 0, err
     written = int(out)
     rows = history(store)
     assert sum(r[8] == "tui" for r in rows) == written > 0
     assert sorted(r[5] for r in rows if r[8] == "cli") == [2, 7]
+    # The order of the history: TUI writes before, between and after the two CLI verdicts.
+    order = "".join("c" if r[8] == "cli" else "t" for r in rows)
+    assert order.startswith("t") and order.endswith("t") and order.count("c") == 2
+    assert "cc" not in order, order
     with sqlite3.connect(store) as db:
         assert db.execute("PRAGMA integrity_check").fetchall() == [("ok",)]  # SQLite docs: 'ok' when sound

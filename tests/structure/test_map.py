@@ -8,8 +8,6 @@ from matplotlib.image import imread
 from sklearn.decomposition import PCA
 from sklearn.manifold import trustworthiness
 
-import investigator
-from investigator.io.demo import DEMO_ID, write_demo
 from investigator.output.map_plot import draw_map
 from investigator.structure import embed, find_groups
 from investigator.structure import map as map_module
@@ -25,9 +23,9 @@ def clusters(n: int = 400, p: int = 6, seed: int = 0) -> np.ndarray:
 
 
 @pytest.fixture(scope="module")
-def demo(tmp_path_factory):
-    path = write_demo(tmp_path_factory.mktemp("demo"))
-    result = investigator.scan(path, id=DEMO_ID)
+def demo(demo_scan):
+    """The session's demo scan (tests/conftest.py) and a map of its prepared features."""
+    result = demo_scan[1]
     return result, embed(result.features.values, seed=0)
 
 
