@@ -41,5 +41,5 @@ def test_demo_is_reproducible():
 def test_demo_command(tmp_path, capsys):
     assert main(["demo", "--keep", str(tmp_path)]) == 0
     out = capsys.readouterr().out
-    assert "Flagged:" in out and "BFI-" in out
+    assert "Flagged:" in out and "CLM-" in out
     assert (tmp_path / "brindlemoor_expense_claims.csv").exists()

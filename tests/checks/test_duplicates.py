@@ -9,6 +9,8 @@ import pytest
 from investigator.checks.duplicates import duplicates_on, exact_duplicates
 from investigator.errors import InputError
 
+NORTH, QUILL, ROOK = "North Quay Supplies", "Quillon Hardware", "Rookmere Stationers"  # invented vendors
+
 
 @pytest.fixture
 def claims():
@@ -17,7 +19,7 @@ def claims():
     # also rows 2, 7 (rows are 1-based).
     return pd.DataFrame({
         "claim_id": [101, 102, 103, 104, 105, 106, 107, 108],
-        "vendor": ["Acme", "Bolt", "Acme", "Acme", "Cord", "Cord", "Bolt", "Acme"],
+        "vendor": [NORTH, QUILL, NORTH, NORTH, ROOK, ROOK, QUILL, NORTH],
         "amount": [100.0, 250.0, 100.0, 100.0, np.nan, np.nan, 250.0, 100.0],
         "date": pd.to_datetime(["2024-01-05", "2024-01-06", "2024-01-05", "2024-01-05", "2024-01-07",
                                 "2024-01-07", "2024-01-09", "2024-01-05"]),
@@ -32,7 +34,7 @@ def rows_of(report):
 def test_exact_duplicates_leave_out_the_key(claims):
     report = exact_duplicates(claims, exclude=["claim_id"])
     assert rows_of(report) == [[1, 3, 8], [5, 6]]
-    assert report.groups[0].values == {"vendor": "Acme", "amount": 100.0, "date": "2024-01-05T00:00:00",
+    assert report.groups[0].values == {"vendor": "North Quay Supplies", "amount": 100.0, "date": "2024-01-05T00:00:00",
                                        "note": "taxi"}
     assert report.groups[1].values["amount"] is None and report.groups[1].values["note"] is None
     assert (report.n_groups, report.n_in_groups, report.n_extra) == (2, 5, 3)
@@ -51,7 +53,7 @@ def test_same_values_on_chosen_columns(claims):
     assert rows_of(report) == [[1, 3, 4, 8], [5, 6]]
     assert [g.size for g in report.groups] == [4, 2]
     assert report.groups[0].keys == [101, 103, 104, 108]
-    assert report.groups[0].values == {"vendor": "Acme", "amount": 100.0, "date": "2024-01-05T00:00:00"}
+    assert report.groups[0].values == {"vendor": "North Quay Supplies", "amount": 100.0, "date": "2024-01-05T00:00:00"}
 
 
 def test_missing_values_equal_by_default_or_skipped(claims):
@@ -82,7 +84,7 @@ def test_unknown_columns_are_an_input_error(claims):
 def test_as_dict_is_plain_json(claims):
     d = json.loads(json.dumps(duplicates_on(claims, ["vendor", "date"]).as_dict(), allow_nan=False))
     assert d["groups"][0] == {"rows": [1, 3, 4, 8], "size": 4,
-                              "values": {"vendor": "Acme", "date": "2024-01-05T00:00:00"}}
+                              "values": {"vendor": "North Quay Supplies", "date": "2024-01-05T00:00:00"}}
     assert d["extra_records"] == sum(g["size"] - 1 for g in d["groups"])
 
 

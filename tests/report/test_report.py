@@ -29,7 +29,7 @@ from PIL import Image
 import investigator
 from investigator.io.demo import DEMO_ID
 from investigator.report import write_report
-from investigator.report.plots import FLAGGED, ORDINARY
+from investigator.report.plots import FLAGGED, ORDINARY, contributions_plot
 from investigator.review.matching import fingerprint, record_values
 from investigator.review.store import Case, ReviewStore, key_case_id
 
@@ -308,6 +308,35 @@ def test_the_same_scan_gives_the_same_report(demo, tmp_path):
     assert len(GENERATED.findall(text)) == 1
 
 
+# -- colours ---------------------------------------------------------------------------------------------------
+# Okabe & Ito (2008), "Color Universal Design": the eight colours of the colour-blind-safe palette, in the order
+# the features take them (hex values from memory; black, the palette's first, last).
+OKABE_ITO = ("#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7", "#000000")
+
+
+def _pixels(png: bytes) -> set[tuple[int, int, int]]:
+    image = Image.open(io.BytesIO(png)).convert("RGB")
+    return {rgb for _, rgb in image.getcolors(maxcolors=1 << 20)}
+
+
+def _rgb(hex_colour: str) -> tuple[int, int, int]:
+    return tuple(int(hex_colour[i:i + 2], 16) for i in (1, 3, 5))
+
+
+def test_features_take_the_colour_blind_safe_palette_in_order():
+    features = [f"feature {j}" for j in range(9)]  # one more than the palette: the ninth repeats the first
+    cases = [(f"case {i}", [(name, 1 / len(features)) for name in features]) for i in range(3)]
+    pixels = _pixels(contributions_plot(cases))
+    for hex_colour in OKABE_ITO:
+        assert _rgb(hex_colour) in pixels, hex_colour
+    # matplotlib's default cycle starts with #1f77b4 (blue) and #ff7f0e (orange): neither is drawn.
+    assert _rgb("#1f77b4") not in pixels and _rgb("#ff7f0e") not in pixels
+    # The first three features of a smaller figure take the palette's first three colours, and no other of
+    # its colours (black aside: the text is black).
+    few = _pixels(contributions_plot([("case", [("a", 0.5), ("b", 0.3), ("c", 0.2)])]))
+    assert {_rgb(c) for c in OKABE_ITO[:3]} <= few and not {_rgb(c) for c in OKABE_ITO[3:-1]} & few
+
+
 # -- verdicts -------------------------------------------------------------------------------------------------
 
 
@@ -329,8 +358,8 @@ def test_verdicts_and_their_history_appear(cli, demo, tmp_path):
         then = {**values, "amount": 12.5}
         review.set(Case(key_case_id(DEMO_ID, second), "record", DEMO_ID, second, flagged[1] + 1,
                         fingerprint(then), then), "benign", "amount checked")
-        gone = {**values, DEMO_ID: "BFI-99999"}
-        review.set(Case(key_case_id(DEMO_ID, "BFI-99999"), "record", DEMO_ID, "BFI-99999", 9999,
+        gone = {**values, DEMO_ID: "CLM-99999"}
+        review.set(Case(key_case_id(DEMO_ID, "CLM-99999"), "record", DEMO_ID, "CLM-99999", 9999,
                         fingerprint(gone), gone), "confirmed", "a record since removed")
     before = sqlite3.connect(store).execute("SELECT COUNT(*) FROM history").fetchone()[0]
     text = write_report(result, tmp_path / "report.html", store=store, cases=1).read_text(encoding="utf-8")
@@ -346,7 +375,7 @@ def test_verdicts_and_their_history_appear(cli, demo, tmp_path):
     assert "3 in force on records of this data (2 benign, 1 confirmed); 1 changed since the verdict; 1 whose " \
            "record is not in the data; 5 changes in the history" in plain
     for word in ("follow-up", "confirmed", "benign", "ask the approver", "amount checked", "A. Reviewer",
-                 "BFI-99999", "a record since removed", "looked at: a regular trip"):
+                 "CLM-99999", "a record since removed", "looked at: a regular trip"):
         assert word in verdicts, word
     assert "Records changed since their verdict" in verdicts and "12.5" in verdicts
     assert "Verdicts whose record is not in the data" in verdicts

@@ -115,10 +115,10 @@ async def test_filters_change_the_visible_rows(demo):
         await pilot.press("m", "m")  # flagged and flagged by local_density (the second method)
         assert table.order.tolist() == [p for p in result.ranking()
                                         if result.flagged[p] and result.flags("local_density")[p]]
-        await pilot.press("x", "slash", *"BFI-1002")  # clear, then search on the key
+        await pilot.press("x", "slash", *"CLM-1002")  # clear, then search on the key
         keys = [str(result.keys[p]) for p in table.order]
-        assert keys and all("BFI-1002" in k for k in keys)
-        assert len(keys) == sum("BFI-1002" in str(k) for k in result.keys)
+        assert keys and all("CLM-1002" in k for k in keys)
+        assert len(keys) == sum("CLM-1002" in str(k) for k in result.keys)
         await pilot.press("enter", "x")
         assert len(table.order) == result.n_records
 
