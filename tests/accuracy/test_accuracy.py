@@ -8,6 +8,8 @@ from sklearn.metrics import roc_auc_score
 
 import investigator
 
+pytestmark = pytest.mark.slow  # the whole module: full scans of labelled public sets
+
 DRAW_SEED = 0  # fixed seed of the outlier draw
 
 

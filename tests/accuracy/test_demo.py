@@ -1,12 +1,14 @@
 """The built-in demo: its planted cases come out on top, and `investigator demo` runs."""
 
 import numpy as np
+import pytest
 
 import investigator
 from investigator.cli.main import main
 from investigator.io.demo import DEMO_ID, make_demo, write_demo
 
 
+@pytest.mark.slow
 def test_planted_cases_are_flagged_and_ranked_high(tmp_path):
     frame, planted = make_demo()
     result = investigator.scan(write_demo(tmp_path), id=DEMO_ID)
@@ -22,6 +24,7 @@ def test_planted_cases_are_flagged_and_ranked_high(tmp_path):
     assert set(planted["pattern"]) <= top and set(planted["keying error"]) <= top
 
 
+@pytest.mark.slow
 def test_combination_cases_are_unusual_only_together(tmp_path):
     frame, planted = make_demo()
     result = investigator.scan(write_demo(tmp_path), id=DEMO_ID)
@@ -38,6 +41,7 @@ def test_demo_is_reproducible():
     assert np.isfinite(a["amount"]).all()
 
 
+@pytest.mark.slow
 def test_demo_command(tmp_path, capsys):
     assert main(["demo", "--keep", str(tmp_path)]) == 0
     out = capsys.readouterr().out

@@ -34,6 +34,7 @@ def _finite(result):
 
 @pytest.mark.parametrize("build", [labelled.biopsy, messy.ratings, messy.zero_inflated,
                                    messy.copies_and_one_outlier], ids=lambda f: f.__name__)
+@pytest.mark.slow
 def test_every_score_z_value_and_consensus_is_finite(build):
     # On the biopsy table (683 records coded 1-10, 234 copies) the first version gave 212 infinite
     # combined z-values and 309 consensus values of exactly 1.
@@ -86,6 +87,7 @@ def test_consensus_never_saturates_and_rank_orders_every_record():
 
 
 @pytest.mark.parametrize("build", [messy.ratings, labelled.biopsy], ids=lambda f: f.__name__)
+@pytest.mark.slow
 def test_records_with_different_evidence_never_share_a_consensus(build):
     # 1,500 ratings: the first version put 742 records at consensus 1.0000.
     frame, _ = build()
@@ -101,6 +103,7 @@ def test_records_with_different_evidence_never_share_a_consensus(build):
             assert len(set(result.rank[copies][groups == g])) == 1
 
 
+@pytest.mark.slow
 def test_rank_is_in_every_output(tmp_path):
     frame, _ = messy.ratings()
     result = investigator.scan(frame, id="sheet")
@@ -118,6 +121,7 @@ def test_rank_is_in_every_output(tmp_path):
 
 # -- 3. robust_distance on discrete data -----------------------------------------------------------------
 
+@pytest.mark.slow
 def test_robust_distance_uses_every_numeric_feature_and_reports_its_regularisation():
     # The first version used 2 of the 9 biopsy features (MAD = 0 for the other 7).
     frame, labels = labelled.biopsy()
@@ -147,6 +151,7 @@ def test_the_mrcd_rule_bounds_the_condition_number():
     assert mrcd_rho(np.eye(3)) == 0.0
 
 
+@pytest.mark.slow
 def test_a_relation_that_holds_to_the_cent_is_not_blurred():
     # A zero-inflated discount makes the core singular; regularising every direction (the MRCD's own
     # scatter) would hide an amount that is not quantity x unit price. The first version: distances of
@@ -201,6 +206,7 @@ def test_a_planted_outlier_among_thirty_percent_copies_ranks_first():
 
 # -- 5. One method may flag alone when far beyond; every flag says why --------------------------------------
 
+@pytest.mark.slow
 def test_a_broken_relation_only_one_method_sees_is_flagged_and_says_why(tmp_path):
     frame, labels = messy.purchase_lines()
     result = investigator.scan(frame, id="line")
@@ -242,6 +248,7 @@ def test_clean_data_flags_no_more_than_before_plus_one_point(name, frame, today)
 
 @pytest.mark.parametrize("sizes, shapes", [((1500, 1500), "equal"), ((1500, 1500), "unequal"),
                                            ((2000, 700, 300), "unequal")])
+@pytest.mark.slow
 def test_kinds_of_normal_keep_their_shell_and_catch_what_lies_between(sizes, shapes):
     # The first version: kinds of 989 and 985 of 1,500 records each (the cores), and 5.1% of ordinary
     # records flagged.
@@ -259,6 +266,7 @@ def test_kinds_of_normal_keep_their_shell_and_catch_what_lies_between(sizes, sha
 
 @pytest.mark.parametrize("frame", [messy.clean_gaussian(60_000, 5), messy.clean_uniform(60_000, 3)],
                          ids=["one normal, 60,000 records", "uniform cube, 60,000 records"])
+@pytest.mark.slow
 def test_one_population_is_one_kind(frame):
     # The first version reported 2 large clusters on 60,000 uniform records in 3 columns and flagged 4.6%.
     result = investigator.scan(frame)
@@ -277,6 +285,7 @@ ENSEMBLE_SETS = {
 
 
 @pytest.mark.parametrize("name", ENSEMBLE_SETS)
+@pytest.mark.slow
 def test_consensus_auc_is_within_0_03_of_the_best_method(name):
     # ROC AUC by scikit-learn. On biopsy the first version's consensus was 0.839 against 0.983 for its
     # best method.
@@ -290,6 +299,7 @@ def test_consensus_auc_is_within_0_03_of_the_best_method(name):
 
 # -- 8. Flags do not depend on row order -----------------------------------------------------------------
 
+@pytest.mark.slow
 def test_shuffled_rows_give_the_same_flags_and_scores():
     # 25,000 records take the sampled neighbour search; the first version changed 157 flags of 25,000
     # when the same rows were shuffled (samples and isolation trees drawn by position).

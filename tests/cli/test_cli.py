@@ -76,6 +76,7 @@ def test_usage_errors_exit_2_with_one_line(args, word):
 # -- bad input through a real process ------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_missing_file_subprocess(tmp_path):
     done = run("scan", tmp_path / "absent.csv")
     assert done.returncode == 2
@@ -83,6 +84,7 @@ def test_missing_file_subprocess(tmp_path):
     assert done.stdout == ""
 
 
+@pytest.mark.slow
 def test_corrupt_xlsx_subprocess(tmp_path):
     (tmp_path / "noise.xlsx").write_bytes(np.random.default_rng(5).bytes(800))
     done = run("scan", tmp_path / "noise.xlsx")
@@ -90,6 +92,7 @@ def test_corrupt_xlsx_subprocess(tmp_path):
     assert_one_line_error(done.stderr, "noise.xlsx", ".xlsx")
 
 
+@pytest.mark.slow
 def test_unknown_id_subprocess(tmp_path):
     make_frame("deliveries").to_csv(tmp_path / "deliveries.csv", index=False)
     done = run("scan", tmp_path / "deliveries.csv", "--id", "order")
@@ -102,6 +105,7 @@ def test_unknown_id_subprocess(tmp_path):
     [("--cutoff", "2", "--cutoff"), ("--contamination", "0.9", "--contamination"),
      ("--methods", "nope", "'nope'"), ("--seed", "-1", "--seed")],
 )
+@pytest.mark.slow
 def test_bad_option_values_subprocess(tmp_path, option, value, word):
     make_frame("deliveries").to_csv(tmp_path / "deliveries.csv", index=False)
     done = run("scan", tmp_path / "deliveries.csv", option, value)
@@ -252,6 +256,7 @@ def test_internal_error_traceback_on_request(deliveries, monkeypatch):
         main(["scan", str(path), "--quiet"])
 
 
+@pytest.mark.slow
 def test_successful_scan_subprocess_exits_0(deliveries, tmp_path):
     path, _ = deliveries
     out = tmp_path / "result.json"

@@ -50,6 +50,7 @@ def hbk_result():
     return investigator.scan(data("robustbase", "hbk")[["X1", "X2", "X3"]], methods="robust_distance")
 
 
+@pytest.mark.slow
 def test_hbk_outliers_are_explained_and_the_change_makes_them_ordinary(hbk_result):
     result = hbk_result
     method = result.methods["robust_distance"].method
@@ -84,6 +85,7 @@ def planted():
     return investigator.scan(frame, log="none")
 
 
+@pytest.mark.slow
 def test_a_single_feature_deviation_is_ranked_first_by_every_method(planted):
     e = planted.explain(row=11)
     assert e["flagged"]
@@ -161,6 +163,7 @@ def test_peers_are_the_nearest_unflagged_records(planted):
         assert e["peers"]["differences"]
 
 
+@pytest.mark.slow
 def test_resampling_is_reproducible_and_separates_stable_from_unstable():
     rng = np.random.default_rng(8)
     frame = pd.DataFrame(rng.normal(size=(300, 3)), columns=list("abc"))
@@ -188,6 +191,7 @@ def test_outputs_carry_the_explanations(planted, tmp_path):
     assert pd.isna(frame.loc[100, "top_features"])
 
 
+@pytest.mark.slow
 def test_explain_command(tmp_path, capsys):
     rng = np.random.default_rng(9)
     frame = pd.DataFrame({"id": [f"K{i}" for i in range(200)], "a": rng.normal(size=200),

@@ -481,6 +481,7 @@ def _scores(data, **options):
     return result, {k: result.scores(k) for k in result.methods}
 
 
+@pytest.mark.slow
 def test_semicolon_delimiter_same_as_comma(tmp_path):
     frame = make_frame("parts")
     _, expected = _scores(write_csv(tmp_path / "comma.csv", frame))
@@ -547,6 +548,7 @@ def _frame_with_a_gap() -> pd.DataFrame:
     return frame
 
 
+@pytest.mark.slow
 def test_parquet_round_trip_same_scores(tmp_path):
     frame = _frame_with_a_gap()
     _, expected = _scores(write_csv(tmp_path / "parts.csv", frame))
@@ -559,6 +561,7 @@ def test_parquet_round_trip_same_scores(tmp_path):
         assert_allclose(got[key], expected[key], rtol=1e-10, err_msg=key)
 
 
+@pytest.mark.slow
 def test_xlsx_round_trip_same_scores(tmp_path):
     frame = _frame_with_a_gap()
     _, expected = _scores(write_csv(tmp_path / "parts.csv", frame))
@@ -570,6 +573,7 @@ def test_xlsx_round_trip_same_scores(tmp_path):
         assert_allclose(got[key], expected[key], rtol=1e-10, err_msg=key)
 
 
+@pytest.mark.slow
 def test_xlsx_written_by_pandas_same_scores(tmp_path):
     frame = _frame_with_a_gap()
     _, expected = _scores(write_csv(tmp_path / "parts.csv", frame))
@@ -578,6 +582,7 @@ def test_xlsx_written_by_pandas_same_scores(tmp_path):
     assert_allclose(got["robust_distance"], expected["robust_distance"], rtol=1e-10)
 
 
+@pytest.mark.slow
 def test_second_sheet_is_read_when_named(tmp_path):
     first, second = make_frame("parts", 30, seed=1), make_frame("parts", 45, seed=2)
     path = tmp_path / "book.xlsx"
@@ -602,6 +607,7 @@ def test_trailing_empty_columns_of_a_spreadsheet_export(tmp_path):
     assert set(result.features.names) == {"width", "height", "weight", "batch"}
 
 
+@pytest.mark.slow
 def test_blank_header_cell_named_alike_in_csv_and_xlsx(tmp_path):
     frame = make_frame("parts")
     header = ["part_id", "width", "", "weight", "batch"]

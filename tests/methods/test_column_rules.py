@@ -14,6 +14,7 @@ def hits_of(result, rule):
             if h["rule"] == rule and h["column"] == "x"}
 
 
+@pytest.mark.slow
 def test_three_sigma_rule_on_a_large_normal_sample():
     # 68-95-99.7 rule (common practice; standard normal table): P(|Z| > 3) = 0.0027, about 3 in 1000.
     n = 200_000

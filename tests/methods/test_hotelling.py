@@ -83,6 +83,7 @@ def binomial_band(rate, trials, sigmas=4.0):
     return rate - half, rate + half
 
 
+@pytest.mark.slow
 def test_phase_ii_false_alarm_rate_is_alpha():
     # Each repetition: a fresh reference of m = 25 records and one new record from the same distribution,
     # so the repetitions are independent and the alarms binomial(reps, alpha). 4-sigma band.
@@ -101,6 +102,7 @@ def test_phase_ii_false_alarm_rate_is_alpha():
     assert chi2_alarms / reps > hi
 
 
+@pytest.mark.slow
 def test_phase_i_false_alarm_rate_is_alpha():
     # Phase I: a reference record against its own reference. One record per reference keeps the repetitions
     # independent; binomial 4-sigma band.

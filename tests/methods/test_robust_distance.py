@@ -27,6 +27,7 @@ def test_hbk_flags_exactly_the_fourteen_outliers(hbk, seed):
     assert flagged.tolist() == list(range(1, 15))
 
 
+@pytest.mark.slow
 def test_hbk_fit_does_not_depend_on_the_seed(hbk):
     X = hbk.to_numpy(dtype=float)
     dets = {round(FastMCD(seed=s).fit(X).raw_logdet, 10) for s in range(6)}
@@ -126,7 +127,7 @@ def test_nearly_as_many_features_as_rows():
     assert np.all(np.isfinite(result.scores("robust_distance")))
 
 
-@pytest.mark.parametrize("n", [30, 500])
+@pytest.mark.parametrize("n", [30, pytest.param(500, marks=pytest.mark.slow)])
 def test_an_exact_linear_pair_is_handled(n):
     # b = 2a + 1 for every record: all records lie on a line, the MCD covariance is singular everywhere.
     a = np.random.default_rng(12).normal(size=n)

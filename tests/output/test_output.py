@@ -54,6 +54,7 @@ def test_json_contract(claims, tmp_path):
     assert records[9]["imputed"] == ["hours"]
 
 
+@pytest.mark.slow
 def test_csv_and_parquet_columns(claims, tmp_path):
     result = investigator.scan(claims, id="ref")
     csv = pd.read_csv(result.write(tmp_path / "scan.csv"))
@@ -67,6 +68,7 @@ def test_csv_and_parquet_columns(claims, tmp_path):
     np.testing.assert_allclose(parquet["score_robust_distance"], result.scores("robust_distance"))
 
 
+@pytest.mark.slow
 def test_csv_neutralises_formula_cells(claims, tmp_path):
     # OWASP "CSV Injection": cells starting with = + - @ tab or CR must not be run as formulas.
     result = investigator.scan(claims, id="ref")
@@ -81,6 +83,7 @@ def _without_start(text):
     return json.dumps(doc)
 
 
+@pytest.mark.slow
 def test_same_seed_gives_byte_identical_results(claims, tmp_path):
     a, b, c = tmp_path / "a.json", tmp_path / "b.json", tmp_path / "c.json"
     for out in (a, b):
@@ -98,6 +101,7 @@ def test_same_seed_gives_byte_identical_results(claims, tmp_path):
         assert x.read_bytes() == y.read_bytes()
 
 
+@pytest.mark.slow
 def test_summary_mentions_flags_and_caution(claims, capsys):
     assert main(["scan", str(claims), "--id", "ref"]) == 0
     out = capsys.readouterr().out
@@ -105,12 +109,14 @@ def test_summary_mentions_flags_and_caution(claims, capsys):
     assert "not proof of error or fraud" in out
 
 
+@pytest.mark.slow
 def test_quiet_prints_nothing(claims, capsys):
     assert main(["scan", str(claims), "--quiet"]) == 0
     captured = capsys.readouterr()
     assert captured.out == "" and captured.err == ""
 
 
+@pytest.mark.slow
 def test_scan_outputs_carry_verdicts_when_a_store_exists(claims, tmp_path):
     data = tmp_path / "claims.csv"
     data.write_bytes(claims.read_bytes())

@@ -64,6 +64,7 @@ def test_flags_survive_a_failing_density_method():
     assert set(result.ranking()[:20]) == set(planted)
 
 
+@pytest.mark.slow
 def test_a_cluster_of_a_tenth_of_the_records_is_a_kind_of_normal():
     # 40 of 400 records sitting together are 10% of the data: by the documented rule (docs/groups.md:
     # at least 5% and 25 records) that is a second kind of normal, not 40 outliers.

@@ -24,6 +24,7 @@ from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.scan_model import ScanModel
 
 distributed = pytest.importorskip("distributed")
+pytestmark = pytest.mark.slow  # the whole module: every test starts or uses a local Dask cluster
 
 
 @pytest.fixture(scope="module")

@@ -21,6 +21,8 @@ from investigator.io.tables import load_table
 from investigator.methods.mcd import FastMCD
 from investigator.methods.neighbors import NeighborSearch
 
+pytestmark = pytest.mark.slow  # the whole module: tens of thousands of records per test, up to 100,000
+
 
 def _approximations(result) -> dict:
     return {a["part"].split(" (")[0]: a for a in result.run["approximations"]}

@@ -32,6 +32,7 @@ def three_sigma_upper(result, column):
     return three_sigma(result, column)[1]
 
 
+@pytest.mark.slow
 def test_phase_i_cleaning_keeps_the_limits_of_a_clean_reference():
     clean = batches(400, 1)
     dirty = pd.concat([batches(40, 2, bad_share=1.0), batches(360, 3)], ignore_index=True)  # 10% bad
@@ -56,6 +57,7 @@ def test_phase_i_cleaning_keeps_the_limits_of_a_clean_reference():
     assert det["kept"] > 2 * det["cleaned"] and det["cleaned"] < 2 * det["clean"]
 
 
+@pytest.mark.slow
 def test_new_records_are_scored_against_the_reference_only():
     ref, new = batches(300, 5), batches(25, 6)
     new.loc[3, "pressure"] += 15
@@ -71,6 +73,7 @@ def test_new_records_are_scored_against_the_reference_only():
     assert all(p["key"].startswith("B5-") for p in e["peers"]["records"])
 
 
+@pytest.mark.slow
 def test_hotelling_is_reported_with_its_phase_ii_limit_and_split():
     ref, new = batches(200, 7), batches(20, 8)
     new.loc[0, "viscosity"] += 3
@@ -85,6 +88,7 @@ def test_hotelling_is_reported_with_its_phase_ii_limit_and_split():
     assert split[0]["feature"] == "viscosity"
 
 
+@pytest.mark.slow
 def test_mismatches_between_reference_and_new_records():
     ref = batches(100, 9)
     new = batches(10, 10)
@@ -105,6 +109,7 @@ def test_mismatches_between_reference_and_new_records():
     assert any("'L9'" in n for n in result.run["notices"])
 
 
+@pytest.mark.slow
 def test_check_command_and_limits(tmp_path, capsys):
     ref, new = tmp_path / "history.csv", tmp_path / "today.csv"
     batches(150, 11).to_csv(ref, index=False)
@@ -130,6 +135,7 @@ def test_check_command_and_limits(tmp_path, capsys):
     assert main(["check", str(new), "--reference", str(tmp_path / "nope.csv")]) == 2
 
 
+@pytest.mark.slow
 def test_benford_and_duplicate_screens_in_a_scan(tmp_path):
     rng = np.random.default_rng(13)
     n = 600

@@ -55,6 +55,7 @@ def test_roles_and_decisions_are_reported():
     assert "'constant' has a single value" in notices
 
 
+@pytest.mark.slow
 def test_features_and_exclude_override_the_inference():
     frame = _frame()
     result = investigator.scan(frame, features="id,temperature")
@@ -63,6 +64,7 @@ def test_features_and_exclude_override_the_inference():
     assert result.features.names == ["temperature"]
 
 
+@pytest.mark.slow
 def test_log_option():
     frame = _frame()
     assert investigator.scan(frame, log="none").features.specs[0].transform == "none"
@@ -75,6 +77,7 @@ def test_log_option():
         investigator.scan(negative, log="temperature")
 
 
+@pytest.mark.slow
 def test_log_auto_leaves_symmetric_and_contaminated_columns_alone():
     rng = np.random.default_rng(2)
     x = rng.uniform(0, 3, size=200)
@@ -94,6 +97,7 @@ def test_quartile_skewness_of_a_lognormal():
     assert quartile_skewness(x) == pytest.approx(expected, abs=0.01)
 
 
+@pytest.mark.slow
 def test_robust_scaling_uses_median_and_mad():
     rng = np.random.default_rng(4)
     x = rng.normal(50, 4, size=500)

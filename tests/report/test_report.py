@@ -103,6 +103,7 @@ def hostile(tmp_path_factory) -> Path:
 # -- the HTML -------------------------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_every_section_is_present_in_reading_order(demo):
     path, result, text = demo
     page = Page(text)
@@ -127,6 +128,7 @@ def test_every_section_is_present_in_reading_order(demo):
     assert "no data left the machine" in plain
 
 
+@pytest.mark.slow
 def test_cases_are_ranked_by_consensus_and_the_rest_counted(demo, tmp_path):
     _, result, text = demo
     flagged = [i for i in result.ranking() if result.flagged[i]]
@@ -146,6 +148,7 @@ def test_cases_are_ranked_by_consensus_and_the_rest_counted(demo, tmp_path):
     assert f"<td>{top['feature']}</td>" in first and top["direction"] in first
 
 
+@pytest.mark.slow
 def test_no_external_url_or_script(demo):
     _, _, text = demo
     page = Page(text)
@@ -166,6 +169,7 @@ def test_no_external_url_or_script(demo):
     assert len(page.images()) >= 3
 
 
+@pytest.mark.slow
 def test_hostile_values_are_escaped(cli, hostile, tmp_path):
     note = f"{HOSTILE} and <img src=x onerror=alert(2)>"
     code, _, err = cli("verdict", hostile, "--id", "ref", "--key", HOSTILE, "--set", "follow-up",
@@ -254,6 +258,7 @@ def _screenshot(browser: str, page: Path, png: Path, profile: Path) -> list[str]
             if ("CONSOLE" in line and page.as_uri() in line) or "Uncaught" in line]
 
 
+@pytest.mark.slow
 def test_the_report_renders_in_chromium(demo, tmp_path):
     browser = _chromium()
     if browser is None:
@@ -289,6 +294,7 @@ def test_the_report_renders_in_chromium(demo, tmp_path):
 # -- determinism ----------------------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_the_same_scan_gives_the_same_report(demo, tmp_path):
     # Two more runs, each in its own process with its own string hashing (so nothing may depend on set or
     # hash order), against the module's report made in this process through the API.
@@ -340,6 +346,7 @@ def test_features_take_the_colour_blind_safe_palette_in_order():
 # -- verdicts -------------------------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_verdicts_and_their_history_appear(cli, demo, tmp_path):
     path, result, _ = demo
     store = tmp_path / "review.sqlite"
@@ -393,6 +400,7 @@ def test_verdicts_and_their_history_appear(cli, demo, tmp_path):
     assert len(rows) == len(flagged) + 1
 
 
+@pytest.mark.slow
 def test_no_store_is_created_by_a_report(demo):
     path, _, text = demo
     assert not Path(str(path) + ".investigation.sqlite").exists()
@@ -402,6 +410,7 @@ def test_no_store_is_created_by_a_report(demo):
 # -- groups and the map, when the result has them -------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_groups_and_map_sections_appear_when_present(demo, tmp_path):
     path, _, _ = demo
     result = investigator.scan(path, id=DEMO_ID, map="pca")

@@ -240,6 +240,7 @@ print(n, flush=True)
 """
 
 
+@pytest.mark.slow
 def test_the_tui_and_the_cli_writing_at_once_lose_nothing(data, tmp_path):
     store, signals = default_store_path(data), tmp_path / "signals"
     signals.mkdir()

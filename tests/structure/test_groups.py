@@ -55,6 +55,7 @@ def data(request):
     return X, flagged, grouped(X, flagged, seed=0)
 
 
+@pytest.mark.slow
 def test_eight_near_duplicates_are_one_group_of_eight(data):
     # Reference: the planted truth; the eight were generated as one near-duplicate batch.
     X, flagged, g = data
@@ -94,6 +95,7 @@ def test_two_clusters_are_two_kinds_of_normal(data):
     assert g.group[A[0]] == 1 and g.group[B[0]] == 2
 
 
+@pytest.mark.slow
 def test_a_flagged_second_cluster_is_still_a_kind_of_normal():
     # Reference: the planted truth. A single centre would flag all of cluster B (it is far from the bulk
     # of A); B is still a large cluster, not a group, and the eight are still exactly one group.
@@ -108,6 +110,7 @@ def test_a_flagged_second_cluster_is_still_a_kind_of_normal():
     assert [g.members(s).tolist() for s in g.small_ids] == [EIGHT.tolist()]
 
 
+@pytest.mark.slow
 def test_same_seed_same_groups_on_the_sampled_path(monkeypatch):
     # Large data are clustered on samples; shrink the thresholds so this 913-record table takes that path.
     # Reference: the planted truth (the flagged eight are never sampled away) and the run itself (same
@@ -130,6 +133,7 @@ def test_same_seed_same_groups_on_the_sampled_path(monkeypatch):
     assert [other.members(s).tolist() for s in other.small_ids] == [EIGHT.tolist()]
 
 
+@pytest.mark.slow
 def test_a_lone_point_beside_the_group_is_not_a_member():
     # Reference: the planted truth. A keying error 4 units from the batch of eight (which is 0.05 wide)
     # is nearer to the batch than to anything else, so HDBSCAN hangs it on the batch's branch; it is not
@@ -143,6 +147,7 @@ def test_a_lone_point_beside_the_group_is_not_a_member():
     assert g.pattern[-1] == "isolated" and g.is_large(int(g.group[-1]))
 
 
+@pytest.mark.slow
 def test_unflagged_dense_spot_is_not_a_group(data):
     # The rule: a group needs at least half of its members flagged. Reference: the planted truth; with
     # only one of the eight flagged they are a dense spot of mostly ordinary records.

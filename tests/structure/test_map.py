@@ -29,6 +29,7 @@ def demo(demo_scan):
     return result, embed(result.features.values, seed=0)
 
 
+@pytest.mark.slow
 def test_map_keeps_neighbours_on_the_demo(demo):
     # Reference: trustworthiness (Venna & Kaski 2001, "Neighborhood preservation in nonlinear projection
     # methods"), scikit-learn's implementation, of the map against the prepared features the scan used.
@@ -37,6 +38,7 @@ def test_map_keeps_neighbours_on_the_demo(demo):
     assert trustworthiness(result.features.values, m.coords, n_neighbors=5) >= 0.9
 
 
+@pytest.mark.slow
 def test_same_seed_same_map():
     # Reference: the run itself; UMAP with a fixed random_state is deterministic (umap-learn docs).
     X = clusters()
@@ -45,6 +47,7 @@ def test_same_seed_same_map():
     np.testing.assert_allclose(first.coords, again.coords, atol=1e-6)
 
 
+@pytest.mark.slow
 def test_sampled_path_is_reproducible_and_keeps_neighbours(monkeypatch):
     # Shrink the switch point so 600 records take the large-data path: 250 fitted, 350 placed.
     # References: trustworthiness (Venna & Kaski 2001; scikit-learn) and the run itself.
@@ -61,6 +64,7 @@ def test_sampled_path_is_reproducible_and_keeps_neighbours(monkeypatch):
     assert set(range(8)) <= set(rows.tolist())  # kept records are fitted, not placed
 
 
+@pytest.mark.slow
 def test_placement_equals_the_start_of_umap_transform():
     # Reference: umap-learn's own transform steps (umap.umap_: smooth_knn_dist with local_connectivity
     # lowered to 0, compute_membership_strengths, init_graph_transform), on the same neighbours.
@@ -109,6 +113,7 @@ def test_auto_uses_pca_for_tiny_data_and_few_features():
         embed(clusters(50), method="tsne")
 
 
+@pytest.mark.slow
 def test_png_is_written_and_not_blank(tmp_path):
     # Reference: matplotlib reads the file back as an image; a drawn map has many distinct colours
     # (grey records, the colour bar, flagged records by consensus), a blank canvas has one.

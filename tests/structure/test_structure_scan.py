@@ -73,6 +73,7 @@ def test_a_group_is_one_case_with_a_profile(two_kinds, tmp_path):
     assert frame.loc[905, "pattern"] == "group"
 
 
+@pytest.mark.slow
 def test_map_is_off_by_default_and_the_map_command_draws_it(tmp_path, capsys):
     rng = np.random.default_rng(41)
     frame = pd.DataFrame(rng.normal(size=(150, 3)), columns=list("abc"))

@@ -8,6 +8,7 @@ import pandas as pd
 import pytest
 
 pytest.importorskip("textual")
+pytestmark = pytest.mark.slow  # the whole module: each test drives the app through a scan of the demo
 
 from fixtures.tui import run_async, screen_text, settle, wait_until  # noqa: E402
 from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402

@@ -1,6 +1,6 @@
 """Snapshots of the Cases and Record screens at 80x24 and 120x40 (pytest-textual-snapshot).
 
-Update after an intended change of the layout with ``pytest tests/test_tui_snapshots.py --snapshot-update``
+Update after an intended change of the layout with ``pytest tests/tui/test_tui_snapshots.py --snapshot-update``
 and look at the SVGs before committing them.
 """
 
@@ -9,6 +9,7 @@ from __future__ import annotations
 import pytest
 
 pytest.importorskip("pytest_textual_snapshot")
+pytestmark = pytest.mark.slow  # the whole module: each snapshot scans the demo and renders the screen
 
 from fixtures.tui import settle, wait_until  # noqa: E402
 from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402
