@@ -1,4 +1,10 @@
-"""Shared test set-up: nothing a test does may touch the user's own settings."""
+"""Shared test set-up: nothing a test does may touch the user's own settings; what several folders share.
+
+The builders themselves live in the top-level ``fixtures`` package (importable because pyproject sets
+``pythonpath = ["."]``); the fixtures here hand tests the ones that are costly or need pytest's machinery.
+"""
+
+from __future__ import annotations
 
 import pytest
 
@@ -6,3 +12,30 @@ import pytest
 @pytest.fixture(autouse=True)
 def _own_settings_dir(tmp_path, monkeypatch):
     monkeypatch.setenv("INVESTIGATOR_CONFIG_DIR", str(tmp_path / "settings"))
+
+
+@pytest.fixture
+def cli(capsys):
+    """Run the command line in this process (fast): ``cli(*args)`` gives (exit code, stdout, stderr)."""
+    from investigator.cli.main import main
+
+    def run(*args) -> tuple[int, str, str]:
+        try:
+            code = main([str(a) for a in args])
+        except SystemExit as exc:  # argparse usage errors
+            code = exc.code
+        captured = capsys.readouterr()
+        return code, captured.out, captured.err
+
+    return run
+
+
+@pytest.fixture(scope="session")
+def demo_scan(tmp_path_factory):
+    """The built-in demo file and its scan with the key column, made once for the session. Read it only:
+    tests that record verdicts beside the data or change the file write their own copy of the demo."""
+    import investigator
+    from investigator.io.demo import DEMO_ID, write_demo
+
+    path = write_demo(tmp_path_factory.mktemp("demo"))
+    return path, investigator.scan(path, id=DEMO_ID)

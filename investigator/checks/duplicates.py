@@ -8,7 +8,7 @@ Two screens, reported the same way, as groups of records:
   screen for a claim or invoice paid twice.
 
 Values are compared as loaded: exactly, without trimming, case folding or rounding (normalise the columns
-first if "ACME " and "Acme" should match). Missing values: by default a missing value equals a missing value
+first if "NORTH QUAY " and "North Quay" should match). Missing values: by default a missing value equals a missing value
 (``missing="equal"``), so two records that are copies of each other, blanks included, form a group;
 ``missing="skip"`` leaves out every record with a missing value in a compared column, for screens where a
 blank vendor or date should not count as a match. NaN, None, NaT and pandas' NA are all "missing".

@@ -59,7 +59,7 @@ def make_demo(seed: int = 2024) -> tuple[pd.DataFrame, dict[str, list[str]]]:
         nights = int(min(4, rng.poisson((km - 180) / 220))) if km > 180 else 0
         emp = employees[rng.choice(36, p=weights)]
         rows.append({
-            "claim_id": f"BFI-{10001 + i}",
+            "claim_id": f"CLM-{10001 + i}",  # CLM: claim
             "claim_date": dates[i].date().isoformat(),
             "employee": emp,
             "department": dept_of[emp],

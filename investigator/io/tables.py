@@ -183,6 +183,13 @@ def _sniff_delimiter(text: str, suffix: str) -> str:
 
 def _read_text(path: Path, raw: bytes, digest: str, id_column: str | None):
     text, encoding, notices = _decode(raw)
+    if "\x00" in text:
+        # No text table holds NUL; UTF-8 (and the latin-1 fallback) decode one without complaint, so without
+        # this check a binary file or UTF-16 text without a byte-order mark fails later with a misleading reason.
+        raise InputError(
+            f"{path}: is not a text table: it holds NUL bytes (a binary file, or text saved as UTF-16 without "
+            "a byte-order mark); export it as CSV in UTF-8"
+        )
     delimiter = _sniff_delimiter(text, path.suffix.lower())
     header = next(csv.reader(io.StringIO(text), delimiter=delimiter), [])
     _check_header(_name_blanks(header), str(path))

@@ -35,7 +35,8 @@ from investigator.pipeline.run_record import DatasetRunRecord, InputRecord, Samp
 from investigator.progress import Progress, silent
 
 FIT_SAMPLE = 200_000
-RUN_FILE = "_run.json"
+RUN_FILE = "_run.json"  # the leading underscore makes Parquet readers skip it
+SCORES_FILE = "scores-{:05d}.parquet"  # one per partition, in partition order; our name, not the writer's default
 UNSUPPORTED = {"resamples": "--resamples", "digits": "--digits", "duplicates": "--duplicates", "map": "--map"}
 
 
@@ -236,8 +237,7 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
         from dask.distributed import as_completed
 
         columns = ["row", "key", "consensus", "consensus_z", "votes", "top_features"]
-        writes = [delayed(_write_part)(part, str(tmp / f"part.{i:05d}.parquet"), list(model.fitted_methods),
-                                       columns, top)
+        writes = [delayed(_write_part)(part, str(tmp / SCORES_FILE.format(i)), list(model.fitted_methods), columns, top)
                   for i, part in enumerate(scored)]
         summaries = []
         for done, future in enumerate(as_completed(client.compute(writes)), 1):

@@ -15,8 +15,12 @@ ORDINARY = "#8da0b3"   # records not flagged
 FLAGGED = "#c0392b"    # flagged records (the browser test looks for this colour on the page)
 CUTOFF = "#222222"
 DPI = 100
-FEATURE_COLOURS = ("#1f77b4", "#ff7f0e", "#2ca02c", "#9467bd", "#8c564b", "#e377c2", "#7f7f7f", "#bcbd22",
-                   "#17becf", "#d62728")
+# One colour per feature in the contributions figure: the colour-blind-safe palette of Okabe & Ito (2008),
+# "Color Universal Design", instead of matplotlib's default cycle, whose red/green pairs many readers cannot
+# tell apart. Hex values from memory: orange, sky blue, bluish green, yellow, blue, vermillion, reddish
+# purple, then black (the palette's first colour, put last here because it reads as text on a bar chart).
+# ORDINARY and FLAGGED above keep their meaning (not flagged / flagged) and are not part of this cycle.
+FEATURE_COLOURS = ("#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7", "#000000")
 
 
 def plain(text: object, width: int = 40) -> str:
