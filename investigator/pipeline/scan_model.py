@@ -24,10 +24,15 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from investigator.checks.limits import load_limits, spec_hits
+from investigator.explain.view import Pool, ordinary_pool, peer_candidates, typical_ranges
 from investigator.io.tables import Source, Table
 from investigator.pipeline.combine import TOP_SHARE, rule_sentence
+from investigator.pipeline.engine import run_scan
 from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.result import MethodResult, ScanResult
+from investigator.pipeline.scoring import apply_kinds, combine_results
+from investigator.progress import silent
 
 MODEL_PEERS = 10_000  # ordinary sample records a partition's explanations find peers among
 
@@ -55,10 +60,6 @@ class ScanModel:
     @classmethod
     def fit(cls, sample: Table, options: ScanOptions, progress=None) -> ScanModel:
         """Fit on ``sample``; its ``rows`` must be the records' 1-based rows in the whole dataset."""
-        from investigator.explain.view import Pool, ordinary_pool, peer_candidates, typical_ranges
-        from investigator.pipeline.engine import run_scan
-        from investigator.progress import silent
-
         fit = run_scan(sample, options, progress or silent)
         search = fit.neighbors
         pool = ordinary_pool(fit)
@@ -73,8 +74,6 @@ class ScanModel:
             threshold = float(fit.combination.z[fit.flagged].min())
         limits = None
         if options.limits:
-            from investigator.checks.limits import load_limits
-
             limits = load_limits(options.limits, sample)
         calibrations = {k: r.kinds for k, r in fit.methods.items() if r.kinds is not None}
         return cls(options, fit.columns, fit.preparer, search, {k: r.method for k, r in fit.methods.items()},
@@ -83,8 +82,6 @@ class ScanModel:
 
     def score(self, frame: pd.DataFrame, first_row: int) -> ScanResult:
         """Score the records of ``frame``, which are rows first_row + 1, first_row + 2, ... of the dataset."""
-        from investigator.pipeline.engine import apply_kinds, combine_results
-
         frame = frame.reset_index(drop=True)
         rows0 = first_row + np.arange(len(frame))
         table = Table(frame, self.source, self.key_column, [], rows0 + 1)
@@ -110,8 +107,6 @@ class ScanModel:
                                              self.options.contamination)
         out_of_spec = None
         if self.limits is not None:
-            from investigator.checks.limits import spec_hits
-
             out_of_spec = spec_hits(table, self.limits)
         result = ScanResult(table, self.options, self.columns, features, self.preparer, self.search, graph,
                             results, combination, self.rules, self.rules.hits(features), {},

@@ -7,8 +7,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from investigator.explain.view import top_features_text
-from investigator.output.explanation import _fmt
+from investigator.explain.view import explain_positions, top_features_text
+from investigator.output.explanation import format_value
 
 SIGNS = {"higher": "+", "lower": "-", "typical": "~", "rarer": "rare", "common": "common"}
 
@@ -35,8 +35,6 @@ def flagged_positions(result) -> list[int]:
 def build_cases(result, review, limit: int | None = None) -> list[Case]:
     """The first ``limit`` flagged records by consensus, then every other record with a verdict (flagged ones
     beyond the limit first, all by consensus): a verdict is part of the record of the investigation."""
-    from investigator.explain.view import explain_positions
-
     flagged = flagged_positions(result)
     rank = {i: n for n, i in enumerate(flagged, 1)}
     judged = set(review.matching.matches) if review.matching is not None else set()
@@ -54,15 +52,15 @@ def build_cases(result, review, limit: int | None = None) -> list[Case]:
 
 def column_hits_text(hits: list[dict]) -> str:
     """E.g. "amount: boxplot_fence (2,403 above 180.5)"."""
-    return "; ".join(f"{h['column']}: {h['rule']} ({_fmt(h['value'])} "
-                     f"{'above' if h['side'] == 'upper' else 'below'} {_fmt(h['limit'])})" for h in hits)
+    return "; ".join(f"{h['column']}: {h['rule']} ({format_value(h['value'])} "
+                     f"{'above' if h['side'] == 'upper' else 'below'} {format_value(h['limit'])})" for h in hits)
 
 
 def nearest_text(nearest: dict | None) -> str:
     """E.g. "amount 240.3 instead of 2,403 (robust distance 60.5 -> 11.1, cutoff 11.14)"."""
     if not nearest:
         return ""
-    change = " and ".join(f"{c['feature']} {_fmt(c['to'])} instead of {_fmt(c['from'])}"
+    change = " and ".join(f"{c['feature']} {format_value(c['to'])} instead of {format_value(c['from'])}"
                           for c in nearest["changes"])
     return (f"{change} (robust distance {nearest['distance_before']:.1f} -> {nearest['distance_after']:.1f}, "
             f"cutoff {nearest['cutoff']:.2f})")

@@ -8,12 +8,14 @@ from __future__ import annotations
 import threading
 from collections import OrderedDict
 
+from investigator.output.explanation import explanation_text
+
 
 def record_view(result, position: int) -> dict:
     """``result.explain`` for the record at 0-based ``position``, with ``values``: every feature's raw value,
     typical range and robust z (what the methods saw)."""
+    # Deferred: the explainer imports pandas (0.6 s), and the app imports this module before its first frame.
     from investigator.explain.view import raw_value, typical_ranges
-    from investigator.output.explanation import explanation_text
 
     e = result.explain(row=position + 1)
     typical = typical_ranges(result)

@@ -9,7 +9,7 @@ from textual.containers import VerticalScroll
 from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
-from investigator.output.explanation import _fmt
+from investigator.output.explanation import format_value
 
 MEMBERS_SHOWN = 50
 
@@ -48,7 +48,7 @@ class GroupScreen(Screen):
             table.add_column(col, justify="left" if col == "feature" else "right")
         for p in self.case["profile"][:8]:
             diff = p.get("difference")
-            table.add_row(str(p["feature"]), _fmt(p.get("group")), _fmt(p.get("rest")),
+            table.add_row(str(p["feature"]), format_value(p.get("group")), format_value(p.get("rest")),
                           "" if diff is None else f"{diff:+.1f}")
         return table
 

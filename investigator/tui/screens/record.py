@@ -12,7 +12,7 @@ from textual.containers import VerticalScroll
 from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
-from investigator.output.explanation import _fmt, _typical
+from investigator.output.explanation import format_value, typical_text
 from investigator.tui.widgets.contribution_bars import ContributionBars
 
 DEBOUNCE_S = 0.06  # moving fast through records asks the engine only for the one the user stops on
@@ -126,8 +126,8 @@ class RecordScreen(Screen):
         self.query_one("#record-values", Static).update(_values(e))
         hits = e["column_hits"]
         self.query_one("#record-hits", Static).update(
-            "\n".join(f"{h['column']}: {h['rule']} ({_fmt(h['value'])} is "
-                      f"{'above' if h['side'] == 'upper' else 'below'} {_fmt(h['limit'])})" for h in hits)
+            "\n".join(f"{h['column']}: {h['rule']} ({format_value(h['value'])} is "
+                      f"{'above' if h['side'] == 'upper' else 'below'} {format_value(h['limit'])})" for h in hits)
             or "none: no single column is out of the ordinary by the per-column rules")
         self.query_one("#record-peers", Static).update(_peers(e))
 
@@ -135,7 +135,7 @@ class RecordScreen(Screen):
 def _change(e: dict) -> str:
     nearest = e.get("nearest_ordinary")
     if nearest:
-        change = " and ".join(f"{c['feature']} {_fmt(c['to'])} instead of {_fmt(c['from'])}"
+        change = " and ".join(f"{c['feature']} {format_value(c['to'])} instead of {format_value(c['from'])}"
                               for c in nearest["changes"])
         return (f"Smallest change that makes it ordinary (robust_distance): {change} (distance "
                 f"{nearest['distance_before']:.1f} -> {nearest['distance_after']:.1f}, cutoff "
@@ -165,8 +165,8 @@ def _values(e: dict) -> Table:
     top = {f["feature"]: f["direction"] for f in e["top_features"]}
     for v in e["values"]:
         mark = {"higher": "▲ higher", "lower": "▼ lower", "rarer": "◆ rare"}.get(top.get(v["feature"]), "")
-        value = _fmt(v["value"]) + (" (imputed)" if v["imputed"] else "")
-        t.add_row(v["feature"], value, _typical(v["typical"]), f"{v['robust_z']:+.1f}", mark,
+        value = format_value(v["value"]) + (" (imputed)" if v["imputed"] else "")
+        t.add_row(v["feature"], value, typical_text(v["typical"]), f"{v['robust_z']:+.1f}", mark,
                   style="bold" if mark else "")
     return t
 
@@ -181,7 +181,7 @@ def _peers(e: dict) -> Table | str:
     for n in names:
         t.add_column(n[:12], justify="right")
     own = {v["feature"]: v["value"] for v in e["values"]}
-    t.add_row(f"this ({e['key']})", *[_fmt(own.get(n)) for n in names], style="bold")
+    t.add_row(f"this ({e['key']})", *[format_value(own.get(n)) for n in names], style="bold")
     for p in peers:
-        t.add_row(f"{p['key']} d={p['distance']:.2f}", *[_fmt(p["values"].get(n)) for n in names])
+        t.add_row(f"{p['key']} d={p['distance']:.2f}", *[format_value(p["values"].get(n)) for n in names])
     return t
