@@ -124,7 +124,8 @@ def duplicates_on(frame: pd.DataFrame, columns: Sequence[str], *, missing: str =
     """
     chosen = _check_columns(frame, columns, "the duplicate check")
     if not chosen:
-        raise InputError("name at least one column for the duplicate check, e.g. --duplicates vendor,amount")
+        raise InputError("name at least one column for the duplicate check, e.g. duplicates=vendor,amount",
+                         parameters=("duplicates",))
     return _report("columns", frame, chosen, missing, keys)
 
 

@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from investigator.errors import InputError
-from investigator.io.tables import Table, _list
+from investigator.io.tables import Table, name_list
 from investigator.prepare.features import column_numbers
 
 
@@ -29,34 +29,38 @@ class Limit:
 def load_limits(path, table: Table) -> list[Limit]:
     path = Path(path)
     if not path.exists():
-        raise InputError(f"--limits {path}: no such file; give a CSV with columns column, lower, upper")
+        raise InputError(f"limits={path}: no such file; give a CSV with columns column, lower, upper",
+                         parameters=("limits",))
     try:
         frame = pd.read_csv(path, dtype=str, keep_default_na=False)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
-        raise InputError(f"--limits {path}: not a readable CSV ({type(exc).__name__}); "
-                         "give a CSV with columns column, lower, upper") from None
+        raise InputError(f"limits={path}: not a readable CSV ({type(exc).__name__}); "
+                         "give a CSV with columns column, lower, upper", parameters=("limits",)) from None
     frame.columns = [c.strip().lower() for c in frame.columns]
     if not {"column", "lower", "upper"} <= set(frame.columns):
-        raise InputError(f"--limits {path}: needs the columns column, lower, upper; it has "
-                         f"{_list(frame.columns)}")
+        raise InputError(f"limits={path}: needs the columns column, lower, upper; it has "
+                         f"{name_list(frame.columns)}", parameters=("limits",))
     limits = []
     for n, row in enumerate(frame.itertuples(index=False), 2):
         name = row.column.strip()
         if name not in table.frame.columns:
-            raise InputError(f"--limits {path} line {n}: column '{name}' is not in {table.name}; columns are: "
-                             f"{_list(table.frame.columns)}")
+            raise InputError(f"limits={path} line {n}: column '{name}' is not in {table.name}; columns are: "
+                             f"{name_list(table.frame.columns)}", parameters=("limits",))
         bounds = []
         for label, text in (("lower", row.lower), ("upper", row.upper)):
             text = text.strip()
             try:
                 bounds.append(float(text) if text else None)
             except ValueError:
-                raise InputError(f"--limits {path} line {n}: {label} limit '{text}' is not a number") from None
+                raise InputError(f"limits={path} line {n}: {label} limit '{text}' is not a number",
+                                 parameters=("limits",)) from None
         lower, upper = bounds
         if lower is None and upper is None:
-            raise InputError(f"--limits {path} line {n}: column '{name}' has neither a lower nor an upper limit")
+            raise InputError(f"limits={path} line {n}: column '{name}' has neither a lower nor an upper limit",
+                             parameters=("limits",))
         if lower is not None and upper is not None and lower > upper:
-            raise InputError(f"--limits {path} line {n}: lower limit {lower:g} is above upper limit {upper:g}")
+            raise InputError(f"limits={path} line {n}: lower limit {lower:g} is above upper limit {upper:g}",
+                             parameters=("limits",))
         limits.append(Limit(name, lower, upper))
     return limits
 

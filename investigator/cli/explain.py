@@ -6,6 +6,7 @@ import argparse
 from collections.abc import Callable
 
 from investigator.cli.options import add_scan_options, scan_parameters
+from investigator.output.explanation import explanation_text
 from investigator.progress import StderrBar
 
 
@@ -24,7 +25,6 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
 
 def run_explain(args: argparse.Namespace) -> int:
     # Deferred: the engine's import costs 1.9 s (see investigator/cli/scan.py).
-    from investigator.output.explanation import explanation_text
     from investigator.pipeline.engine import scan
     from investigator.pipeline.options import ScanOptions
 

@@ -12,12 +12,12 @@ import os
 import sys
 from collections.abc import Callable
 
-from investigator import __version__
 from investigator.cli import demo, explain, report, review, scan
 from investigator.cli import map as map_command
 from investigator.cli import open as open_command
-from investigator.cli.options import Parser
+from investigator.cli.options import Parser, flag_message
 from investigator.errors import InputError
+from investigator.version import __version__
 
 DESCRIPTION = (
     "Find the records in a table that do not fit with the rest, and say why. "
@@ -48,7 +48,8 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return handlers[args.command](args)
     except InputError as exc:
-        message = str(exc).replace("\r", "\\r").replace("\n", "\\n")  # always one line
+        # The engine names its parameters as the API spells them; here they are the flags (--cutoff 1.5).
+        message = flag_message(exc).replace("\r", "\\r").replace("\n", "\\n")  # always one line
         print(f"investigator {args.command}: error: {message}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:

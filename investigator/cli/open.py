@@ -6,7 +6,7 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
-from investigator.cli.options import add_scan_options, scan_parameters
+from investigator.cli.options import add_scan_options, flag_message, scan_parameters
 
 
 def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
@@ -27,7 +27,8 @@ def run_open(args: argparse.Namespace) -> int:
     # importing the options module pulls in SciPy and would delay the first frame.
     from investigator.tui.app import InvestigatorApp
 
-    InvestigatorApp(args.data, scan_parameters(args), autoscan=args.scan, store=args.store).run()
+    InvestigatorApp(args.data, scan_parameters(args), autoscan=args.scan, store=args.store,
+                    error_text=flag_message).run()
     return 0
 
 
@@ -35,5 +36,5 @@ def open_demo(path: Path, seed: int, id_column: str) -> int:
     """The interactive ``investigator demo``: the demo data, scanned at once, in the workspace."""
     from investigator.tui.app import InvestigatorApp  # deferred, as in run_open
 
-    InvestigatorApp(path, {"id": id_column, "seed": seed}, autoscan=True).run()
+    InvestigatorApp(path, {"id": id_column, "seed": seed}, autoscan=True, error_text=flag_message).run()
     return 0

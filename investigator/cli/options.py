@@ -1,10 +1,14 @@
-"""Option helpers shared by the commands: the parser class, the scan options every scanning command takes, and
-the translation of parsed arguments into the engine's parameters. argparse is used in ``investigator.cli`` only.
+"""Option helpers shared by the commands: the parser class, the scan options every scanning command takes, the
+translation of parsed arguments into the engine's parameters, and of the parameters an engine error names back into
+flags. argparse is used in ``investigator.cli`` only.
 """
 
 from __future__ import annotations
 
 import argparse
+import re
+
+from investigator.errors import InputError
 
 METHOD_HELP = "robust_distance, local_density, isolation, neighbor_distance"
 
@@ -65,3 +69,24 @@ def scan_parameters(args: argparse.Namespace) -> dict:
         "keep_reference_outliers": getattr(args, "keep_reference_outliers", False),
     }
     return {k: v for k, v in given.items() if v is not None}
+
+
+# Flags spelled otherwise than `--` + the API parameter with dashes for underscores. `scan_dataset` is how the
+# API names the Dask path (a function of its own), and `path` is ScanResult.write's output file.
+FLAGS = {"state": "--set", "path": "--out", "scan_dataset": "--engine dask"}
+
+
+def flag(parameter: str) -> str:
+    """The command-line spelling of an API parameter: ``worker_memory`` is ``--worker-memory``."""
+    return FLAGS.get(parameter, "--" + parameter.replace("_", "-"))
+
+
+def flag_message(error: InputError) -> str:
+    """The message of ``error`` in the command line's words: each parameter it lists, spelled ``name=value``
+    or ```name``` by the engine, becomes ``--name value`` or ``--name``; the rest of the text is kept as it is."""
+    text = str(error)
+    for name in error.parameters:
+        text = text.replace(f"`{name}`", flag(name))
+        # `name=` only where a word starts: a value such as a path or a column list is never rewritten.
+        text = re.sub(rf"(?<![^\s(]){re.escape(name)}=", lambda _, name=name: flag(name) + " ", text)
+    return text

@@ -98,7 +98,7 @@ def run_verdict(args: argparse.Namespace) -> int:
 
 
 def run_verdicts(args: argparse.Namespace) -> int:
-    from investigator.io.tables import load_table
+    from investigator.io.tables import load_table  # pandas, both: deferred as in run_verdict
     from investigator.review.matching import match_entries
 
     out = Path(args.export) if args.export else None

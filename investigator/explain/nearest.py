@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from investigator.explain.contributions import robust_fit_labels
 from investigator.explain.explanation import Change, NearestOrdinary
 
 MARGIN = 1e-9  # land just under the cutoff, not on it
@@ -66,8 +67,6 @@ def nearest_ordinary(result, i: int) -> NearestOrdinary | None:
 
 
 def _fit_of(result, i: int):
-    from investigator.explain.contributions import robust_fit_labels
-
     fits, labels = robust_fit_labels(result, np.array([i]))
     return fits[int(labels[0])]
 

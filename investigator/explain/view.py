@@ -19,6 +19,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+from sklearn.neighbors import NearestNeighbors
 
 from investigator.explain.contributions import method_contributions, shares
 from investigator.explain.explanation import (
@@ -109,8 +110,6 @@ def peer_candidates(pool: Pool, options) -> np.ndarray:
 
 def find_peers(result, pool: Pool, positions: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
     """Rows (in the pool's features) and distances of the k nearest ordinary records to each record."""
-    from sklearn.neighbors import NearestNeighbors
-
     members = peer_candidates(pool, result.options)
     same = pool.may_hold_the_record
     k = min(k, len(members) - 1 if same and len(members) > 1 else len(members))

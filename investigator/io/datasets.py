@@ -11,7 +11,8 @@ import re
 from pathlib import Path
 
 from investigator.errors import InputError
-from investigator.io.tables import PARQUET_SUFFIXES
+
+PARQUET_SUFFIXES = {".parquet", ".pq"}
 
 
 def is_dataset(data) -> bool:

@@ -17,12 +17,13 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pyarrow.parquet as pq
 
 from investigator.errors import InputError
+from investigator.io.datasets import PARQUET_SUFFIXES, is_dataset, parquet_files
 
 MIN_ROWS = 5
 CSV_SUFFIXES = {".csv", ".txt", ".tsv", ".tab"}
-PARQUET_SUFFIXES = {".parquet", ".pq"}
 EXCEL_SUFFIXES = {".xlsx", ".xlsm"}
 # Tried in order when a file is not valid UTF-8. cp1252 is the usual spreadsheet export on Windows;
 # latin-1 decodes any byte string, so it is the last resort and always says so in a notice.
@@ -107,8 +108,6 @@ def load_table(data, *, sheet: str | None = None, id_column: str | None = None,
                 frame[col] = frame[col].map(lambda v: v if v is None or isinstance(v, float) else str(v))
         table = Table(frame=frame, source=Source(path=None, format="dataframe"))
     else:
-        from investigator.io.datasets import is_dataset
-
         if is_dataset(data):
             table = _read_dataset(data, sheet)
         else:
@@ -141,7 +140,7 @@ def _read_file(path: Path, *, sheet: str | None, id_column: str | None) -> Table
     else:
         frame, source, notices = _read_text(path, raw, digest, id_column)
     if sheet is not None and source.format != "xlsx":
-        raise InputError(f"{path}: --sheet only applies to .xlsx files")
+        raise InputError(f"{path}: `sheet` only applies to .xlsx files", parameters=("sheet",))
     frame.columns = [str(c) for c in frame.columns]
     return Table(frame=frame, source=source, notices=notices)
 
@@ -210,10 +209,8 @@ def _read_text(path: Path, raw: bytes, digest: str, id_column: str | None):
 
 def _read_dataset(data, sheet: str | None) -> Table:
     """A Parquet dataset (folder or glob) in memory: its files in natural order, one table."""
-    from investigator.io.datasets import parquet_files
-
     if sheet is not None:
-        raise InputError(f"{data}: --sheet only applies to .xlsx files")
+        raise InputError(f"{data}: `sheet` only applies to .xlsx files", parameters=("sheet",))
     files = parquet_files(data)
     frames: list[pd.DataFrame] = []
     digest = hashlib.sha256()
@@ -229,11 +226,9 @@ def _read_dataset(data, sheet: str | None) -> Table:
     return Table(frame=frame, source=Source(str(data), "parquet dataset", digest.hexdigest()))
 
 
-def _read_parquet_schema(path: Path) -> list[str]:
+def read_parquet_schema(path: Path) -> list[str]:
     """Column names of a Parquet file, checked as a header is; a clear error for a damaged file."""
     try:
-        import pyarrow.parquet as pq
-
         names = [str(c) for c in pq.read_schema(path).names]
     except Exception as exc:  # pyarrow raises several types for damaged files
         reason = str(exc).strip().splitlines()[0][:120] if str(exc).strip() else type(exc).__name__
@@ -246,8 +241,6 @@ def _read_parquet_schema(path: Path) -> list[str]:
 
 def _read_parquet(path: Path) -> pd.DataFrame:
     try:
-        import pyarrow.parquet as pq
-
         # Names first: pyarrow cannot read a file whose columns share a name, and would not say so plainly.
         _check_header([str(c) for c in pq.read_schema(path).names], str(path))
         frame = pq.read_table(path).to_pandas()
@@ -263,9 +256,11 @@ def _read_parquet(path: Path) -> pd.DataFrame:
 
 
 def _read_excel(path: Path, sheet: str | None) -> tuple[pd.DataFrame, str]:
-    try:
-        import openpyxl
+    # Deferred: openpyxl (with Pillow) adds 0.1 s to reading any table (`python -X importtime` after pandas, on
+    # this machine), and only .xlsx files need it.
+    import openpyxl
 
+    try:
         book = openpyxl.load_workbook(path, read_only=True, data_only=True)
     except XLSX_ERRORS as exc:
         raise _unreadable_xlsx(path, exc) from None
@@ -338,7 +333,8 @@ def _check_key(table: Table, column: str) -> None:
     frame = table.frame
     if column not in frame.columns:
         raise InputError(
-            f"{table.name}: --id column '{column}' not found; columns are: {_list(frame.columns)}"
+            f"{table.name}: `id` column '{column}' not found; columns are: {name_list(frame.columns)}",
+            parameters=("id",),
         )
     _check_key_values(frame[column], column, table.name)
 
@@ -349,16 +345,17 @@ def _check_key_values(values: pd.Series, column: str, name: str) -> None:
     missing = values.isna().to_numpy().nonzero()[0]
     if len(missing):
         raise InputError(
-            f"{name}: --id column '{column}' is empty in row {missing[0] + 1}; every record needs a "
-            "key (fill it in, or leave --id out to key records by row)"
+            f"{name}: `id` column '{column}' is empty in row {missing[0] + 1}; every record needs a "
+            "key (fill it in, or leave `id` out to key records by row)", parameters=("id",)
         )
     dup = values.duplicated(keep=False).to_numpy().nonzero()[0]
     if len(dup):
         first = values.iloc[dup[0]]
         rows = [str(i + 1) for i in dup if values.iloc[i] == first][:3]
         raise InputError(
-            f"{name}: --id column '{column}' has the value '{_show(first)}' in rows {', '.join(rows)}; "
-            "a key must be unique (choose another column, or leave --id out to key records by row)"
+            f"{name}: `id` column '{column}' has the value '{_show(first)}' in rows {', '.join(rows)}; "
+            "a key must be unique (choose another column, or leave `id` out to key records by row)",
+            parameters=("id",),
         )
 
 
@@ -367,7 +364,8 @@ def _show(name) -> str:
     return str(name).replace("\r", "\\r").replace("\n", "\\n")
 
 
-def _list(names, limit: int = 12) -> str:
+def name_list(names, limit: int = 12) -> str:
+    """Column names for a one-line message: comma-separated, line breaks escaped, at most ``limit`` shown."""
     names = [_show(n) for n in names]
     shown = ", ".join(names[:limit])
     return shown + (f", ... ({len(names)} in all)" if len(names) > limit else "")

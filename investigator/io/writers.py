@@ -53,9 +53,10 @@ def to_json_text(data: dict) -> str:
 
 
 def check_out_path(path: Path) -> None:
-    """Refuse an unusable --out before any work is done."""
+    """Refuse an unusable output path before any work is done."""
     suffix = path.suffix.lower()
     if suffix not in FORMATS:
-        raise InputError(f"--out {path}: unknown format '{suffix}'; use one of {', '.join(FORMATS)}")
+        raise InputError(f"path={path}: unknown format '{suffix}'; use one of {', '.join(FORMATS)}",
+                         parameters=("path",))
     if not path.parent.exists():
-        raise InputError(f"--out {path}: folder {path.parent} does not exist; create it first")
+        raise InputError(f"path={path}: folder {path.parent} does not exist; create it first", parameters=("path",))

@@ -38,6 +38,8 @@ class Isolation(Method):
         return {"trees": self.n_trees, "subsample": int(self.forest_.max_samples_), "seed": self.seed}
 
     def _fit(self, X, neighbors=None):
+        # Deferred: scikit-learn's ensembles add 0.3 s to importing the methods package (`python -X importtime`
+        # after SciPy, on this machine), which ScanOptions imports: the TUI builds the options while loading.
         from sklearn.ensemble import IsolationForest
 
         # The forest draws each tree's records by position; given the records in content order it grows the

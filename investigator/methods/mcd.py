@@ -46,9 +46,11 @@ from math import comb
 
 import numpy as np
 from scipy import stats
+from scipy.linalg import solve_triangular
 
 from investigator import sampling
 from investigator.methods.fitted import read_only
+from investigator.prepare.features import robust_scale
 
 SAMPLE_ABOVE = 100_000  # records; above this the raw MCD is searched on a random sample (not with exact)
 SAMPLE_SIZE = 50_000
@@ -106,8 +108,6 @@ def _logdet(S: np.ndarray) -> float:
 def sq_distances(X: np.ndarray, mu: np.ndarray, S: np.ndarray) -> np.ndarray:
     """Squared Mahalanobis distances through a Cholesky solve (S must be positive definite)."""
     L = np.linalg.cholesky(S)
-    from scipy.linalg import solve_triangular
-
     Z = solve_triangular(L, (X - mu).T, lower=True, check_finite=False)
     return np.einsum("ij,ij->j", Z, Z)
 
@@ -145,8 +145,6 @@ def fill_degenerate(S: np.ndarray, X: np.ndarray, table: np.ndarray | None = Non
     the table's spread, and one that varies within the kind but not in its core on the kind's own. Returns
     the filled matrix and the number of directions filled.
     """
-    from investigator.prepare.features import robust_scale
-
     w, V = np.linalg.eigh(S)
     proj = X @ V
     floor = _FILL_FLOOR * max(float(w[-1]), 1.0)
@@ -422,20 +420,16 @@ def _deterministic_starts(X: np.ndarray, h: int) -> list[np.ndarray]:
     through its eigenvectors and robust scales there; and the h records nearest the coordinatewise median.
     Random starts can all end in the same local optimum (on Hawkins-Bradu-Kass, 500 of them did for one
     seed); these do not depend on the seed or on the order of the rows."""
-    from scipy import stats as st
-
-    from investigator.prepare.features import robust_scale
-
     n, p = X.shape
     center = np.median(X, axis=0)
     scale = np.array([robust_scale(X[:, j])[1] for j in range(p)])
     Z = (X - center) / scale
-    ranks = np.column_stack([st.rankdata(Z[:, j]) for j in range(p)])
+    ranks = np.column_stack([stats.rankdata(Z[:, j]) for j in range(p)])
     norms = np.linalg.norm(Z, axis=1, keepdims=True)
     signs = Z / np.where(norms > 0, norms, 1.0)
     with np.errstate(invalid="ignore", divide="ignore"):  # a column constant in X has no correlation
         scatters = [np.corrcoef(np.tanh(Z), rowvar=False), np.corrcoef(ranks, rowvar=False),
-                    np.corrcoef(st.norm.ppf((ranks - 1 / 3) / (n + 1 / 3)), rowvar=False), signs.T @ signs / n]
+                    np.corrcoef(stats.norm.ppf((ranks - 1 / 3) / (n + 1 / 3)), rowvar=False), signs.T @ signs / n]
     starts = [np.argsort(norms[:, 0], kind="stable")[:h]]
     for S in scatters:
         S = np.atleast_2d(np.nan_to_num(S))

@@ -115,6 +115,7 @@ class NeighborSearch:
         self.n_reference_ = int(len(chosen))
         m = len(self.locations_)
         self.k_ = min(self.k, m - 1)
+        # Deferred, as in isolation.py: scikit-learn's neighbours add 0.2 s to importing the methods package.
         from sklearn.neighbors import NearestNeighbors
 
         # The sampled path searches in float32, about twice as fast; distances are kept in float64 after.

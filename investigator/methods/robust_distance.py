@@ -7,7 +7,7 @@ from scipy import stats
 
 from investigator.methods.base import Method, Scale, far_fence, upper_fence
 from investigator.methods.fitted import owned, read_only
-from investigator.methods.mcd import SAMPLE_ABOVE, FastMCD, MCDFit, sq_distances
+from investigator.methods.mcd import KAPPA, SAMPLE_ABOVE, FastMCD, MCDFit, sq_distances
 
 
 class RobustDistance(Method):
@@ -143,8 +143,6 @@ def regularisation(fit: MCDFit) -> dict | None:
     """The MRCD regularisation of a fit for the run record (None when the MCD needed none)."""
     if not fit.regularised:
         return None
-    from investigator.methods.mcd import KAPPA
-
     return {"core_search": "minimum regularized covariance determinant (Boudt et al. 2020), identity target",
             "condition_number_limit": KAPPA, "rho": float(fit.rho),
             "raw_directions_filled": int(fit.filled), "reweighted_directions_filled": int(fit.reweighted_filled),

@@ -17,7 +17,9 @@ def stability_label(share: float) -> str:
     return "borderline"
 
 
-def _fmt(value) -> str:
+def format_value(value) -> str:
+    """A value for a person to read: missing as "(missing)", floats to four significant digits (large ones
+    whole, with thousands separators), anything else as its text."""
     if value is None:
         return "(missing)"
     if isinstance(value, float):
@@ -27,13 +29,15 @@ def _fmt(value) -> str:
     return str(value)
 
 
-def _typical(t: Typical) -> str:
+def typical_text(t: Typical) -> str:
+    """A typical range in words: the commonest level and its share, or the median and the quartiles."""
     if isinstance(t, TypicalLevel):
         return f"mostly {t.level} ({t.share:.0%})"
-    return f"{_fmt(t.median)} ({_fmt(t.q1)} to {_fmt(t.q3)})"
+    return f"{format_value(t.median)} ({format_value(t.q1)} to {format_value(t.q3)})"
 
 
-def _headline(e: Explanation) -> str:
+def headline_text(e: Explanation) -> str:
+    """The first sentence of an explanation: flagged or not and why, rank and consensus, the main reasons."""
     m = len(e.method_scores)
     who = f"Record {e.key}" + (f" (row {e.row})" if e.key != e.row else "")
     why = e.flag_reason or ""
@@ -55,11 +59,11 @@ def _headline(e: Explanation) -> str:
     parts = []
     for t in e.top_features[:2]:
         if t.direction == "rarer":
-            parts.append(f"{t.feature} has a rare value ({_fmt(t.value)}; typical: {_typical(t.typical)})")
+            parts.append(f"{t.feature} has a rare value ({format_value(t.value)}; typical: {typical_text(t.typical)})")
         elif t.direction in ("higher", "lower"):
             median = t.typical.median if not isinstance(t.typical, TypicalLevel) else None
-            parts.append(f"{t.feature} is {t.direction} than typical ({_fmt(t.value)} against "
-                         f"a median of {_fmt(median)})")
+            parts.append(f"{t.feature} is {t.direction} than typical ({format_value(t.value)} against "
+                         f"a median of {format_value(median)})")
     if parts:
         intro = " It stands out mainly because " if e.votes else " Its largest deviations: "
         lead += intro + " and ".join(parts) + "."
@@ -67,14 +71,15 @@ def _headline(e: Explanation) -> str:
 
 
 def explanation_text(e: Explanation) -> str:
-    lines = [_headline(e)]
+    lines = [headline_text(e)]
     if e.stability is not None and e.resamples is not None:
         runs = e.resamples
         seen = round(e.stability * runs)
         lines.append(f"Flagged in {seen} of {runs} resampled runs: {stability_label(e.stability)}.")
     nearest = e.nearest_ordinary
     if nearest:
-        change = " and ".join(f"{c.feature} {_fmt(c.after)} instead of {_fmt(c.before)}" for c in nearest.changes)
+        change = " and ".join(f"{c.feature} {format_value(c.after)} instead of {format_value(c.before)}"
+                          for c in nearest.changes)
         if nearest.features_changed > 2:
             lines.append("No change to one or two features alone brings it under the robust_distance cutoff.")
         lines.append(f"Smallest change found that brings it under the robust_distance cutoff: {change} "
@@ -95,14 +100,15 @@ def explanation_text(e: Explanation) -> str:
                   f"  {'feature':<16} {'value':>12}  {'direction':<9} {'typical (median, IQR)':<28} "
                   f"{'z':>6} {'share':>6}  methods"]
         for t in e.top_features:
-            lines.append(f"  {t.feature:<16} {_fmt(t.value):>12}  {t.direction:<9} "
-                         f"{_typical(t.typical):<28} {t.robust_z:>6.1f} {t.share:>6.0%}  "
+            lines.append(f"  {t.feature:<16} {format_value(t.value):>12}  {t.direction:<9} "
+                         f"{typical_text(t.typical):<28} {t.robust_z:>6.1f} {t.share:>6.0%}  "
                          f"{', '.join(t.methods)}")
     if e.column_hits:
         lines += ["", "Column hits"]
         for h in e.column_hits:
             side = "above" if h["side"] == "upper" else "below"
-            lines.append(f"  {h['column']}: {h['rule']} ({_fmt(h['value'])} is {side} {_fmt(h['limit'])})")
+            lines.append(f"  {h['column']}: {h['rule']} ({format_value(h['value'])} is {side} "
+                         f"{format_value(h['limit'])})")
     peers = e.peers.records
     if peers:
         names = [t.feature for t in e.top_features[:4]] or list(peers[0].values)[:4]
@@ -110,13 +116,13 @@ def explanation_text(e: Explanation) -> str:
                   f"  {'row':>6} {'key':<14} {'distance':>8}  " + "  ".join(f"{n[:12]:>12}" for n in names)]
         own = {t.feature: t.value for t in e.top_features}
         lines.append(f"  {'this':>6} {str(e.key)[:14]:<14} {'':>8}  "
-                     + "  ".join(f"{_fmt(own.get(n)):>12}" for n in names))
+                     + "  ".join(f"{format_value(own.get(n)):>12}" for n in names))
         for p in peers:
             lines.append(f"  {p.row:>6} {str(p.key)[:14]:<14} {p.distance:>8.2f}  "
-                         + "  ".join(f"{_fmt(p.values.get(n)):>12}" for n in names))
+                         + "  ".join(f"{format_value(p.values.get(n)):>12}" for n in names))
         diffs = e.peers.differences
         if diffs:
             lines.append("  Differences that matter most: " + "; ".join(
-                f"{d.feature} {_fmt(d.value)} vs {_fmt(d.peers)}" for d in diffs))
+                f"{d.feature} {format_value(d.value)} vs {format_value(d.peers)}" for d in diffs))
     lines += ["", "A flag is a lead for a person to review, not proof of error or fraud."]
     return "\n".join(lines)

@@ -13,6 +13,10 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from scipy.spatial import ConvexHull
 
 from investigator.structure.groups import Grouping
 
@@ -32,10 +36,6 @@ def draw_map(coords: np.ndarray, flagged: np.ndarray, consensus: np.ndarray, gro
     groups : the :class:`Grouping` of the same records, or None to draw no groups.
     title, subtitle : text above the map (e.g. the file name; the method and seed).
     """
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-    from matplotlib.lines import Line2D
-
     coords = np.asarray(coords, dtype=float)
     flagged = np.asarray(flagged, dtype=bool)
     consensus = np.asarray(consensus, dtype=float)
@@ -99,8 +99,6 @@ def draw_map(coords: np.ndarray, flagged: np.ndarray, consensus: np.ndarray, gro
 def _outline(points: np.ndarray, margin: float) -> np.ndarray:
     """A closed outline around the points: the convex hull of each point widened to a 16-gon of radius
     ``margin``, so one point, two points or points on a line still get an area."""
-    from scipy.spatial import ConvexHull
-
     angles = np.linspace(0, 2 * np.pi, 16, endpoint=False)
     ring = margin * np.column_stack([np.cos(angles), np.sin(angles)])
     widened = (points[:, None, :] + ring[None, :, :]).reshape(-1, 2)

@@ -44,6 +44,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
+from investigator.methods.base import NORMAL_IQR, upper_fence
+from investigator.prepare.features import robust_scale
+
 VOTES = "votes"
 FAR_BEYOND = "far beyond "
 COMBINED = "far beyond combined"
@@ -115,9 +118,6 @@ def rank_of(z: np.ndarray) -> np.ndarray:
 def combined_fence(zbar: np.ndarray) -> float:
     """The far-out fence of combined z-values; where over half of them tie (so the quartiles cannot give a
     width), the width is 1.349 robust spreads of the fallback chain."""
-    from investigator.methods.base import NORMAL_IQR, upper_fence
-    from investigator.prepare.features import robust_scale
-
     return upper_fence(zbar, NORMAL_IQR * robust_scale(zbar)[1] if robust_scale(zbar)[2] != "MAD" else 0.0)
 
 

@@ -20,24 +20,33 @@ process per core, each with an equal share of the machine's memory unless ``work
 from __future__ import annotations
 
 import json
+import logging
 import os
 import shutil
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
+import dask
+import dask.dataframe as dd
 import numpy as np
 import pandas as pd
+from dask import delayed
+from dask.distributed import Client, LocalCluster, as_completed
 
 from investigator.errors import InputError
+from investigator.io.datasets import PARQUET_SUFFIXES, is_dataset, parquet_files
+from investigator.io.tables import MIN_ROWS, Source, Table, read_parquet_schema
+from investigator.output.summary import dataset_summary_text
 from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.run_record import DatasetRunRecord, InputRecord, SampleFit
+from investigator.pipeline.scan_model import ScanModel
 from investigator.progress import Progress, silent
 
 FIT_SAMPLE = 200_000
 RUN_FILE = "_run.json"  # the leading underscore makes Parquet readers skip it
 SCORES_FILE = "scores-{:05d}.parquet"  # one per partition, in partition order; our name, not the writer's default
-UNSUPPORTED = {"resamples": "--resamples", "digits": "--digits", "duplicates": "--duplicates", "map": "--map"}
+UNSUPPORTED = ("resamples", "digits", "duplicates", "map")
 
 
 @dataclass
@@ -49,49 +58,45 @@ class DatasetScan:
     top: pd.DataFrame  # the flagged records with the highest consensus (row, key, consensus, votes, ...)
 
     def summary(self) -> str:
-        from investigator.output.summary import dataset_summary_text
-
         return dataset_summary_text(self)
 
 
 def check_dask_options(options: ScanOptions) -> None:
-    for name, flag in UNSUPPORTED.items():
+    for name in UNSUPPORTED:
         value = getattr(options, name)
         if value and value != "none":
-            raise InputError(f"{flag} is not available with --engine dask (it needs every record at once); "
-                             "leave it out, or scan in memory")
+            raise InputError(f"`{name}` is not available with `scan_dataset` (it needs every record at once); "
+                             "leave it out, or scan in memory", parameters=(name, "scan_dataset"))
 
 
 def check_out_folder(out) -> Path:
     """The results folder: new, or the results of an earlier run (replaced only once the new run is written)."""
     if out is None:
-        raise InputError("--engine dask writes a partitioned Parquet dataset: give --out FOLDER")
+        raise InputError("`scan_dataset` writes a partitioned Parquet dataset: give out=FOLDER",
+                         parameters=("scan_dataset", "out"))
     path = Path(out)
     if path.suffix.lower() in (".json", ".csv", ".parquet"):
-        raise InputError(f"--out {path}: --engine dask writes a folder of Parquet files; give a folder name "
-                         "without .json/.csv/.parquet")
+        raise InputError(f"out={path}: `scan_dataset` writes a folder of Parquet files; give a folder name "
+                         "without .json/.csv/.parquet", parameters=("out", "scan_dataset"))
     if path.exists() and (not path.is_dir() or (any(path.iterdir()) and not (path / RUN_FILE).exists())):
-        raise InputError(f"--out {path}: exists and is not an earlier results folder of this tool; choose "
-                         "another --out so nothing there is overwritten")
+        raise InputError(f"out={path}: exists and is not an earlier results folder of this tool; choose "
+                         "another `out` so nothing there is overwritten", parameters=("out",))
     if not path.parent.exists():
-        raise InputError(f"--out {path}: folder {path.parent} does not exist; create it first")
+        raise InputError(f"out={path}: folder {path.parent} does not exist; create it first", parameters=("out",))
     return path
 
 
 def connect(scheduler: str | None = None, workers: int | None = None, worker_memory: str | None = None):
     """A ``distributed.Client``: to the scheduler at ``scheduler``, or to a new LocalCluster sized to the
     machine. Returns (client, description)."""
-    import logging
-
-    from dask.distributed import Client, LocalCluster
-
     if scheduler:
         try:
             client = Client(scheduler, timeout="10s")
         except (OSError, TimeoutError, ValueError) as exc:
             reason = str(exc).strip().splitlines()[0][:120] if str(exc).strip() else type(exc).__name__
-            raise InputError(f"--scheduler {scheduler}: could not connect ({reason}); check the address "
-                             "(e.g. tcp://host:8786) and that the scheduler is running") from None
+            raise InputError(f"scheduler={scheduler}: could not connect ({reason}); check the address "
+                             "(e.g. tcp://host:8786) and that the scheduler is running",
+                             parameters=("scheduler",)) from None
         return client, {"scheduler": scheduler}
     n = workers or os.cpu_count() or 1
     memory = worker_memory or "auto"
@@ -100,7 +105,8 @@ def connect(scheduler: str | None = None, workers: int | None = None, worker_mem
         cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, memory_limit=memory,
                                host="127.0.0.1", dashboard_address="127.0.0.1:0", silence_logs=logging.ERROR)
     except ValueError as exc:
-        raise InputError(f"--worker-memory {worker_memory}: {exc}; give a size such as 2GB") from None
+        raise InputError(f"worker_memory={worker_memory}: {exc}; give a size such as 2GB",
+                         parameters=("worker_memory",)) from None
     limit = cluster.workers[next(iter(cluster.workers))].memory_manager.memory_limit if cluster.workers else None
     return Client(cluster), {"scheduler": "LocalCluster", "workers": n, "threads_per_worker": 1,
                              "memory_limit_per_worker": int(limit) if limit else None}
@@ -108,18 +114,13 @@ def connect(scheduler: str | None = None, workers: int | None = None, worker_mem
 
 def open_dataset(data):
     """The dataset's files and its ``dask.dataframe``, with errors a user can act on."""
-    import dask.dataframe as dd
-
-    from investigator.io.datasets import is_dataset, parquet_files
-    from investigator.io.tables import PARQUET_SUFFIXES, _read_parquet_schema
-
     if not is_dataset(data) and Path(data).suffix.lower() not in PARQUET_SUFFIXES and Path(data).is_file():
-        raise InputError(f"{data}: --engine dask reads Parquet (a file, a folder or a glob of files); convert "
-                         "it to Parquet, or scan it in memory without --engine dask")
+        raise InputError(f"{data}: `scan_dataset` reads Parquet (a file, a folder or a glob of files); convert "
+                         "it to Parquet, or scan it in memory without `scan_dataset`", parameters=("scan_dataset",))
     files = parquet_files(data)
-    names = _read_parquet_schema(files[0])
+    names = read_parquet_schema(files[0])
     for path in files[1:]:
-        if _read_parquet_schema(path) != names:
+        if read_parquet_schema(path) != names:
             raise InputError(f"{path}: its columns differ from those of {files[0].name}; every file of a "
                              "dataset needs the same columns in the same order")
     return files, dd.read_parquet([str(p) for p in files])
@@ -147,17 +148,17 @@ def _check_keys(keys, offsets: list[int], column: str, name: str) -> None:
     meta = pd.Series([], dtype="int64")
     missing = keys.map_partitions(_rows_where, offsets, pd.Series.isna, meta=meta).head(1, npartitions=-1)
     if len(missing):
-        raise InputError(f"{name}: --id column '{column}' is empty in row {missing.iloc[0]}; every record needs a "
-                         "key (fill it in, or leave --id out to key records by row)")
+        raise InputError(f"{name}: `id` column '{column}' is empty in row {missing.iloc[0]}; every record needs a "
+                         "key (fill it in, or leave `id` out to key records by row)", parameters=("id",))
     counts = keys.value_counts()
     repeated = counts[counts > 1].compute()
     if len(repeated):
         value = repeated.index[0]
         rows = keys.map_partitions(_rows_where, offsets, lambda v: v == value, meta=meta).compute()
         first = sorted(rows)[:3]
-        raise InputError(f"{name}: --id column '{column}' has the value '{value}' in rows "
+        raise InputError(f"{name}: `id` column '{column}' has the value '{value}' in rows "
                          f"{', '.join(map(str, first))}; a key must be unique (choose another column, or leave "
-                         "--id out to key records by row)")
+                         "`id` out to key records by row)", parameters=("id",))
 
 
 def _take(frame: pd.DataFrame, picks: list[np.ndarray], partition_info=None) -> pd.DataFrame:
@@ -181,9 +182,6 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
     existing ``distributed.Client`` to use instead (then ``scheduler``, ``workers`` and ``worker_memory`` are
     ignored). Raises :class:`InputError` on bad input; nothing is written then.
     """
-    from investigator.io.tables import MIN_ROWS, Source, Table
-    from investigator.pipeline.scan_model import ScanModel
-
     if options is None:
         options = ScanOptions(**option_values)
     elif option_values:
@@ -191,13 +189,14 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
     check_dask_options(options)
     out = check_out_folder(out)
     if not isinstance(fit_sample, int) or fit_sample < 100:
-        raise InputError(f"--fit-sample must be a whole number of at least 100, not '{fit_sample}'")
+        raise InputError(f"`fit_sample` must be a whole number of at least 100, not '{fit_sample}'",
+                         parameters=("fit_sample",))
     started = datetime.now(UTC).replace(microsecond=0).isoformat()
     progress("opening the dataset", 0.01)
     files, ddf = open_dataset(data)
     if options.id is not None and options.id not in ddf.columns:
-        raise InputError(f"{data}: --id column '{options.id}' not found; columns are: "
-                         f"{', '.join(map(str, ddf.columns[:12]))}")
+        raise InputError(f"{data}: `id` column '{options.id}' not found; columns are: "
+                         f"{', '.join(map(str, ddf.columns[:12]))}", parameters=("id",))
     own = client is None
     if own:
         client, cluster_info = connect(scheduler, workers, worker_memory)
@@ -233,9 +232,6 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
         tmp.mkdir()
         # One task per partition scores it, writes its file and returns its counts and top records, so the
         # results are read once and progress can be shown partition by partition.
-        from dask import delayed
-        from dask.distributed import as_completed
-
         columns = ["row", "key", "consensus", "consensus_z", "votes", "top_features"]
         writes = [delayed(_write_part)(part, str(tmp / SCORES_FILE.format(i)), list(model.fitted_methods), columns, top)
                   for i, part in enumerate(scored)]
@@ -280,8 +276,6 @@ def _combine_summaries(summaries: list[dict], top: int) -> tuple[pd.DataFrame, d
 
 
 def _run_record(model, data, files, lengths, fit_sample, cluster_info, counts, started, out) -> DatasetRunRecord:
-    import dask
-
     total = int(sum(lengths))
     return DatasetRunRecord(
         started=started,

@@ -5,19 +5,23 @@ from __future__ import annotations
 import dataclasses
 import platform
 from datetime import UTC, datetime
+from pathlib import Path
 
 import numpy as np
+import pandas
+import scipy
+import sklearn
 
+from investigator.checks.benford import benford_test
+from investigator.checks.duplicates import duplicates_on, exact_duplicates
+from investigator.checks.limits import load_limits, spec_hits
 from investigator.errors import InputError
 from investigator.io.tables import Table, load_table
-from investigator.methods import METHODS, Isolation, RobustDistance
-from investigator.methods.base import Method
 from investigator.methods.column_rules import ColumnRules
-from investigator.methods.mcd import SAMPLE_ABOVE as MCD_SAMPLE_ABOVE
-from investigator.methods.mcd import FastMCD
-from investigator.methods.neighbors import NeighborSearch
-from investigator.pipeline.combine import combine
+from investigator.methods.hotelling import Hotelling
+from investigator.pipeline.approximations import approximations
 from investigator.pipeline.options import ScanOptions
+from investigator.pipeline.reference import check_columns, clean_reference
 from investigator.pipeline.result import MethodResult, ScanResult
 from investigator.pipeline.run_record import (
     InputRecord,
@@ -28,45 +32,25 @@ from investigator.pipeline.run_record import (
     ReferenceRecord,
     RunRecord,
 )
-from investigator.prepare.features import FeaturePreparer, Features
-from investigator.prepare.roles import NUMERIC, assign_roles
+from investigator.pipeline.scoring import (
+    apply_kinds,
+    build_methods,
+    combine_results,
+    fit_and_score,
+    kinds_fitter,
+    numeric_columns,
+    reference_combined_fence,
+)
+from investigator.pipeline.stability import flag_stability
+from investigator.prepare.features import FeaturePreparer, Features, column_numbers
+from investigator.prepare.roles import assign_roles
 from investigator.progress import Progress, silent
-from investigator.structure.kinds import KindsOfNormal, calibrate_kinds, find_kinds
-
-
-def build_methods(options: ScanOptions, features: Features, notices: list[str],
-                  seed: int | None = None) -> list[Method]:
-    """The configured method objects; robust_distance uses every numeric feature."""
-    seed = options.seed if seed is None else seed
-    cutoff, contamination = options.cutoff, options.contamination
-    built: list[Method] = []
-    for key in options.methods:
-        if key == "robust_distance":
-            # The MCD measures numbers; category rarities are left to the other methods. Discrete and tied
-            # numbers stay: a singular core is regularised (MRCD), not dropped.
-            use = numeric_columns(features)
-            left = [s.name for s in features.specs if s.role != NUMERIC]
-            if not len(use):
-                notices.append("robust_distance did not run: it needs at least one numeric feature")
-                continue
-            if left:
-                notices.append(
-                    f"robust_distance uses the {len(use)} numeric features of {len(features.specs)}; the "
-                    f"categories ({', '.join(left)}) are used by the other methods"
-                )
-            built.append(RobustDistance(seed=seed, columns=use, exact=options.exact, cutoff=cutoff,
-                                        contamination=contamination))
-        elif key == "isolation":
-            built.append(Isolation(seed=seed, cutoff=cutoff, contamination=contamination))
-        else:
-            built.append(METHODS[key](cutoff=cutoff, contamination=contamination))
-    if not built:
-        raise InputError("no method could run on these features; choose other features or methods")
-    return built
-
-
-def numeric_columns(features: Features) -> np.ndarray:
-    return np.array([j for j, s in enumerate(features.specs) if s.role == NUMERIC], dtype=int)
+from investigator.review.matching import match_store
+from investigator.review.store import ReviewStore, default_store_path
+from investigator.structure.groups import find_groups
+from investigator.structure.kinds import KindsOfNormal, find_kinds
+from investigator.structure.map import embed
+from investigator.version import __version__
 
 
 def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
@@ -81,8 +65,6 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     log = options.log if isinstance(options.log, str) else list(options.log)
     ref_info: dict = {}  # reference mode: the reference's columns, phase I cleaning and unseen levels
     if reference is not None:
-        from investigator.pipeline.reference import check_columns, clean_reference
-
         notices += [f"reference: {n}" for n in reference.notices]
         ref_info = check_columns(table, reference, columns, notices)
         preparer = FeaturePreparer(log=log).fit(reference, columns)
@@ -99,7 +81,7 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     if n <= p:
         raise InputError(
             f"{fit_table.name}: {n} rows but {p} features; a scan needs more rows than features "
-            "(leave some out with --exclude, or add rows)"
+            "(leave some out with `exclude`, or add rows)", parameters=("exclude",)
         )
     methods = build_methods(options, ref_features, notices)
     if reference is not None:
@@ -130,30 +112,22 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     if reference is None:
         progress("groups", 0.93)
         kinds, results, combination = _kinds_of_normal(features, results, combination, options, notices)
-        from investigator.structure.groups import find_groups
-
         grouping = find_groups(features.values, combination.flagged, seed=options.seed,
                                kind_labels=None if kinds is None else kinds.labels)
         notices += list(grouping.notices)
         if options.map != "none":
-            from investigator.structure.map import embed
-
             progress("map", 0.95)
             mapped = embed(features.values, options.map, seed=options.seed, keep=combination.flagged)
             coords = mapped.coords
             notices += list(mapped.notices)
     stability = None
     if options.resamples:
-        from investigator.pipeline.stability import flag_stability
-
         stability = flag_stability(features, options, progress, X_ref=X_ref, kinds=kinds)
     rules = ColumnRules().fit(ref_features)
     for name in rules.skipped_:
         notices.append(f"column '{name}': MAD is zero, so the modified z-score rule is skipped there")
     hits = rules.hits(features)
     extras = _extras(table, options, notices)
-    from investigator.pipeline.approximations import approximations
-
     n_ordinary = n if reference is not None else int((~combination.flagged).sum())
     run = RunRecord(
         started=started,
@@ -201,12 +175,6 @@ def _reference_record(reference: Table, info: dict) -> ReferenceRecord:
                            info["extra_columns"], info["missing_columns"], info["phase_i"], info["unseen_levels"])
 
 
-def kinds_fitter(options: ScanOptions, seed: int | None = None) -> FastMCD:
-    """The MCD the kinds of normal are fitted with (robust_distance's configuration)."""
-    return FastMCD(seed=options.seed if seed is None else seed,
-                   sample_above=None if options.exact else MCD_SAMPLE_ABOVE)
-
-
 def _kinds_of_normal(features: Features, results: dict, combination, options: ScanOptions,
                      notices: list[str]):
     """Find the kinds of normal; with two or more, every method judges each record within its kind
@@ -222,36 +190,10 @@ def _kinds_of_normal(features: Features, results: dict, combination, options: Sc
     return kinds, results, combine_results(results, options)
 
 
-def apply_kinds(results: dict, kinds: KindsOfNormal, X: np.ndarray, labels: np.ndarray | None = None,
-                calibrate_on: np.ndarray | None = None) -> dict:
-    """New results with each record judged within its kind: robust_distance's score is the distance to its
-    kind's fit, and every method's z-values, flags and cutoffs come from a per-kind calibration. The
-    calibration is fitted here on the records at ``calibrate_on`` (default: all of them) unless a result
-    already carries one (scoring new records with a fitted model). ``labels``: the records' kinds
-    (default: the kinds' own labels). Nothing is changed in place."""
-    labels = kinds.labels if labels is None else labels
-    out = {}
-    for key, r in results.items():
-        if not r.method.votes:  # hotelling: a classical fit against the reference, no kinds
-            out[key] = r
-            continue
-        if key == "robust_distance":
-            scores = kinds.distances(X)[np.arange(len(X)), labels]
-        else:
-            scores = r.scores
-        calibration = r.calibration
-        if calibration is None:
-            rows = np.arange(len(X)) if calibrate_on is None else calibrate_on
-            calibration = calibrate_kinds(r.method, scores[rows], labels[rows])
-        z, flags, cutoffs = calibration.apply(r.method, scores, labels)
-        out[key] = MethodResult(key, r.method, scores, flags, z, cutoffs, calibration.far(labels), calibration)
-    return out
 
 
 def _reference_only_methods(options: ScanOptions, methods: list) -> list:
     """Hotelling T-squared is a reference-mode method; it uses the robust distance's features."""
-    from investigator.methods.hotelling import Hotelling
-
     rd = next((m for m in methods if m.key == "robust_distance"), None)
     if rd is None:
         return []
@@ -281,20 +223,16 @@ def _extras(table: Table, options: ScanOptions, notices: list[str]) -> dict:
     """The trade's own screens (Benford, duplicates) and specification limits, on the scanned records."""
     screens: dict = {}
     if options.digits:
-        from investigator.checks.benford import benford_test
-        from investigator.prepare.features import column_numbers
-
         screens["benford"] = {}
         for col in options.digits:
             if col not in table.frame.columns:
-                raise InputError(f"{table.name}: --digits names column '{col}', which is not in the file")
+                raise InputError(f"{table.name}: `digits` names column '{col}', which is not in the file",
+                                 parameters=("digits",))
             values = column_numbers(table.frame[col])
             screens["benford"][col] = {
                 "first_digit": benford_test(values, 1, name=col).as_dict(),
                 "first_two_digits": benford_test(values, 2, name=col).as_dict(),
             }
-    from investigator.checks.duplicates import duplicates_on, exact_duplicates
-
     exclude = [table.key_column] if table.key_column else []
     exact = exact_duplicates(table.frame, exclude=exclude)
     if exact.n_groups:
@@ -305,74 +243,11 @@ def _extras(table: Table, options: ScanOptions, notices: list[str]) -> dict:
         screens["duplicates"] = duplicates_on(table.frame, list(options.duplicates)).as_dict()
     out_of_spec = None
     if options.limits:
-        from investigator.checks.limits import load_limits, spec_hits
-
         out_of_spec = spec_hits(table, load_limits(options.limits, table))
     return {"screens": screens, "out_of_spec": out_of_spec}
 
 
-def fit_and_score(methods: list, X: np.ndarray, options: ScanOptions, reference: np.ndarray | None = None,
-                  seed: int | None = None, progress: Progress = silent, X_ref: np.ndarray | None = None):
-    """Fit every method on reference records and score all records of ``X``.
-
-    The reference is either the rows ``reference`` of X (default: all of X; a record is never its own
-    neighbour), or a separate matrix ``X_ref`` (novelty scoring). Returns the per-method results, the
-    neighbour search and the records' neighbour graph.
-    """
-    separate = X_ref is not None
-    R = X_ref if X_ref is not None else (X if reference is None else X[reference])
-    plain = not separate and reference is None  # a plain scan: the records are the reference
-    k = max((m.needs_neighbors for m in methods), default=0)
-    search = graph = None
-    if k:
-        search = NeighborSearch(k, exact=options.exact, seed=options.seed if seed is None else seed).fit(R)
-        if plain and search.mode_ == "exact":
-            graph = search.reference_graph_
-        else:
-            graph = search.query(X, same_table=not separate)
-    results: dict[str, MethodResult] = {}
-    for i, method in enumerate(methods):
-        progress(method.key, 0.2 + 0.7 * i / len(methods))
-        method.fit(R, search if method.needs_neighbors else None)
-        if plain and (not method.needs_neighbors or (search is not None and graph is search.reference_graph_)):
-            scores = method.reference_scores_.copy()
-        else:
-            scores = method.score(X, graph) if method.needs_neighbors else method.score(X)
-        results[method.key] = MethodResult.overall(method, scores)
-    return results, search, graph
-
-
-def combine_results(results: dict[str, MethodResult], options: ScanOptions, *, by_rank: bool = True,
-                    combined_far: float | None = None):
-    """The combination of the methods' results. ``by_rank=False`` leaves out the ranking that
-    ``contamination`` flags by (a block of a larger dataset applies the fitted threshold instead).
-    ``combined_far``: the far-out level of the combined evidence, fitted on the reference records (default:
-    on the records combined, which in a plain scan are the reference)."""
-    # hotelling is reported beside the others but does not vote: it measures the same Mahalanobis distance
-    # as robust_distance with a classical fit, and would count that view twice.
-    voting = {k: r for k, r in results.items() if r.method.votes}
-    return combine({k: r.z for k, r in voting.items()}, {k: r.flags for k, r in voting.items()},
-                   {k: r.far for k, r in voting.items()}, options.contamination if by_rank else None,
-                   cutoff=options.cutoff, combined_far=combined_far)
-
-
-def reference_combined_fence(results: dict[str, MethodResult]) -> float:
-    """The far-out level of the combined evidence among the reference records themselves (novelty
-    scoring: new records must not set the level they are judged by)."""
-    from investigator.pipeline.combine import combined_fence, trimmed_mean
-
-    voting = [r.method for r in results.values() if r.method.votes]
-    Z = np.column_stack([m.standardise(m.reference_scores_) for m in voting])
-    return combined_fence(trimmed_mean(Z))
-
-
 def _versions() -> dict:
-    import pandas
-    import scipy
-    import sklearn
-
-    from investigator import __version__
-
     return {"investigator": __version__, "python": platform.python_version(), "numpy": np.__version__,
             "pandas": pandas.__version__, "scipy": scipy.__version__, "scikit-learn": sklearn.__version__}
 
@@ -398,19 +273,12 @@ def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanRes
 def attach_verdicts(result: ScanResult, data, store=None) -> ScanResult:
     """Add the current verdict and note of each record when a review store exists (``store`` or the
     default beside the data file); a store is only read here, never created."""
-    from pathlib import Path
-
-    from investigator.review.store import default_store_path
-
     if store is None:
         if not isinstance(data, str | Path):
             return result
         store = default_store_path(data)
         if not Path(store).exists():
             return result
-    from investigator.review.matching import match_store
-    from investigator.review.store import ReviewStore
-
     with ReviewStore(store, create=False) as review:
         matching = match_store(result.table, review)
     result.verdicts, result.notes = matching.verdicts(), matching.notes()

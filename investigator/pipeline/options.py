@@ -10,14 +10,15 @@ from investigator.methods import METHOD_KEYS
 MAP_METHODS = ("none", "auto", "umap", "pca")
 
 
-def _names(value, option: str) -> tuple[str, ...] | None:
+def _names(value, parameter: str) -> tuple[str, ...] | None:
     if value is None:
         return None
     if isinstance(value, str):
         value = value.split(",")
     names = tuple(str(v).strip() for v in value if str(v).strip())
     if not names:
-        raise InputError(f"{option} is empty; give one or more column names separated by commas")
+        raise InputError(f"`{parameter}` is empty; give one or more column names separated by commas",
+                         parameters=(parameter,))
     return names
 
 
@@ -44,43 +45,48 @@ class ScanOptions:
 
     def __post_init__(self) -> None:
         set_ = object.__setattr__
-        set_(self, "features", _names(self.features, "--features"))
-        set_(self, "digits", _names(self.digits, "--digits"))
-        set_(self, "duplicates", _names(self.duplicates, "--duplicates"))
+        set_(self, "features", _names(self.features, "features"))
+        set_(self, "digits", _names(self.digits, "digits"))
+        set_(self, "duplicates", _names(self.duplicates, "duplicates"))
         if self.limits is not None:
             set_(self, "limits", str(self.limits))
-        set_(self, "exclude", _names(self.exclude, "--exclude"))
-        methods = _names(self.methods, "--methods") or METHOD_KEYS  # None: not given, as for --features
+        set_(self, "exclude", _names(self.exclude, "exclude"))
+        methods = _names(self.methods, "methods") or METHOD_KEYS  # None: not given, as for features
         unknown = [m for m in methods if m not in METHOD_KEYS]
         if unknown:
             raise InputError(
-                f"--methods: unknown method '{unknown[0]}'; choose from {', '.join(METHOD_KEYS)}"
+                f"`methods`: unknown method '{unknown[0]}'; choose from {', '.join(METHOD_KEYS)}",
+                parameters=("methods",),
             )
         # Keep the canonical order so the same set of methods always gives the same output.
         set_(self, "methods", tuple(m for m in METHOD_KEYS if m in methods))
         if isinstance(self.log, str) and self.log.strip().lower() in {"auto", "none"}:
             set_(self, "log", self.log.strip().lower())
         else:
-            set_(self, "log", _names(self.log, "--log"))
+            set_(self, "log", _names(self.log, "log"))
         try:
             set_(self, "cutoff", float(self.cutoff))
         except (TypeError, ValueError):
-            raise InputError(f"--cutoff must be a number between 0.5 and 1, not '{self.cutoff}'") from None
+            raise InputError(f"`cutoff` must be a number between 0.5 and 1, not '{self.cutoff}'",
+                             parameters=("cutoff",)) from None
         if not 0.5 < self.cutoff < 1:
             raise InputError(
-                f"--cutoff must be between 0.5 and 1 (a quantile such as 0.975), not {self.cutoff:g}"
+                f"`cutoff` must be between 0.5 and 1 (a quantile such as 0.975), not {self.cutoff:g}",
+                parameters=("cutoff",),
             )
         if self.contamination is not None:
             try:
                 set_(self, "contamination", float(self.contamination))
             except (TypeError, ValueError):
                 raise InputError(
-                    f"--contamination must be a share between 0 and 0.5, not '{self.contamination}'"
+                    f"`contamination` must be a share between 0 and 0.5, not '{self.contamination}'",
+                    parameters=("contamination",),
                 ) from None
             if not 0 < self.contamination <= 0.5:
                 raise InputError(
-                    f"--contamination must be a share above 0 and at most 0.5 (e.g. 0.01), not "
-                    f"{self.contamination:g}"
+                    f"`contamination` must be a share above 0 and at most 0.5 (e.g. 0.01), not "
+                    f"{self.contamination:g}",
+                    parameters=("contamination",),
                 )
         if isinstance(self.seed, bool) or not isinstance(self.seed, int) or self.seed < 0:
             try:
@@ -88,7 +94,7 @@ class ScanOptions:
             except ValueError:
                 seed = -1
             if seed < 0:
-                raise InputError(f"--seed must be a whole number >= 0, not '{self.seed}'")
+                raise InputError(f"`seed` must be a whole number >= 0, not '{self.seed}'", parameters=("seed",))
             set_(self, "seed", seed)
 
         try:
@@ -97,11 +103,12 @@ class ScanOptions:
             resamples = -1
         fractional = isinstance(self.resamples, float) and not float(self.resamples).is_integer()
         if not 0 <= resamples <= 1000 or fractional:
-            raise InputError(f"--resamples must be a whole number from 0 to 1000, not '{self.resamples}'")
+            raise InputError(f"`resamples` must be a whole number from 0 to 1000, not '{self.resamples}'",
+                             parameters=("resamples",))
         set_(self, "resamples", resamples)
 
         if self.map not in MAP_METHODS:
-            raise InputError(f"--map must be one of {', '.join(MAP_METHODS)}, not '{self.map}'")
+            raise InputError(f"`map` must be one of {', '.join(MAP_METHODS)}, not '{self.map}'", parameters=("map",))
 
     def as_dict(self) -> dict:
         out = asdict(self)

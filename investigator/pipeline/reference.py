@@ -12,7 +12,8 @@ import dataclasses
 import numpy as np
 
 from investigator.errors import InputError
-from investigator.io.tables import Table, _list
+from investigator.io.tables import Table, name_list
+from investigator.methods.robust_distance import RobustDistance
 from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.run_record import PhaseOneRecord, RecordRef
 from investigator.prepare.features import FeaturePreparer, column_numbers
@@ -29,7 +30,8 @@ def check_columns(table: Table, reference: Table, columns: list[ColumnInfo], not
         raise InputError(
             f"{table.name}: lacks column '{missing[0]}', a feature of the reference {reference.name}"
             + (f" (and {len(missing) - 1} more)" if len(missing) > 1 else "")
-            + f"; add it, or leave it out of both with --exclude {','.join(missing)}"
+            + f"; add it, or leave it out of both with exclude={','.join(missing)}",
+            parameters=("exclude",),
         )
     for info in features:
         if info.role != NUMERIC:
@@ -41,22 +43,21 @@ def check_columns(table: Table, reference: Table, columns: list[ColumnInfo], not
         if present.sum() and len(bad) > 0.5 * present.sum():
             raise InputError(
                 f"{table.name}: column '{info.name}' holds numbers in the reference but text here (row "
-                f"{bad[0] + 1}: '{values.iloc[bad[0]]}'); fix the column or leave it out with --exclude"
+                f"{bad[0] + 1}: '{values.iloc[bad[0]]}'); fix the column or leave it out with `exclude`",
+                parameters=("exclude",),
             )
     extra = [c for c in table.frame.columns if c not in set(ref_cols)]
     if extra:
-        notices.append(f"{table.name} has columns the reference does not, left out: {_list(extra)}")
+        notices.append(f"{table.name} has columns the reference does not, left out: {name_list(extra)}")
     absent = [c for c in ref_cols if c not in new_cols and c not in {f.name for f in features}]
     if absent:
-        notices.append(f"{table.name} lacks reference columns that are not features: {_list(absent)}")
+        notices.append(f"{table.name} lacks reference columns that are not features: {name_list(absent)}")
     return {"rows": reference.n_rows, "extra_columns": extra, "missing_columns": absent}
 
 
 def clean_reference(reference: Table, preparer: FeaturePreparer, options: ScanOptions,
                     notices: list[str]) -> tuple[Table, PhaseOneRecord]:
     """Phase I: the reference records the robust fit flags, listed, and left out unless asked to keep them."""
-    from investigator.methods.robust_distance import RobustDistance
-
     features = preparer.transform(reference)
     use = [j for j, s in enumerate(features.specs) if s.role == NUMERIC]
     if not use or len(reference.frame) <= len(use) + 1:

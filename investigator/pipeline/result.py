@@ -14,13 +14,16 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from investigator.errors import InputError
 from investigator.explain.explainer import Explainer
 from investigator.explain.explanation import Explanation
 from investigator.io.tables import Table
 from investigator.methods.base import Method, gaussian_scaling
 from investigator.methods.column_rules import ColumnRules
 from investigator.methods.neighbors import NeighborGraph, NeighborSearch
-from investigator.pipeline.combine import Combination
+from investigator.output.records import write_result
+from investigator.output.summary import summary_text
+from investigator.pipeline.combine import Combination, ranking
 from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.run_record import RunRecord
 from investigator.prepare.features import FeaturePreparer, Features
@@ -154,28 +157,25 @@ class ScanResult:
 
     def ranking(self) -> np.ndarray:
         """Record positions (0-based) ordered by consensus, highest first; ties keep file order."""
-        from investigator.pipeline.combine import ranking
-
         return ranking(self.combination.z)
 
     def position(self, row: int | None = None, key=None) -> int:
         """0-based position of a record given its 1-based ``row`` or its ``key``."""
-        from investigator.errors import InputError
-
         if row is not None:
             if not 1 <= int(row) <= self.n_records:
-                raise InputError(f"--row {row} is out of range; rows run from 1 to {self.n_records}")
+                raise InputError(f"row={row} is out of range; rows run from 1 to {self.n_records}",
+                                 parameters=("row",))
             return int(row) - 1
         keys = [str(k) for k in self.keys]
         if str(key) not in keys:
-            raise InputError(f"--key '{key}' not found in {self.table.name}")
+            raise InputError(f"key='{key}' not found in {self.table.name}", parameters=("key",))
         return keys.index(str(key))
 
     # -- explanations (``explainer``) ----------------------------------------------------------------
     def explain(self, row_or_key=None, *, row: int | None = None, key=None, peers: int = 5) -> Explanation:
         """Why a record stands out: contributions per method, the combined view, peers, the smallest
         change that would make it ordinary, and stability. ``row_or_key`` is the key when the scan has an
-        --id column, otherwise the 1-based row (which is then the key). ``.to_dict()`` gives the JSON form."""
+        ``id`` column, otherwise the 1-based row (which is then the key). ``.to_dict()`` gives the JSON form."""
         if row is None and key is None:
             if row_or_key is None:
                 raise TypeError("explain() needs a row or a key")
@@ -208,11 +208,7 @@ class ScanResult:
 
     def write(self, path: str | Path) -> Path:
         """Write the result; the format follows the extension (.json, .csv, .parquet)."""
-        from investigator.output.records import write_result
-
         return write_result(self, Path(path))
 
     def summary(self, top: int = 10) -> str:
-        from investigator.output.summary import summary_text
-
         return summary_text(self, top=top)

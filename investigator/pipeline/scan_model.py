@@ -25,19 +25,23 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
+from investigator.checks.limits import load_limits, spec_hits
 from investigator.explain.explainer import Explainer
 from investigator.explain.explanation import Typical
-from investigator.explain.view import Pool
+from investigator.explain.view import Pool, peer_candidates
 from investigator.io.tables import Source, Table
 from investigator.methods.base import Method
 from investigator.methods.column_rules import ColumnRules
 from investigator.methods.neighbors import NeighborSearch
 from investigator.pipeline.combine import TOP_SHARE, rule_sentence
+from investigator.pipeline.engine import run_scan
 from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.result import MethodResult, ScanResult
 from investigator.pipeline.run_record import RunRecord
+from investigator.pipeline.scoring import apply_kinds, combine_results
 from investigator.prepare.features import FeaturePreparer
 from investigator.prepare.roles import ColumnInfo
+from investigator.progress import silent
 from investigator.structure.kinds import KindCalibration, KindsOfNormal
 
 if TYPE_CHECKING:
@@ -74,10 +78,6 @@ class ScanModel:
     @classmethod
     def fit(cls, sample: Table, options: ScanOptions, progress=None) -> ScanModel:
         """Fit on ``sample``; its ``rows`` must be the records' 1-based rows in the whole dataset."""
-        from investigator.explain.view import peer_candidates
-        from investigator.pipeline.engine import run_scan
-        from investigator.progress import silent
-
         fit = run_scan(sample, options, progress or silent)
         search = fit.neighbors
         pool = fit.explainer.pool
@@ -93,8 +93,6 @@ class ScanModel:
             threshold = float(fit.combination.z[fit.flagged].min())
         limits = None
         if options.limits:
-            from investigator.checks.limits import load_limits
-
             limits = load_limits(options.limits, sample)
         calibrations = {k: r.calibration for k, r in fit.method_results.items() if r.calibration is not None}
         return cls(options, fit.columns, fit.preparer, search, {k: r.method for k, r in fit.method_results.items()},
@@ -103,8 +101,6 @@ class ScanModel:
 
     def score(self, frame: pd.DataFrame, first_row: int) -> ScanResult:
         """Score the records of ``frame``, which are rows first_row + 1, first_row + 2, ... of the dataset."""
-        from investigator.pipeline.engine import apply_kinds, combine_results
-
         frame = frame.reset_index(drop=True)
         rows0 = first_row + np.arange(len(frame))
         table = Table(frame, self.source, self.key_column, [], rows0 + 1)
@@ -130,8 +126,6 @@ class ScanModel:
                                    self.options.contamination))
         out_of_spec = None
         if self.limits is not None:
-            from investigator.checks.limits import spec_hits
-
             out_of_spec = spec_hits(table, self.limits)
         # The block's run record is the fit's: everything that decided its scores was fitted there.
         result = ScanResult(table, self.options, self.columns, features, self.preparer, self.search, graph,

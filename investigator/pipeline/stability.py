@@ -14,6 +14,7 @@ from __future__ import annotations
 import numpy as np
 
 from investigator import sampling
+from investigator.pipeline.scoring import apply_kinds, build_methods, combine_results, fit_and_score, kinds_fitter
 from investigator.progress import Progress, silent
 
 SUBSAMPLE_SHARE = 0.8
@@ -24,8 +25,6 @@ def flag_stability(features, options, progress: Progress = silent, X_ref: np.nda
     """Share of resampled runs flagging each record; with ``X_ref`` (reference mode) the subsamples are drawn
     from the reference records and every record of ``features`` is scored against them. ``kinds``: the
     scan's kinds of normal, refitted on each subsample's members and calibrated on them."""
-    from investigator.pipeline.engine import apply_kinds, build_methods, combine_results, fit_and_score, kinds_fitter
-
     X = features.values
     pool = X if X_ref is None else X_ref
     n = len(pool)

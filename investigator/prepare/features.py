@@ -167,8 +167,8 @@ class FeaturePreparer:
         for col in log_cols:
             if col not in names or names[col].role != NUMERIC:
                 raise InputError(
-                    f"{table.name}: --log names '{col}', which is not a numeric feature; log applies to "
-                    "numeric feature columns only"
+                    f"{table.name}: `log` names '{col}', which is not a numeric feature; log applies to "
+                    "numeric feature columns only", parameters=("log",)
                 )
         seen: dict[int, str] = {}
         for info in chosen:
@@ -186,7 +186,7 @@ class FeaturePreparer:
         if not self.specs_:
             raise InputError(
                 f"{table.name}: no usable feature columns (numbers or categories with more than one value); "
-                "name the columns to use with --features"
+                "name the columns to use with `features`", parameters=("features",)
             )
         return self
 
@@ -250,8 +250,8 @@ class FeaturePreparer:
         if forced:
             if low < 0:
                 raise InputError(
-                    f"{table.name}: --log names '{spec.name}', which has negative values (lowest {low:g}); "
-                    "a log transform needs values >= 0: drop it from --log"
+                    f"{table.name}: `log` names '{spec.name}', which has negative values (lowest {low:g}); "
+                    "a log transform needs values >= 0: drop it from `log`", parameters=("log",)
                 )
             self._set_log(spec, good)
             spec.decision = "log (asked for)"

@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from investigator.errors import InputError
-from investigator.io.tables import Table, _list
+from investigator.io.tables import Table, name_list
 
 NUMERIC = "numeric"
 CATEGORICAL = "categorical"
@@ -129,16 +129,17 @@ def assign_roles(
 ) -> list[ColumnInfo]:
     """Roles for every column of ``table``, with ``features``/``exclude`` applied on top of the inference."""
     columns = list(table.frame.columns)
-    for option, names in (("--features", features), ("--exclude", exclude)):
+    for parameter, names in (("features", features), ("exclude", exclude)):
         unknown = [c for c in names or [] if c not in columns]
         if unknown:
             raise InputError(
-                f"{table.name}: {option} names column '{unknown[0]}', which is not in the file; "
-                f"columns are: {_list(columns)}"
+                f"{table.name}: `{parameter}` names column '{unknown[0]}', which is not in the file; "
+                f"columns are: {name_list(columns)}", parameters=(parameter,)
             )
     if table.key_column is not None and table.key_column in (features or []):
         raise InputError(
-            f"{table.name}: column '{table.key_column}' is the --id key and cannot also be a feature"
+            f"{table.name}: column '{table.key_column}' is the `id` key and cannot also be a feature",
+            parameters=("id",),
         )
     infos = []
     for name in columns:
@@ -159,8 +160,8 @@ def assign_roles(
 def _force_feature(info: ColumnInfo, table: Table) -> None:
     if info.role == EMPTY:
         raise InputError(
-            f"{table.name}: --features names column '{info.name}', which has no values; drop it from "
-            "--features"
+            f"{table.name}: `features` names column '{info.name}', which has no values; drop it from "
+            "`features`", parameters=("features",)
         )
     if info.is_feature:
         info.reason += "; named in --features"

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 from investigator.explain.explanation import Explanation, NearestOrdinary
 from investigator.explain.view import top_features_text
-from investigator.output.explanation import _fmt
+from investigator.output.explanation import format_value
 
 SIGNS = {"higher": "+", "lower": "-", "typical": "~", "rarer": "rare", "common": "common"}
 
@@ -51,15 +51,16 @@ def build_cases(result, review, limit: int | None = None) -> list[Case]:
 
 def column_hits_text(hits: list[dict]) -> str:
     """E.g. "amount: boxplot_fence (2,403 above 180.5)"."""
-    return "; ".join(f"{h['column']}: {h['rule']} ({_fmt(h['value'])} "
-                     f"{'above' if h['side'] == 'upper' else 'below'} {_fmt(h['limit'])})" for h in hits)
+    return "; ".join(f"{h['column']}: {h['rule']} ({format_value(h['value'])} "
+                     f"{'above' if h['side'] == 'upper' else 'below'} {format_value(h['limit'])})" for h in hits)
 
 
 def nearest_text(nearest: NearestOrdinary | None) -> str:
     """E.g. "amount 240.3 instead of 2,403 (robust distance 60.5 -> 11.1, cutoff 11.14)"."""
     if not nearest:
         return ""
-    change = " and ".join(f"{c.feature} {_fmt(c.after)} instead of {_fmt(c.before)}" for c in nearest.changes)
+    change = " and ".join(f"{c.feature} {format_value(c.after)} instead of {format_value(c.before)}"
+                          for c in nearest.changes)
     return (f"{change} (robust distance {nearest.distance_before:.1f} -> {nearest.distance_after:.1f}, "
             f"cutoff {nearest.cutoff:.2f})")
 

@@ -10,10 +10,11 @@ from __future__ import annotations
 
 import base64
 
+import matplotlib
 import numpy as np
 
 from investigator.explain.explanation import Peer, PeerDifference
-from investigator.output.explanation import _fmt, _headline, _typical
+from investigator.output.explanation import format_value, headline_text, typical_text
 from investigator.output.summary import CAUTION
 from investigator.report import plots
 from investigator.report.cases import Case, build_cases, column_hits_text, nearest_text, top_text
@@ -137,7 +138,7 @@ def _verdict_text(match) -> Safe:
 def _kv(mapping: dict | None) -> str:
     if not mapping:
         return ""
-    return ", ".join(f"{k}={_fmt(v) if isinstance(v, float) else v}" for k, v in mapping.items())
+    return ", ".join(f"{k}={format_value(v) if isinstance(v, float) else v}" for k, v in mapping.items())
 
 
 # -- summary -------------------------------------------------------------------------------------------------
@@ -237,8 +238,8 @@ def _scanned(result) -> Safe:
     parts.append(tag("h3", "Features and how each was prepared"))
     parts.append(table(
         ["feature", "role", "transform", "decision", "missing", "filled with", "centre", "scale"],
-        [[f.name, f.role, f.transform, f.decision, f.missing, _fmt(f.fill), _fmt(f.center),
-          f"{_fmt(f.scale)} ({f.scale_method})"]
+        [[f.name, f.role, f.transform, f.decision, f.missing, format_value(f.fill), format_value(f.center),
+          f"{format_value(f.scale)} ({f.scale_method})"]
          for f in run.features], numeric=(4, 5, 6)))
     left = [c for c in run.columns if c.name not in set(result.features.names)]
     if left:
@@ -253,13 +254,11 @@ def _scanned(result) -> Safe:
 
 
 def _how(result) -> Safe:
-    import matplotlib
-
     run = result.run
     parts = [tag("p", "Combination rule: " + run.rule, class_="rule")]
     parts.append(table(
         ["method", "score", "cutoff", "cutoff rule", "parameters"],
-        [[k, m.score, _fmt(m.cutoff), m.cutoff_rule, _kv(m.parameters)] for k, m in run.method_fits.items()],
+        [[k, m.score, format_value(m.cutoff), m.cutoff_rule, _kv(m.parameters)] for k, m in run.method_fits.items()],
         numeric=(2,)))
     if run.neighbors:
         parts.append(tag("p", "Neighbour search: " + _kv(run.neighbors.to_dict())))  # every field, as in JSON
@@ -354,7 +353,7 @@ def _extras(result) -> Safe:
     for col, tests in (screens.get("benford") or {}).items():
         for label, key in (("first digit", "first_digit"), ("first two digits", "first_two_digits")):
             t = tests[key]
-            parts.append(tag("p", f"Benford's law, {label}, {col}: MAD {_fmt(t['mad'])} ({t['conformity']}), "
+            parts.append(tag("p", f"Benford's law, {label}, {col}: MAD {format_value(t['mad'])} ({t['conformity']}), "
                                   f"{t['used']:,} values; most over-represented: "
                                   f"{', '.join(map(str, t['excess_digits']))}."
                                   + (" " + "; ".join(t["warnings"]) if t.get("warnings") else "")))
@@ -404,7 +403,7 @@ def _profile(profile: tuple[FeatureProfile, ...]) -> Safe:
 
 def _cell(value) -> str:
     if isinstance(value, float):
-        return _fmt(value)
+        return format_value(value)
     if isinstance(value, list | tuple):
         return ", ".join(_cell(v) for v in value)
     return "" if value is None else str(value)
@@ -530,7 +529,7 @@ def _peer_value(difference: PeerDifference, peers: tuple[Peer, ...]):
 def _case(result, c: Case) -> Safe:
     e, r = c.explanation, c.record
     number = f"{c.rank}. " if c.rank is not None else ""
-    parts = [tag("h3", f"{number}{_who(r)}", id=c.anchor), tag("p", _headline(e))]
+    parts = [tag("h3", f"{number}{_who(r)}", id=c.anchor), tag("p", headline_text(e))]
     if c.match is not None:
         entry = c.match.entry
         text = [tag("span", entry.verdict, class_="verdict"), f" by {entry.reviewer} at {entry.at}"]
@@ -553,15 +552,15 @@ def _case(result, c: Case) -> Safe:
             parts.append(tag("p", f"{key.capitalize()}: {r[key]}"))
     parts.append(table(
         ["method", "score", "cutoff", "above", "top contributions"],
-        [[k, _fmt(m.score), _fmt(m.cutoff), "yes" if m.flag else "no",
+        [[k, format_value(m.score), format_value(m.cutoff), "yes" if m.flag else "no",
           ", ".join(f"{x.feature} {x.share:.0%}" for x in e.contributions_of(k)[:3])]
          for k, m in e.method_scores.items()], numeric=(1, 2)))
     if e.top_features:
         parts.append(tag("h4", "Features that stand out (across methods)"))
         parts.append(table(
             ["feature", "value", "direction", "typical (median, IQR)", "robust z", "share", "methods"],
-            [[t.feature, _fmt(t.value) + (" (imputed)" if t.imputed else ""), t.direction,
-              _typical(t.typical), f"{t.robust_z:.1f}", share_bar(t.share), ", ".join(t.methods)]
+            [[t.feature, format_value(t.value) + (" (imputed)" if t.imputed else ""), t.direction,
+              typical_text(t.typical), f"{t.robust_z:.1f}", share_bar(t.share), ", ".join(t.methods)]
              for t in e.top_features], numeric=(1, 4), nowrap=(4, 5)))
     if r["column_hits"]:
         parts.append(tag("p", "Column hits: " + column_hits_text(r["column_hits"])))
@@ -571,14 +570,14 @@ def _case(result, c: Case) -> Safe:
         own = {t.feature: t.value for t in e.top_features}
         source = "reference" if e.peers.source == "reference" else "unflagged"
         parts.append(tag("h4", f"Peers: the {len(peers)} nearest {source} records"))
-        rows = [[tag("strong", "this record"), r["key"], "", *(_fmt(own.get(n)) for n in names)]]
-        rows += [[p.row, p.key, f"{p.distance:.2f}", *(_fmt(p.values.get(n)) for n in names)] for p in peers]
+        rows = [[tag("strong", "this record"), r["key"], "", *(format_value(own.get(n)) for n in names)]]
+        rows += [[p.row, p.key, f"{p.distance:.2f}", *(format_value(p.values.get(n)) for n in names)] for p in peers]
         parts.append(table(["row", "key", "distance", *names], rows, numeric=range(0, 3 + len(names)),
                            nowrap=(1,)))
         diffs = e.peers.differences
         if diffs:
             parts.append(tag("p", "Differences from the peers that matter most: " + "; ".join(
-                f"{d.feature} {_fmt(d.value)} vs {_fmt(_peer_value(d, peers))}" for d in diffs) + "."))
+                f"{d.feature} {format_value(d.value)} vs {format_value(_peer_value(d, peers))}" for d in diffs) + "."))
     return tag("article", *parts, class_="case")
 
 

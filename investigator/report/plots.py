@@ -9,7 +9,10 @@ from __future__ import annotations
 
 import io
 
+import matplotlib.style
 import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
 
 ORDINARY = "#8da0b3"   # records not flagged
 FLAGGED = "#c0392b"    # flagged records (the browser test looks for this colour on the page)
@@ -32,9 +35,6 @@ def plain(text: object, width: int = 40) -> str:
 
 
 def _figure(width: float, height: float):
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
     fig = Figure(figsize=(width, height), dpi=DPI, layout="constrained")
     FigureCanvasAgg(fig)
     return fig
@@ -48,8 +48,6 @@ def _png(fig) -> bytes:
 
 def _styled(draw):
     """Run a drawing function under matplotlib's default style, so a user's matplotlibrc changes nothing."""
-    import matplotlib.style
-
     def run(*args, **kwargs) -> bytes:
         with matplotlib.style.context("default"):
             return draw(*args, **kwargs)

@@ -6,6 +6,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from investigator.errors import InputError
+from investigator.review.matching import match_entries
+from investigator.review.store import ReviewStore, default_store_path
+from investigator.review.verdicts import case_rows
 
 
 @dataclass
@@ -36,13 +39,11 @@ class Review:
 def store_for(result, store: str | Path | None = None) -> Path | None:
     """The store to read: ``store`` if given (it must exist), else the one the scan read, else the default
     beside the data file; None for a data frame."""
-    from investigator.review.store import default_store_path
-
     if store is not None:
         path = Path(store)
         if not path.is_file():
-            raise InputError(f"--store {path}: no review store there; check the path, or leave --store out to "
-                             "use the one beside the data file")
+            raise InputError(f"store={path}: no review store there; check the path, or leave `store` out to "
+                             "use the one beside the data file", parameters=("store",))
         return path
     if result.run.review_store:
         return Path(result.run.review_store)
@@ -52,16 +53,13 @@ def store_for(result, store: str | Path | None = None) -> Path | None:
 
 def read_review(result, store: str | Path | None = None) -> Review:
     """Read the store (if there is one) and match its verdicts to the records of ``result``."""
-    from investigator.review.matching import match_entries
-    from investigator.review.store import ReviewStore
-    from investigator.review.verdicts import case_rows
-
     path = store_for(result, store)
     if path is None or not path.exists():
         return Review(path)
     source = result.table.source.path
     if source and Path(source).exists() and path.resolve() == Path(source).resolve():
-        raise InputError(f"--store {path}: is the data file itself; give the review store's path")
+        raise InputError(f"store={path}: is the data file itself; give the review store's path",
+                         parameters=("store",))
     with ReviewStore(path, create=False) as review:  # create=False: a report never makes a store
         current, history = review.current(), review.history()
     matching = match_entries(result.table, current)

@@ -10,6 +10,10 @@ from __future__ import annotations
 import csv
 from pathlib import Path
 
+from openpyxl import Workbook
+from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
+from openpyxl.styles import Font
+
 from investigator.io.writers import neutralise
 
 XLSX_CELL_LIMIT = 32_767  # characters in one cell (Excel specifications and limits)
@@ -25,10 +29,6 @@ def write_csv(path: Path, headers: list[str], rows: list[list]) -> None:
 
 
 def write_xlsx(path: Path, headers: list[str], rows: list[list], *, sheet: str = "cases") -> None:
-    from openpyxl import Workbook
-    from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
-    from openpyxl.styles import Font
-
     book = Workbook()
     ws = book.active
     ws.title = sheet

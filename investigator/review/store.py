@@ -93,7 +93,8 @@ def default_reviewer() -> str:
 
 def check_reviewer(name: str) -> str:
     if not isinstance(name, str) or not name.strip() or any(c in name for c in "\r\n"):
-        raise InputError(f"--reviewer {name!r}: give a name on one line (default: the OS user)")
+        raise InputError(f"reviewer={name!r}: give a name on one line (default: the OS user)",
+                         parameters=("reviewer",))
     return name.strip()
 
 
@@ -170,10 +171,11 @@ class ReviewStore:
         self.reviewer = check_reviewer(reviewer) if reviewer is not None else default_reviewer()
         self._lock = threading.Lock()
         if self.path.is_dir():
-            raise InputError(f"review store {self.path}: is a folder; give a file path with --store PATH")
+            raise InputError(f"review store {self.path}: is a folder; give a file path with store=PATH",
+                             parameters=("store",))
         if not self.path.parent.is_dir():
             raise InputError(f"review store {self.path}: folder {self.path.parent} does not exist or is "
-                             "not a folder; create it or give another --store PATH")
+                             "not a folder; create it or give another store=PATH", parameters=("store",))
         if not create and not self.path.exists():
             raise InputError(f"review store {self.path}: does not exist; record a verdict first")
         self._db = self._open()
@@ -212,7 +214,7 @@ class ReviewStore:
         if (tables - {"sqlite_sequence"} and not {"meta", "history"} <= tables) or \
                 app_id not in (0, APPLICATION_ID):
             raise InputError(f"review store {self.path}: is a SQLite database of another program; "
-                             "give another --store PATH")
+                             "give another store=PATH", parameters=("store",))
         if db.execute("PRAGMA journal_mode").fetchone()[0].lower() != "wal":
             db.execute("PRAGMA journal_mode = WAL")
         # FULL: a commit that returned survives a power cut too, not only a killed process.
@@ -222,7 +224,7 @@ class ReviewStore:
         version = db.execute("SELECT value FROM meta WHERE name = 'schema_version'").fetchone()
         if version is None:
             raise InputError(f"review store {self.path}: has no schema version; it was not written by "
-                             "investigator, give another --store PATH")
+                             "investigator, give another store=PATH", parameters=("store",))
         if int(version[0]) > SCHEMA_VERSION:
             raise InputError(f"review store {self.path}: written by a newer investigator (schema "
                              f"{version[0]}); upgrade investigator to read it")
@@ -344,8 +346,8 @@ def _store_error(path: Path, exc: sqlite3.Error) -> InputError:
     if _busy(exc):
         fix = f"another program held it for over {BUSY_TIMEOUT_MS // 1000} s; try again"
     elif "not a database" in reason or "malformed" in reason:
-        fix = "it is not a readable review store; give another --store PATH"
+        fix = "it is not a readable review store; give another store=PATH"
     else:
-        fix = "check the folder exists and is writable, or give another --store PATH"
-    return InputError(f"review store {path}: {reason}; {fix}")
+        fix = "check the folder exists and is writable, or give another store=PATH"
+    return InputError(f"review store {path}: {reason}; {fix}", parameters=("store",))
 

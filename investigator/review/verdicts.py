@@ -7,6 +7,7 @@ an InputError before the store is opened, so a rejected command leaves the store
 
 from __future__ import annotations
 
+import csv
 import json
 from pathlib import Path
 
@@ -25,16 +26,18 @@ CSV_FIELDS = ("change", "case_id", "kind", "latest", "status", "rows", "key_colu
 
 
 def locate(table, row: int | None, key: str | None) -> int:
-    """0-based position of the record given by ``--row`` or ``--key``."""
+    """0-based position of the record given by its 1-based ``row`` or its ``key``."""
     if row is not None:
         if not 1 <= row <= table.n_rows:
-            raise InputError(f"{table.name}: --row {row} is out of range; rows run from 1 to {table.n_rows}")
+            raise InputError(f"{table.name}: row={row} is out of range; rows run from 1 to {table.n_rows}",
+                             parameters=("row",))
         return row - 1
     keys = [str(k) for k in table.keys]
     if key not in keys:
         where = f"in column '{table.key_column}'" if table.key_column else \
-            "(without --id a record's key is its row number; give --id COLUMN to use a key column)"
-        raise InputError(f"{table.name}: no record with key '{key}' {where}; check the key or use --row N")
+            "(without `id` a record's key is its row number; give id=COLUMN to use a key column)"
+        raise InputError(f"{table.name}: no record with key '{key}' {where}; check the key or use row=N",
+                         parameters=("id", "row"))
     return keys.index(key)
 
 
@@ -42,6 +45,8 @@ def record_verdict(table, position: int, state: str, note: str | None, path: Pat
                    reviewer: str | None = None, run_id: str | None = None) -> tuple[Entry, Entry | None]:
     """Save a verdict on the record at 0-based ``position`` of ``table``; return the new entry and the one
     it replaces. Shared by ``investigator verdict`` and the TUI, so both record a case the same way."""
+    # Deferred, here and below: matching and the writers import pandas (0.6 s), and the CLI imports this module
+    # for `investigator --help` (0.1 s).
     from investigator.review.matching import record_case
 
     state = check_verdict(state)
@@ -159,7 +164,7 @@ def _cell(value: object) -> str:
 
 def identical_rows(table, position: int, digest: str | None) -> list[int]:
     """1-based rows with the same content as the record at ``position`` (cheap pre-filter, then exact)."""
-    from investigator.review.matching import fingerprint, record_values
+    from investigator.review.matching import fingerprint, record_values  # pandas: deferred, see record_verdict
 
     frame = table.frame
     target = frame.iloc[position]
@@ -170,18 +175,19 @@ def identical_rows(table, position: int, digest: str | None) -> list[int]:
 # -- export --------------------------------------------------------------------------------------------------
 
 
-def check_export(out: Path) -> None:
-    if out.suffix.lower() not in EXPORT_FORMATS:
-        raise InputError(f"--export {out}: unknown format '{out.suffix}'; use one of "
-                         f"{', '.join(EXPORT_FORMATS)}")
-    if not out.parent.is_dir():
-        raise InputError(f"--export {out}: folder {out.parent} does not exist; create it first")
+def check_export(export: Path) -> None:
+    if export.suffix.lower() not in EXPORT_FORMATS:
+        raise InputError(f"export={export}: unknown format '{export.suffix}'; use one of "
+                         f"{', '.join(EXPORT_FORMATS)}", parameters=("export",))
+    if not export.parent.is_dir():
+        raise InputError(f"export={export}: folder {export.parent} does not exist; create it first",
+                         parameters=("export",))
 
 
-def write_export(out: Path, path: Path, table, cases: dict[str, dict], history: list[Entry]) -> None:
-    tmp = out.with_name(out.name + ".part")
+def write_export(export: Path, path: Path, table, cases: dict[str, dict], history: list[Entry]) -> None:
+    tmp = export.with_name(export.name + ".part")
     try:
-        if out.suffix.lower() == ".json":
+        if export.suffix.lower() == ".json":
             latest = {}
             for e in history:
                 latest[e.case_id] = e
@@ -196,17 +202,15 @@ def write_export(out: Path, path: Path, table, cases: dict[str, dict], history: 
                            encoding="utf-8")
         else:
             _write_csv(tmp, cases, history)
-        tmp.replace(out)  # never a half-written export under the real name
+        tmp.replace(export)  # never a half-written export under the real name
     except OSError as exc:
         tmp.unlink(missing_ok=True)
-        raise InputError(f"--export {out}: cannot write ({exc.strerror or exc}); check the folder is "
-                         "writable") from None
+        raise InputError(f"export={export}: cannot write ({exc.strerror or exc}); check the folder is "
+                         "writable", parameters=("export",)) from None
 
 
 def _write_csv(tmp: Path, cases: dict[str, dict], history: list[Entry]) -> None:
-    import csv
-
-    from investigator.io.writers import neutralise
+    from investigator.io.writers import neutralise  # pandas: deferred, see record_verdict
 
     last = {e.case_id: e.change for e in history}
     with tmp.open("w", newline="", encoding="utf-8") as f:

@@ -47,6 +47,8 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+from sklearn.cluster import HDBSCAN
+from sklearn.neighbors import NearestNeighbors
 
 from investigator import sampling
 from investigator.structure.kinds import LARGE_SHARE, large_size
@@ -165,8 +167,6 @@ def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0,
 
 
 def _hdbscan(X: np.ndarray, min_cluster_size: int, min_samples: int) -> np.ndarray:
-    from sklearn.cluster import HDBSCAN
-
     order = sampling.canonical_order(X)  # HDBSCAN breaks ties in input order: give it the content order
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", FutureWarning)  # the default of `copy` is changing; we pass it
@@ -237,8 +237,6 @@ def _reach(core: np.ndarray) -> float:
 
 def _search(X: np.ndarray, k: int):
     """Exact Euclidean k-nearest-neighbour search (brute force: trees are slow in 20 dimensions)."""
-    from sklearn.neighbors import NearestNeighbors
-
     return NearestNeighbors(n_neighbors=k, algorithm="brute").fit(X)
 
 

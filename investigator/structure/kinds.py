@@ -44,6 +44,8 @@ import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy import stats
+from sklearn.cluster import HDBSCAN
 
 from investigator import sampling
 from investigator.methods.base import Scale
@@ -206,8 +208,6 @@ def find_kinds(X: np.ndarray, columns: np.ndarray, mcd: FastMCD, *, seed: int = 
 
 
 def _candidates(Xs: np.ndarray, big: int) -> np.ndarray:
-    from sklearn.cluster import HDBSCAN
-
     order = sampling.canonical_order(Xs)  # HDBSCAN's tie-breaking follows the input order
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", FutureWarning)  # the default of `copy` is changing; we pass it
@@ -256,8 +256,6 @@ def _concentrate(Xs, labels, fits, mcd: FastMCD, big: int):
 
 def _overlap(Xc: np.ndarray, labels: np.ndarray, fits: list[MCDFit]) -> np.ndarray:
     """K x K: the share of kind a's members that lie within kind b's chi-square 0.975 ellipse."""
-    from scipy import stats
-
     q = stats.chi2.ppf(0.975, Xc.shape[1])
     D = np.column_stack([sq_distances(Xc, f.location, f.covariance) for f in fits])
     return np.array([[float((D[labels == a, b] <= q).mean()) for b in range(len(fits))] for a in range(len(fits))])

@@ -6,6 +6,7 @@ them, so the first frame appears before pandas and scikit-learn are loaded.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -14,10 +15,21 @@ from textual.binding import Binding
 from textual.reactive import reactive
 from textual.worker import Worker, WorkerState
 
+from investigator.errors import InputError
 from investigator.tui import jobs
+from investigator.tui.models.columns import ColumnChoices
+from investigator.tui.models.map import group_labels, map_coords
+from investigator.tui.models.record import ViewCache
 from investigator.tui.screens.cases import CasesScreen
 from investigator.tui.screens.columns import ColumnsScreen
+from investigator.tui.screens.group import GroupScreen
+from investigator.tui.screens.help import HelpScreen
 from investigator.tui.screens.map import MapScreen
+from investigator.tui.screens.record import RecordScreen
+from investigator.tui.screens.verdict import VerdictScreen
+from investigator.tui.settings import hint_seen
+from investigator.tui.widgets.cases_table import CasesTable
+from investigator.tui.widgets.map_canvas import MapCanvas
 
 if TYPE_CHECKING:  # imported in the workers, after the first frame
     from investigator.tui.models.record import RecordView
@@ -47,17 +59,18 @@ class InvestigatorApp(App):
     map_points = reactive(None, always_update=True)   # (coords, source)
 
     def __init__(self, path: str | Path, options=None, *, autoscan: bool = False, store=None,
-                 show_hint: bool | None = None) -> None:
+                 show_hint: bool | None = None, error_text: Callable[[InputError], str] = str) -> None:
         """``options``: a ScanOptions, or a dict of its fields (validated in the load worker, so a bad option
-        shows as a one-line error in the UI and the first frame does not wait for the engine's imports)."""
+        shows as a one-line error in the UI and the first frame does not wait for the engine's imports).
+        ``error_text``: the line shown for an InputError (``investigator open`` passes the one that speaks of
+        its flags; by default the message as the API gives it)."""
         super().__init__()
+        self.error_text = error_text
         self.path = Path(path)
         self.base_options = options
         self.autoscan = autoscan
         self.store_option = store
         if show_hint is None:  # shown until the user dismisses it once ('i'), then remembered
-            from investigator.tui.settings import hint_seen
-
             show_hint = not hint_seen()
         self.show_hint = show_hint
         self.choices = None      # columns_model.ColumnChoices
@@ -100,12 +113,10 @@ class InvestigatorApp(App):
         if self.token is not None:
             self.notify("A scan is running (esc cancels it).", severity="warning")
             return
-        from investigator.errors import InputError
-
         try:
             options = self.scan_options()
         except InputError as exc:
-            self.notify(str(exc), severity="error")
+            self.notify(self.error_text(exc), severity="error")
             return
         token = self.token = jobs.CancelToken()
         table, store = self.loaded.table, self.store_path()
@@ -137,18 +148,14 @@ class InvestigatorApp(App):
             handler(worker.result if state == WorkerState.SUCCESS else None, worker.error)
 
     def _message(self, error: BaseException) -> str:
-        from investigator.errors import InputError
-
         if isinstance(error, InputError):
-            return str(error).replace("\n", " ")
+            return self.error_text(error).replace("\n", " ")
         return f"internal error: {type(error).__name__}: {error}"
 
     def _done_load(self, loaded, error) -> None:
         if error is not None:
             self.last_error = self.load_error = self._message(error)
             return
-        from investigator.tui.models.columns import ColumnChoices
-
         self.base_options = loaded.options
         self.choices = ColumnChoices.start(loaded.rows, loaded.options.log)
         self.result = self.cases = self.map_points = None
@@ -166,9 +173,6 @@ class InvestigatorApp(App):
                 self.last_error = self._message(error)
                 self.notify(self.last_error, severity="error", timeout=10)
             return
-        from investigator.tui.models.map import group_labels
-        from investigator.tui.models.record import ViewCache
-
         result, cases = value
         self.views = ViewCache(result)
         self.group_labels = group_labels(result)
@@ -180,8 +184,6 @@ class InvestigatorApp(App):
 
     # -- records -------------------------------------------------------------------------------------
     def open_record(self, position: int, order) -> None:
-        from investigator.tui.screens.record import RecordScreen
-
         self.push_screen(RecordScreen(position, order))
 
     def cached_view(self, position: int) -> RecordView | None:
@@ -205,8 +207,6 @@ class InvestigatorApp(App):
     def request_map(self) -> None:
         if self.result is None or self.map_points is not None:
             return
-        from investigator.tui.models.map import map_coords
-
         result = self.result
         self.run_worker(lambda: map_coords(result), thread=True, name="map", group="map", exclusive=True,
                         exit_on_error=False)
@@ -219,8 +219,6 @@ class InvestigatorApp(App):
 
     # -- verdicts ------------------------------------------------------------------------------------
     def ask_verdict(self, position: int) -> None:
-        from investigator.tui.screens.verdict import VerdictScreen
-
         d = self.cases
         screen = VerdictScreen(d.keys[position], int(d.rows[position]), d.verdicts[position] or None,
                                d.notes[position] or None)
@@ -245,8 +243,6 @@ class InvestigatorApp(App):
 
     def open_group(self, position: int) -> None:
         """Open the small group the record at ``position`` belongs to as one case, with its profile."""
-        from investigator.tui.screens.group import GroupScreen
-
         grouping = getattr(self.result, "groups", None)
         cases = self.result.group_cases or []
         gid = int(grouping.group[position]) if grouping is not None else -1
@@ -257,8 +253,6 @@ class InvestigatorApp(App):
         self.push_screen(GroupScreen(case, jobs.group_verdict(case, self.store_path())))
 
     def ask_group_verdict(self, screen) -> None:
-        from investigator.tui.screens.verdict import VerdictScreen
-
         case = screen.case
         ask = VerdictScreen(f"group {case.group} ({case.size} records)", None, screen.verdict, None)
 
@@ -282,13 +276,6 @@ class InvestigatorApp(App):
         self.switch_mode(mode)
 
     def action_help(self) -> None:
-        from investigator.tui.screens.group import GroupScreen
-        from investigator.tui.screens.help import HelpScreen
-        from investigator.tui.screens.record import RecordScreen
-        from investigator.tui.screens.verdict import VerdictScreen
-        from investigator.tui.widgets.cases_table import CasesTable
-        from investigator.tui.widgets.map_canvas import MapCanvas
-
         self.push_screen(HelpScreen({
             "Everywhere": self.BINDINGS, "Columns": ColumnsScreen.BINDINGS,
             "Cases": CasesTable.BINDINGS + CasesScreen.BINDINGS, "Record": RecordScreen.BINDINGS,

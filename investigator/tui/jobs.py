@@ -1,7 +1,8 @@
 """The slow work the app runs in worker threads: loading, scanning, explaining, saving verdicts.
 
 Plain functions over the engine; they import it lazily so the first frame does not wait for pandas and
-scikit-learn. Errors the user can fix arrive as InputError with one line.
+scikit-learn (the review store, the standard library's SQLite, is imported at the top). Errors the user can
+fix arrive as InputError with one line.
 """
 
 from __future__ import annotations
@@ -13,6 +14,11 @@ from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:  # the engine is imported in the workers only
     from investigator.structure.cases import GroupCase
+
+from investigator.review.store import ReviewStore, check_verdict, default_store_path, group_case
+from investigator.review.verdicts import record_verdict
+from investigator.tui.models.cases import cases_data
+from investigator.tui.models.columns import column_rows
 
 
 class ScanCancelled(Exception):
@@ -29,10 +35,11 @@ class Loaded:
 def load(path: str | Path, options) -> Loaded:
     """Read the table and infer the roles. ``options`` is a ScanOptions or a dict of its fields: building
     it here keeps the options module (which imports the methods, hence SciPy) off the first frame."""
+    # Deferred: these run in a worker thread, and at the top they would hold up the first frame: the options
+    # import the methods (SciPy), 1.7 s, and the table reader pandas, 0.6 s (`python -c "import X"` here).
     from investigator.io.tables import load_table
     from investigator.pipeline.options import ScanOptions
     from investigator.prepare.roles import assign_roles
-    from investigator.tui.models.columns import column_rows
 
     if not isinstance(options, ScanOptions):
         options = ScanOptions(**(options or {}))
@@ -56,8 +63,7 @@ class CancelToken:
 def run(table, options, progress, token: CancelToken, store: Path | None, path: str | Path | None):
     """Scan ``table``; ``progress(stage, fraction)`` is the engine's callback. The scan stops at the next
     progress report after ``token.cancel()`` (the engine reports between its steps)."""
-    from investigator.pipeline.engine import attach_verdicts, run_scan
-    from investigator.tui.models.cases import cases_data
+    from investigator.pipeline.engine import attach_verdicts, run_scan  # 1.9 s to import; deferred as in load
 
     def report(stage: str, fraction: float) -> None:
         if token.cancelled:
@@ -76,9 +82,7 @@ def run(table, options, progress, token: CancelToken, store: Path | None, path: 
 def save_verdict(table, position: int, state: str, note: str | None, store: Path, run_id: str | None):
     """Save one verdict (the same function ``investigator verdict`` uses) and re-match the store, so copies
     that share a fingerprint show it too. Returns (entry, verdicts, notes)."""
-    from investigator.review.matching import match_store
-    from investigator.review.store import ReviewStore
-    from investigator.review.verdicts import record_verdict
+    from investigator.review.matching import match_store  # pandas: 0.6 s, deferred as in load
 
     entry, _ = record_verdict(table, position, state, note, store, run_id=run_id)
     with ReviewStore(store, create=False) as review:
@@ -89,8 +93,6 @@ def save_verdict(table, position: int, state: str, note: str | None, store: Path
 def save_group_verdict(case: GroupCase, state: str, note: str | None, store: Path, run_id: str | None,
                        data_sha256: str | None):
     """Save a verdict on a group case (``group:<id>``, its members' keys kept with it)."""
-    from investigator.review.store import ReviewStore, check_verdict, group_case
-
     state = check_verdict(state)
     with ReviewStore(store) as review:
         return review.set(group_case(f"group:{case.group}", case.keys), state, note, run_id=run_id,
@@ -99,8 +101,6 @@ def save_group_verdict(case: GroupCase, state: str, note: str | None, store: Pat
 
 def group_verdict(case: GroupCase, store: Path) -> str | None:
     """The group's current verdict, if the store has one."""
-    from investigator.review.store import ReviewStore
-
     if not Path(store).exists():
         return None
     with ReviewStore(store, create=False) as review:
@@ -109,6 +109,4 @@ def group_verdict(case: GroupCase, store: Path) -> str | None:
 
 
 def store_for(path: str | Path, store: str | Path | None) -> Path:
-    from investigator.review.store import default_store_path
-
     return Path(store) if store else default_store_path(path)

@@ -200,7 +200,7 @@ def test_a_duplicate_key_across_partitions_names_the_rows(tmp_path, client):
     frame["id"] = frame["id"].astype("float64")
     frame.loc[250, "id"] = np.nan  # row 251 has no key
     data = _write_parts(tmp_path / "gap", frame, 3)
-    with pytest.raises(investigator.InputError, match=r"--id column 'id' is empty in row 251;"):
+    with pytest.raises(investigator.InputError, match=r"`id` column 'id' is empty in row 251;"):
         scan_dataset(data, ScanOptions(id="id"), out=tmp_path / "out", client=client)
     assert not (tmp_path / "out").exists()
 

@@ -11,6 +11,7 @@ pytest.importorskip("textual")
 pytestmark = pytest.mark.slow  # the whole module: each test drives the app through a scan of the demo
 
 from fixtures.tui import run_async, screen_text, settle, wait_until  # noqa: E402
+from investigator.cli.options import flag_message  # noqa: E402
 from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402
 from investigator.pipeline.options import ScanOptions  # noqa: E402
 from investigator.review.matching import record_case  # noqa: E402
@@ -339,7 +340,7 @@ def test_open_is_a_command_and_demo_without_a_terminal_prints_the_summary(capsys
 
 @run_async
 async def test_a_bad_option_shows_one_line_in_the_ui(demo):
-    app = InvestigatorApp(demo, {"id": DEMO_ID, "cutoff": 2.0})  # as `investigator open` passes them
+    app = InvestigatorApp(demo, {"id": DEMO_ID, "cutoff": 2.0}, error_text=flag_message)  # as `investigator open`
     async with app.run_test(size=(100, 30)) as pilot:
         await settle(app, pilot)
         assert "--cutoff must be between 0.5 and 1" in screen_text(app)

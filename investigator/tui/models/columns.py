@@ -32,6 +32,8 @@ class ColumnRow:
 def sketch(values, width: int = 16) -> str:
     """A one-line distribution sketch: a histogram of numbers between the 1st and 99th percentile (values
     outside show as < and > at the ends), or the commonest levels of a category with their shares."""
+    # Deferred, here and below: pandas (which the roles module imports) costs 0.6 s, and the app imports this
+    # module before its first frame; these functions run in the load worker.
     import pandas as pd
 
     from investigator.prepare.roles import parse_numeric

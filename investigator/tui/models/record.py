@@ -10,6 +10,7 @@ from collections import OrderedDict
 from dataclasses import dataclass
 
 from investigator.explain.explanation import Explanation, Typical
+from investigator.output.explanation import explanation_text
 
 
 @dataclass(frozen=True, slots=True)
@@ -36,7 +37,6 @@ def record_view(result, position: int) -> RecordView:
     """``result.explain`` for the record at 0-based ``position``, with every feature's raw value, typical
     range and robust z (what the methods saw)."""
     from investigator.explain.view import raw_value
-    from investigator.output.explanation import explanation_text
 
     e = result.explain(row=position + 1)
     typical = result.explainer.typical

@@ -8,6 +8,7 @@ from textual.screen import Screen
 from textual.widgets import Footer, Header, Input, Static
 
 from investigator.tui.models.cases import NO_VERDICT, CaseFilter
+from investigator.tui.settings import mark_hint_seen
 from investigator.tui.widgets.cases_table import CasesTable
 from investigator.tui.widgets.scan_progress import ScanProgress
 
@@ -179,6 +180,4 @@ class CasesScreen(Screen):
         self.app.show_hint = not self.app.show_hint
         self.query_one("#hint").set_class(not self.app.show_hint, "hidden")
         if not self.app.show_hint:
-            from investigator.tui.settings import mark_hint_seen
-
             mark_hint_seen()

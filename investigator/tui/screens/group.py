@@ -11,7 +11,7 @@ from textual.containers import VerticalScroll
 from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
-from investigator.output.explanation import _fmt
+from investigator.output.explanation import format_value
 
 if TYPE_CHECKING:  # the engine's types; the screen only reads them
     from investigator.structure.cases import GroupCase
@@ -52,7 +52,7 @@ class GroupScreen(Screen):
         for col in ("feature", "group", "rest", "difference"):
             table.add_column(col, justify="left" if col == "feature" else "right")
         for p in self.case.profile[:8]:
-            table.add_row(p.feature, _fmt(p.group), _fmt(p.rest), f"{p.difference:+.1f}")
+            table.add_row(p.feature, format_value(p.group), format_value(p.rest), f"{p.difference:+.1f}")
         return table
 
     def _members(self) -> str:

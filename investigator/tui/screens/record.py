@@ -13,7 +13,7 @@ from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
 from investigator.explain.explanation import Explanation
-from investigator.output.explanation import _fmt, _typical
+from investigator.output.explanation import format_value, typical_text
 from investigator.tui.models.record import RecordView
 from investigator.tui.widgets.contribution_bars import ContributionBars
 
@@ -129,8 +129,8 @@ class RecordScreen(Screen):
         self.query_one("#record-values", Static).update(_values(view))
         hits = e.column_hits
         self.query_one("#record-hits", Static).update(
-            "\n".join(f"{h['column']}: {h['rule']} ({_fmt(h['value'])} is "
-                      f"{'above' if h['side'] == 'upper' else 'below'} {_fmt(h['limit'])})" for h in hits)
+            "\n".join(f"{h['column']}: {h['rule']} ({format_value(h['value'])} is "
+                      f"{'above' if h['side'] == 'upper' else 'below'} {format_value(h['limit'])})" for h in hits)
             or "none: no single column is out of the ordinary by the per-column rules")
         self.query_one("#record-peers", Static).update(_peers(view))
 
@@ -138,7 +138,8 @@ class RecordScreen(Screen):
 def _change(e: Explanation) -> str:
     nearest = e.nearest_ordinary
     if nearest:
-        change = " and ".join(f"{c.feature} {_fmt(c.after)} instead of {_fmt(c.before)}" for c in nearest.changes)
+        change = " and ".join(f"{c.feature} {format_value(c.after)} instead of {format_value(c.before)}"
+                              for c in nearest.changes)
         return (f"Smallest change that makes it ordinary (robust_distance): {change} (distance "
                 f"{nearest.distance_before:.1f} -> {nearest.distance_after:.1f}, cutoff "
                 f"{nearest.cutoff:.2f}).")
@@ -166,8 +167,8 @@ def _values(view: RecordView) -> Table:
     top = {f.feature: f.direction for f in view.explanation.top_features}
     for v in view.values:
         mark = {"higher": "▲ higher", "lower": "▼ lower", "rarer": "◆ rare"}.get(top.get(v.feature), "")
-        value = _fmt(v.value) + (" (imputed)" if v.imputed else "")
-        t.add_row(v.feature, value, _typical(v.typical), f"{v.robust_z:+.1f}", mark, style="bold" if mark else "")
+        value = format_value(v.value) + (" (imputed)" if v.imputed else "")
+        t.add_row(v.feature, value, typical_text(v.typical), f"{v.robust_z:+.1f}", mark, style="bold" if mark else "")
     return t
 
 
@@ -182,7 +183,7 @@ def _peers(view: RecordView) -> Table | str:
     for n in names:
         t.add_column(n[:12], justify="right")
     own = {v.feature: v.value for v in view.values}
-    t.add_row(f"this ({e.key})", *[_fmt(own.get(n)) for n in names], style="bold")
+    t.add_row(f"this ({e.key})", *[format_value(own.get(n)) for n in names], style="bold")
     for p in peers:
-        t.add_row(f"{p.key} d={p.distance:.2f}", *[_fmt(p.values.get(n)) for n in names])
+        t.add_row(f"{p.key} d={p.distance:.2f}", *[format_value(p.values.get(n)) for n in names])
     return t
