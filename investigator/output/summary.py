@@ -34,13 +34,7 @@ def summary_text(result: ScanResult, top: int = 10) -> str:
     left = [f"{c.name} ({c.role})" for c in result.columns if not c.is_feature]
     if left:
         lines.append("Left out: " + ", ".join(left))
-    if run.notices:
-        lines.append("Notices:")
-        lines += [f"  - {n}" for n in run.notices]
-    nb = run.neighbors
-    search = f"; neighbours: {nb.search}, k={nb.k}" if nb else ""
-    lines.append("Methods: " + ", ".join(result.method_results) + search)
-    lines.append("Rule: " + run.rule)
+    lines += _how_scored(run, list(result.method_results), "Notices:")
     sampled = [a.part for a in run.approximations if a.used and a.exact_turns_off]
     if sampled:
         lines.append(f"Sampled for size: {'; '.join(sampled)} (run.approximations says how; --exact turns it off)")
@@ -109,13 +103,7 @@ def dataset_summary_text(scan: DatasetScan) -> str:
              f"Fitted on a random sample of {run.fit.sample:,} records"]
     feats = [s.name + {"log": " (log)", "rarity": " (category)"}.get(s.transform, "") for s in fitted.features]
     lines.append(f"Features ({len(feats)}): " + ", ".join(feats))
-    if fitted.notices:
-        lines.append("Notices (from the sample):")
-        lines += [f"  - {n}" for n in fitted.notices]
-    nb = fitted.neighbors
-    search = f"; neighbours: {nb.search}, k={nb.k}" if nb else ""
-    lines.append("Methods: " + ", ".join(fitted.methods) + search)
-    lines.append("Rule: " + fitted.rule)
+    lines += _how_scored(fitted, list(fitted.methods), "Notices (from the sample):")
     n, flagged = src.rows or 0, run.flagged
     lines.append(f"Flagged: {flagged:,} of {n:,} records ({flagged / n:.1%})")
     if len(top):
@@ -131,3 +119,11 @@ def dataset_summary_text(scan: DatasetScan) -> str:
 
 
 __all__ = ["CAUTION", "dataset_summary_text", "summary_text"]
+
+
+def _how_scored(run, methods: list[str], heading: str) -> list[str]:
+    """The notices, the methods with the neighbour search, and the flag rule of a run record."""
+    lines = [heading, *(f"  - {n}" for n in run.notices)] if run.notices else []
+    nb = run.neighbors
+    search = f"; neighbours: {nb.search}, k={nb.k}" if nb else ""
+    return [*lines, "Methods: " + ", ".join(methods) + search, "Rule: " + run.rule]
