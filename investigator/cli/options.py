@@ -54,7 +54,7 @@ def add_reading_options(p: argparse.ArgumentParser) -> None:
     """How the data file is read: its sheet, decimal mark and header row (also for the review commands, whose
     records must be keyed as the scan keyed them)."""
     p.add_argument("--sheet", metavar="NAME", help="worksheet of an .xlsx file (default: the first)")
-    p.add_argument("--decimal", metavar="MARK", choices=(".", ","),
+    p.add_argument("--decimal", metavar="MARK",
                    help="decimal mark of numbers written as text: . or , (default: told from each column; "
                    "'1.234,56' is read with a comma)")
     p.add_argument("--header-row", metavar="N", type=int,
