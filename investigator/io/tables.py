@@ -23,7 +23,7 @@ import pyarrow.parquet as pq
 
 from investigator.errors import InputError
 from investigator.io.datasets import PARQUET_SUFFIXES, is_dataset, parquet_files
-from investigator.io.numbers import DECIMALS, read_numbers
+from investigator.io.numbers import DECIMALS, NumberColumn, read_numbers
 
 MIN_ROWS = 5
 CSV_SUFFIXES = {".csv", ".txt", ".tsv", ".tab"}
@@ -351,7 +351,8 @@ def _read_text(path: Path, raw: bytes, digest: str, id_column: str | None, decim
         raise InputError(f"{path}: the file is empty; it needs a header row and data rows") from None
     frame.columns = [str(c) for c in frame.columns]
     raw_text = None
-    if decimal == "," or (decimal is None and _shows_decimal_comma(frame, id_column)):
+    seen = _text_numbers(frame, id_column) if decimal is None else {}
+    if decimal == "," or (decimal is None and _shows_decimal_comma(seen)):
         # Numbers pandas read with a decimal point ('1.234') may be thousands in a decimal-comma file: read
         # every cell as written, and let each column's numbers decide.
         body.seek(0)
@@ -360,7 +361,7 @@ def _read_text(path: Path, raw: bytes, digest: str, id_column: str | None, decim
     source = Source(str(path), "tsv" if delimiter == "\t" else "csv", digest, encoding, delimiter,
                     header_row=start + 1 if start else None)
     table = Table(frame, source, notices=notices)
-    _numbers_as_text(table, id_column, decimal, raw_text)
+    _numbers_as_text(table, id_column, decimal, raw_text, seen if raw_text is None else None)
     return table.frame, source, notices
 
 
@@ -382,21 +383,22 @@ def _check_field_counts(path: Path, records, width: int) -> list[str]:
             f"{width} columns (a trailing delimiter); the empty fields were ignored"]
 
 
-def _shows_decimal_comma(frame: pd.DataFrame, id_column: str | None) -> bool:
+def _text_numbers(frame: pd.DataFrame, id_column: str | None) -> dict[str, NumberColumn | None]:
+    """Each text column (but the key) read as numbers, the decimal mark told from its cells."""
+    return {name: read_numbers(frame[name]) for name in frame.columns if name != id_column and _is_text(frame[name])}
+
+
+def _shows_decimal_comma(columns: dict[str, NumberColumn | None]) -> bool:
     """Whether a text column's numbers clearly use a decimal comma and none clearly uses a decimal point."""
-    marks = set()
-    for name in frame.columns:
-        if name != id_column and _is_text(frame[name]):
-            column = read_numbers(frame[name])
-            if column is not None and column.decimal and not column.ambiguous and column.reason is None:
-                marks.add(column.decimal)
+    marks = {c.decimal for c in columns.values() if c is not None and not c.ambiguous and c.reason is None}
     return marks == {","}
 
 
 def _numbers_as_text(table: Table, id_column: str | None, decimal: str | None,
-                     raw_text: pd.DataFrame | None = None) -> None:
+                     raw_text: pd.DataFrame | None = None, seen: dict[str, NumberColumn | None] | None = None) -> None:
     """Columns of numbers written as text ($1,234.50, 1.234,56, placeholders, spreadsheet errors) read as numbers,
-    with a notice per column; ``raw_text``: the cells as written, when numbers pandas read may need reading again."""
+    with a notice per column; ``raw_text``: the cells as written, when numbers pandas read may need reading again;
+    ``seen``: columns already read so (with the decimal mark told from the cells and a decimal point preferred)."""
     frame = table.frame
     used_comma = False
     prefer = decimal or ("," if raw_text is not None else ".")
@@ -407,7 +409,7 @@ def _numbers_as_text(table: Table, id_column: str | None, decimal: str | None,
         if raw_text is None and not is_text:
             continue
         source = raw_text[name] if raw_text is not None else frame[name]
-        column = read_numbers(source, decimal, prefer)
+        column = seen[name] if seen is not None and name in seen else read_numbers(source, decimal, prefer)
         if column is None:
             continue
         if column.numbers is not None:

@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 import os
 import shutil
+from html import escape
 
 import numpy as np
 import openpyxl
@@ -24,6 +25,7 @@ from investigator import InputError
 from investigator.cli.main import main
 from investigator.io.numbers import read_cell, read_numbers
 from investigator.io.tables import load_table
+from investigator.report import write_report
 
 PLANTED = 123  # 0-based position of the record whose amount is ten times what its quantity implies (n // 2 when
 # the table is smaller)
@@ -55,7 +57,8 @@ def purchases(n: int = 500, seed: int = 7) -> tuple[pd.DataFrame, np.ndarray, li
     return frame, amount, dashes, errors
 
 
-def test_currency_amounts_are_numbers_and_the_planted_one_is_flagged(tmp_path, capsys):
+@pytest.mark.slow
+def test_currency_amounts_are_numbers_and_the_planted_one_is_flagged(tmp_path):
     frame, amount, dashes, errors = purchases()
     path = tmp_path / "purchases.csv"
     frame.to_csv(path, index=False)
@@ -81,11 +84,21 @@ def test_currency_amounts_are_numbers_and_the_planted_one_is_flagged(tmp_path, c
     # pandas itself reads '#N/A' as missing; it is then no cell of the column to count.
     assert "read as missing" in notice
     # The notice reaches the user: the text summary and the JSON.
-    assert main(["scan", str(path), "--id", "order", "--out", str(tmp_path / "out.json")]) == 0
-    out = capsys.readouterr().out
-    assert notice in out
+    assert notice in result.summary()
+    result.write(tmp_path / "out.json")
     record = json.loads((tmp_path / "out.json").read_text(encoding="utf-8"))
     assert notice in record["run"]["notices"]
+
+
+@pytest.mark.slow
+def test_loader_notices_reach_the_report(tmp_path):
+    # The standard library's html.escape is the reference for how the text is shown.
+    frame, *_ = purchases(80, seed=11)
+    frame.to_csv(tmp_path / "purchases.csv", index=False)
+    result = investigator.scan(tmp_path / "purchases.csv", id="order")
+    notice = next(n for n in result.run.notices if n.startswith("amount: read as numbers"))
+    html = write_report(result, tmp_path / "report.html", generated="fixed").read_text(encoding="utf-8")
+    assert escape(notice, quote=False) in html.replace("&#x27;", "'").replace("&#39;", "'")
 
 
 def test_spreadsheet_errors_and_placeholders_in_xlsx_are_counted(tmp_path):
