@@ -219,7 +219,7 @@ def read_numbers(values: pd.Series, decimal: str | None = None, prefer: str = ".
     column = NumberColumn(None, decimal)
     if all(c.plain_integer for c in numbers) and any(_LEADING_ZERO.fullmatch(str(v).strip())
                                                       for v, c in cells.items() if isinstance(c, Cell)):
-        return None  # codes such as 00123: identifiers, not amounts
+        return None  # codes such as 00123: identifiers, not amounts (the test of leading_zero_codes, on the cells)
     currencies = {c.currency for c in numbers if c.currency}
     if len(currencies) > 1:
         column.reason = (f"it holds amounts in more than one currency ({', '.join(sorted(currencies))}); "
@@ -263,6 +263,15 @@ def read_numbers(values: pd.Series, decimal: str | None = None, prefer: str = ".
         return column
     column.numbers = pd.Series(out, index=values.index, name=values.name)
     return column
+
+
+def leading_zero_codes(values: pd.Series) -> bool:
+    """Whether the number-like cells of ``values`` are all digits only and some start with a zero (``00123``):
+    codes such as article numbers or postcodes, which must not be read as amounts."""
+    text = values.dropna().astype(str).str.strip()
+    number_like = text[text.str.fullmatch(r"[-+(]?[\d.,' ]*\d[\d.,' )%]*")]
+    digits = number_like.str.fullmatch(r"\d+")
+    return bool(len(number_like)) and bool(digits.all()) and bool(number_like.str.match(r"0\d").any())
 
 
 def _with_mark(decimal: str | None) -> str:

@@ -11,6 +11,7 @@ import hashlib
 import io
 import re
 import statistics
+import sys
 import zipfile
 import zlib
 from dataclasses import dataclass, field
@@ -40,6 +41,8 @@ CONTROL_SHARE = 0.02
 _CONTROL = re.compile(r"[\x00-\x08\x0b\x0e-\x1f\x7f-\x9f]")
 # Header search: at most this many title or blank rows above the header, judged against the rows below.
 MAX_TITLE_ROWS = 10
+# The csv module refuses fields over 128 KiB by default; pandas reads them, so the field-count check must too.
+csv.field_size_limit(min(sys.maxsize, 2**31 - 1))
 
 
 @dataclass
@@ -238,6 +241,15 @@ def _decode(raw: bytes, path: Path) -> tuple[str, str, list[str]]:
             why = "an odd number of bytes" if len(raw) % 2 else "bytes that are not UTF-16"
             raise InputError(f"{path}: starts with a UTF-16 byte-order mark but has {why} (from byte "
                              f"{exc.start}): the file may be cut short; export it again as CSV in UTF-8") from None
+    order = _utf16_order(raw)
+    if order is not None:
+        try:
+            text = raw.decode(order)
+        except UnicodeDecodeError:
+            pass  # not UTF-16 after all: the NUL check below refuses it
+        else:
+            return text, order, [f"the file has no byte-order mark, but its bytes are UTF-16 text ({order}); it was "
+                                 "read as such: re-save it as CSV in UTF-8 to be sure"]
     try:
         return raw.decode("utf-8"), "utf-8", []
     except UnicodeDecodeError as exc:
@@ -253,6 +265,20 @@ def _decode(raw: bytes, path: Path) -> tuple[str, str, list[str]]:
             "check accented text, or re-save the file as UTF-8"
         ]
     raise AssertionError("latin-1 decodes every byte string")  # pragma: no cover
+
+
+def _utf16_order(raw: bytes) -> str | None:
+    """'utf-16-le' or 'utf-16-be' for UTF-16 text without a byte-order mark, told by its NUL bytes: text in a
+    Latin script has a NUL as the high byte of nearly every character (and no NUL as the low byte)."""
+    sample = raw[:8192]
+    if len(raw) % 2 or len(sample) < 8:
+        return None
+    even, odd = sample[0::2], sample[1::2]
+    if odd.count(0) >= 0.9 * len(odd) and even.count(0) == 0:
+        return "utf-16-le"
+    if even.count(0) >= 0.9 * len(even) and odd.count(0) == 0:
+        return "utf-16-be"
+    return None
 
 
 def _sniff_delimiter(text: str, suffix: str) -> str:
@@ -439,7 +465,8 @@ def find_header(rows: list[list]) -> int:
         below = filled[i + 1: i + 21]
         typical = statistics.median(below) if below else 0
         if typical < 3 or filled[i] > max(1, typical // 4):
-            return i
+            # A row of numbers is no header: the first row was (a header with mostly blank names), not a title.
+            return i if i == 0 or not looks_like_data(rows[i]) else 0
     return 0
 
 

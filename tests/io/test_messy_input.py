@@ -25,6 +25,7 @@ from investigator import InputError
 from investigator.cli.main import main
 from investigator.io.numbers import read_cell, read_numbers
 from investigator.io.tables import load_table
+from investigator.prepare.roles import assign_roles
 from investigator.report import write_report
 
 PLANTED = 123  # 0-based position of the record whose amount is ten times what its quantity implies (n // 2 when
@@ -366,6 +367,42 @@ def test_xlsx_formulas_without_saved_values(tmp_path):
     result = investigator.scan(tmp_path / "formulas.xlsx", id="part_id")
     notice = next(n for n in result.run.notices if "formulas without saved values" in n)
     assert "'area'" in notice and "export CSV" in notice
+
+
+# -- encodings -----------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("order", ["utf-16-le", "utf-16-be"])
+def test_utf16_without_a_byte_order_mark_is_read_with_a_notice(tmp_path, order):
+    frame = make_frame("parts")
+    frame["batch"] = np.where(np.arange(len(frame)) % 3 == 0, "Süd", "Nord")
+    frame.to_csv(tmp_path / "u16.csv", index=False, encoding=order)  # Python's codec writes no mark for -le/-be
+    assert not (tmp_path / "u16.csv").read_bytes().startswith((b"\xff\xfe", b"\xfe\xff"))
+    table = load_table(tmp_path / "u16.csv", id_column="part_id")
+    # Reference: pandas told the encoding.
+    pd.testing.assert_frame_equal(table.frame, pd.read_csv(tmp_path / "u16.csv", encoding=order,
+                                                           dtype={"part_id": str}))
+    assert table.source.encoding == order
+    assert any("no byte-order mark" in n and order in n for n in table.notices)
+
+
+def test_utf16_odd_byte_count_through_the_api(tmp_path):
+    raw = make_frame("parts").to_csv(index=False).encode("utf-16")
+    (tmp_path / "cut.csv").write_bytes(raw[:-1])
+    with pytest.raises(InputError, match="cut.csv: starts with a UTF-16 byte-order mark but has an odd number"):
+        load_table(tmp_path / "cut.csv")
+
+
+def test_codes_with_leading_zeros_are_not_numbers(tmp_path):
+    frame = make_frame("parts")
+    codes = [f"{(i * 37) % 1000:05d}" for i in range(len(frame))]
+    codes[3] = "-"
+    frame["article"] = codes
+    frame.to_csv(tmp_path / "codes.csv", index=False)
+    table = load_table(tmp_path / "codes.csv", id_column="part_id")
+    assert table.frame["article"].tolist()[:3] == codes[:3]  # kept as written, zeros and all
+    roles = {c.name: c.role for c in assign_roles(table)}
+    assert roles["article"] != "numeric"
 
 
 # -- files that are not what their name says -----------------------------------------------------------------
