@@ -133,6 +133,7 @@ def test_frame_object_column_of_formatted_numbers():
     keep = np.setdiff1d(np.arange(60), dashes + errors)
     assert_array_equal(table.frame["amount"].to_numpy()[keep], amount[keep])
     assert table.frame["order"].tolist() == frame["order"].tolist()  # the key is never converted
+    assert frame["amount"].str.startswith(("$", "-", "#")).all()  # the caller's frame is left as it was
 
 
 @pytest.mark.parametrize("cell, value", [
