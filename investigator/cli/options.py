@@ -32,7 +32,7 @@ def add_scan_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--contamination", metavar="F", type=float,
                    help="flag this share of records instead of using the cutoffs (e.g. 0.01)")
     p.add_argument("--seed", metavar="N", type=int, default=0, help="random seed (default 0)")
-    p.add_argument("--sheet", metavar="NAME", help="worksheet of an .xlsx file (default: the first)")
+    add_reading_options(p)
     p.add_argument("--resamples", metavar="R", type=int, default=0,
                    help="re-run the methods on R random subsamples and report how often each flag recurs "
                    "(default 0: off; 20 is a good choice)")
@@ -50,6 +50,18 @@ def add_scan_options(p: argparse.ArgumentParser) -> None:
                    "records (above 100,000); slower, see run.approximations")
 
 
+def add_reading_options(p: argparse.ArgumentParser) -> None:
+    """How the data file is read: its sheet, decimal mark and header row (also for the review commands, whose
+    records must be keyed as the scan keyed them)."""
+    p.add_argument("--sheet", metavar="NAME", help="worksheet of an .xlsx file (default: the first)")
+    p.add_argument("--decimal", metavar="MARK",
+                   help="decimal mark of numbers written as text: . or , (default: told from each column; "
+                   "'1.234,56' is read with a comma)")
+    p.add_argument("--header-row", metavar="N", type=int,
+                   help="row of the file holding the column names, from 1 (default: found; title and blank "
+                   "rows above it are skipped, with a notice)")
+
+
 def add_output_options(p: argparse.ArgumentParser, data: str) -> None:
     p.add_argument("--out", metavar="FILE", help="write the result: .json, .csv or .parquet")
     p.add_argument("--store", metavar="PATH", help="review store to read verdicts from "
@@ -64,6 +76,7 @@ def scan_parameters(args: argparse.Namespace) -> dict:
         "id": args.id, "features": args.features, "exclude": args.exclude,
         "methods": args.methods or None, "log": args.log, "cutoff": args.cutoff,
         "contamination": args.contamination, "seed": args.seed, "sheet": args.sheet, "exact": args.exact,
+        "decimal": getattr(args, "decimal", None), "header_row": getattr(args, "header_row", None),
         "resamples": args.resamples, "limits": args.limits, "digits": args.digits, "map": args.map,
         "duplicates": args.duplicates,
         "keep_reference_outliers": getattr(args, "keep_reference_outliers", False),

@@ -10,6 +10,7 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
+from investigator.cli.options import add_reading_options
 from investigator.errors import InputError
 from investigator.review.store import (
     VERDICT_MEANING,
@@ -65,7 +66,7 @@ def register(subparsers) -> dict[str, Callable[[argparse.Namespace], int]]:
 def _add_common(p: argparse.ArgumentParser) -> None:
     p.add_argument("--store", metavar="PATH", help="the review store (default: DATA.investigation.sqlite)")
     p.add_argument("--id", metavar="COLUMN", help="column holding the record key (default: the data row)")
-    p.add_argument("--sheet", metavar="NAME", help="worksheet of an .xlsx file (default: the first)")
+    add_reading_options(p)
 
 
 def store_path(args: argparse.Namespace) -> Path:
@@ -82,7 +83,8 @@ def run_verdict(args: argparse.Namespace) -> int:
     state = check_verdict(args.state)  # every check before the store is opened
     if args.reviewer is not None:
         check_reviewer(args.reviewer)
-    table = load_table(args.data, sheet=args.sheet, id_column=args.id)
+    table = load_table(args.data, sheet=args.sheet, id_column=args.id, decimal=args.decimal,
+                       header_row=args.header_row)
     position = locate(table, args.row, args.key)
     path = store_path(args)
     entry, before = record_verdict(table, position, state, args.note, path, reviewer=args.reviewer)
@@ -104,7 +106,8 @@ def run_verdicts(args: argparse.Namespace) -> int:
     out = Path(args.export) if args.export else None
     if out is not None:
         check_export(out)
-    table = load_table(args.data, sheet=args.sheet, id_column=args.id)
+    table = load_table(args.data, sheet=args.sheet, id_column=args.id, decimal=args.decimal,
+                       header_row=args.header_row)
     path = store_path(args)
     current: list[Entry] = []
     history: list[Entry] = []

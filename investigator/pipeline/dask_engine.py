@@ -62,6 +62,9 @@ class DatasetScan:
 
 
 def check_dask_options(options: ScanOptions) -> None:
+    if options.header_row is not None:
+        raise InputError("`header_row` is not available with `scan_dataset`: Parquet files have their column "
+                         "names; leave it out", parameters=("header_row", "scan_dataset"))
     for name in UNSUPPORTED:
         value = getattr(options, name)
         if value and value != "none":

@@ -256,8 +256,8 @@ def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanRes
     """Scan a table (a path to CSV/TSV/Parquet/XLSX, or a pandas DataFrame) and return a ScanResult.
 
     Options are those of ``investigator scan``: ``id``, ``features``, ``exclude``, ``methods``, ``log``,
-    ``cutoff``, ``contamination``, ``seed``, ``sheet``, ``exact``, ``resamples``, ``digits``,
-    ``duplicates``, ``limits``. When a review store exists (``store``, or ``<data>.investigation.sqlite``
+    ``cutoff``, ``contamination``, ``seed``, ``sheet``, ``decimal``, ``header_row``, ``exact``, ``resamples``,
+    ``digits``, ``duplicates``, ``limits``. When a review store exists (``store``, or ``<data>.investigation.sqlite``
     beside a data file), each record also gets its current verdict and note. Raises :class:`InputError` on
     bad input.
     """
@@ -266,7 +266,7 @@ def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanRes
         opts = ScanOptions(**options)
     elif options:
         raise TypeError("give either options=ScanOptions(...) or keyword options, not both")
-    table = load_table(data, sheet=opts.sheet, id_column=opts.id)
+    table = load_table(data, sheet=opts.sheet, id_column=opts.id, decimal=opts.decimal, header_row=opts.header_row)
     return attach_verdicts(run_scan(table, opts, progress), data, store)
 
 
@@ -300,6 +300,8 @@ def check(data, *, reference, progress: Progress = silent, reference_sheet: str 
         opts = ScanOptions(**options)
     elif options:
         raise TypeError("give either options=ScanOptions(...) or keyword options, not both")
-    ref = load_table(reference, sheet=reference_sheet, id_column=opts.id)
-    table = load_table(data, sheet=opts.sheet, id_column=opts.id, min_rows=1)
+    # The decimal mark is the locale's, shared by both files; the reference's header is found on its own.
+    ref = load_table(reference, sheet=reference_sheet, id_column=opts.id, decimal=opts.decimal)
+    table = load_table(data, sheet=opts.sheet, id_column=opts.id, min_rows=1, decimal=opts.decimal,
+                       header_row=opts.header_row)
     return attach_verdicts(run_scan(table, opts, progress, reference=ref), data, store)

@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass
 
 from investigator.errors import InputError
+from investigator.io.tables import check_reading_options
 from investigator.methods import METHOD_KEYS
 
 MAP_METHODS = ("none", "auto", "umap", "pca")
@@ -35,6 +36,8 @@ class ScanOptions:
     contamination: float | None = None
     seed: int = 0
     sheet: str | None = None
+    decimal: str | None = None
+    header_row: int | None = None
     exact: bool = False
     resamples: int = 0
     digits: tuple[str, ...] | None = None
@@ -106,6 +109,10 @@ class ScanOptions:
             raise InputError(f"`resamples` must be a whole number from 0 to 1000, not '{self.resamples}'",
                              parameters=("resamples",))
         set_(self, "resamples", resamples)
+
+        if isinstance(self.header_row, str) and self.header_row.strip().isdigit():
+            set_(self, "header_row", int(self.header_row))
+        check_reading_options(self.decimal, self.header_row)
 
         if self.map not in MAP_METHODS:
             raise InputError(f"`map` must be one of {', '.join(MAP_METHODS)}, not '{self.map}'", parameters=("map",))

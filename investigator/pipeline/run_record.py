@@ -36,6 +36,8 @@ class InputRecord:
     encoding: str | None = None
     delimiter: str | None = None
     sheet: str | None = None
+    decimal: str | None = None  # "," when numbers were read with a decimal comma
+    header_row: int | None = None  # the row of the column names, when not the first
     files: int | None = None  # a Parquet dataset (Dask): its files and partitions
     partitions: int | None = None
     rows: int | None = None

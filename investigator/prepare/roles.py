@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from investigator.errors import InputError
+from investigator.io.numbers import leading_zero_codes
 from investigator.io.tables import Table, name_list
 
 NUMERIC = "numeric"
@@ -102,7 +103,8 @@ def _numeric_role(info: ColumnInfo, present: pd.Series) -> None:
 def _text_role(info: ColumnInfo, present: pd.Series) -> None:
     sample = present.iloc[: min(len(present), 2000)]
     numeric = parse_numeric(sample)
-    if numeric.notna().mean() >= PARSE_SHARE:
+    # Codes written with leading zeros (00123) parse, but are identifiers or categories, not amounts.
+    if numeric.notna().mean() >= PARSE_SHARE and not leading_zero_codes(sample):
         bad = len(sample) - int(numeric.notna().sum())
         info.role = NUMERIC
         info.reason = "numbers written as text" + (f" ({bad} cells do not parse)" if bad else "")

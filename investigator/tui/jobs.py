@@ -43,7 +43,8 @@ def load(path: str | Path, options) -> Loaded:
 
     if not isinstance(options, ScanOptions):
         options = ScanOptions(**(options or {}))
-    table = load_table(path, sheet=options.sheet, id_column=options.id)
+    table = load_table(path, sheet=options.sheet, id_column=options.id, decimal=options.decimal,
+                       header_row=options.header_row)
     columns = assign_roles(table, options.features, options.exclude)
     return Loaded(table, column_rows(table, columns), options)
 
