@@ -10,6 +10,7 @@ from collections.abc import Callable
 from pathlib import Path
 
 from investigator.cli.open import open_demo
+from investigator.cli.options import refuse_overwrite
 from investigator.progress import StderrBar
 
 
@@ -25,10 +26,14 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
 
 def run_demo(args: argparse.Namespace) -> int:
     # Deferred: the demo builder needs pandas (0.6 s), the engine 1.9 s (see investigator/cli/scan.py).
-    from investigator.io.demo import DEMO_ID, write_demo
+    from investigator.io.demo import DEMO_FILE, DEMO_ID, write_demo
+    from investigator.io.writers import check_out_path
     from investigator.pipeline.engine import scan
 
     folder = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="investigator-demo-"))
+    if args.out:  # before anything is written: a usable path, and not the demo file itself
+        check_out_path(Path(args.out))
+        refuse_overwrite(argparse.Namespace(data=str(folder / DEMO_FILE)), args.out)
     folder.mkdir(parents=True, exist_ok=True)
     path = write_demo(folder)
     if sys.stdin.isatty() and sys.stdout.isatty() and not args.out:  # a person at a terminal: the workspace

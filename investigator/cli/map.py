@@ -6,7 +6,7 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
-from investigator.cli.options import add_scan_options, scan_parameters
+from investigator.cli.options import add_scan_options, refuse_overwrite, scan_parameters
 from investigator.errors import InputError
 from investigator.progress import StderrBar
 
@@ -25,6 +25,7 @@ def run_map(args: argparse.Namespace) -> int:
     out = Path(args.out)
     if out.suffix.lower() != ".png" or not out.parent.exists():
         raise InputError(f"--out {out}: give a .png file in an existing folder")
+    refuse_overwrite(args, out)
     opts = scan_parameters(args)
     opts.setdefault("map", "auto")
     if opts["map"] == "none":

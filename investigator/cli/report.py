@@ -10,7 +10,7 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
-from investigator.cli.options import add_scan_options, scan_parameters
+from investigator.cli.options import add_scan_options, refuse_overwrite, scan_parameters
 from investigator.errors import InputError
 from investigator.progress import StderrBar
 from investigator.report import DEFAULT_CASES, check_report_path, write_report
@@ -43,6 +43,7 @@ def run_report(args: argparse.Namespace) -> int:
 
     out = Path(args.out)
     check_report_path(out)
+    refuse_overwrite(args, out)
     if args.cases < 0:
         raise InputError(f"--cases {args.cases}: give 0 or more (the number of cases explained in detail)")
     if args.store is not None and not Path(args.store).is_file():

@@ -10,7 +10,9 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
+from investigator.cli.options import refuse_overwrite
 from investigator.errors import InputError
+from investigator.io.output_files import same_file
 from investigator.review.store import (
     VERDICT_MEANING,
     VERDICTS,
@@ -71,7 +73,7 @@ def _add_common(p: argparse.ArgumentParser) -> None:
 def store_path(args: argparse.Namespace) -> Path:
     path = Path(args.store) if args.store else default_store_path(args.data)
     data = Path(args.data)
-    if data.exists() and path.exists() and path.resolve() == data.resolve():
+    if data.exists() and path.exists() and same_file(path, data):  # also through a symbolic or hard link
         raise InputError(f"--store {path}: is the data file itself; give another path for the store")
     return path
 
@@ -104,6 +106,7 @@ def run_verdicts(args: argparse.Namespace) -> int:
     out = Path(args.export) if args.export else None
     if out is not None:
         check_export(out)
+        refuse_overwrite(args, out, parameter="export")
     table = load_table(args.data, sheet=args.sheet, id_column=args.id)
     path = store_path(args)
     current: list[Entry] = []

@@ -8,7 +8,7 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
-from investigator.cli.options import add_output_options, add_scan_options, scan_parameters
+from investigator.cli.options import add_output_options, add_scan_options, refuse_overwrite, scan_parameters
 from investigator.errors import InputError
 from investigator.progress import StderrBar, silent
 
@@ -59,6 +59,7 @@ def run_scan(args: argparse.Namespace) -> int:
 
     options = ScanOptions(**scan_parameters(args))
     if getattr(args, "engine", "memory") == "dask":
+        refuse_overwrite(args, args.out, folder=True)
         return _scan_on_dask(args, options)
     for flag in ("scheduler", "workers", "worker_memory"):
         if getattr(args, flag, None) is not None:
@@ -67,6 +68,7 @@ def run_scan(args: argparse.Namespace) -> int:
         from investigator.io.writers import check_out_path  # pandas and pyarrow: 0.6 s, see above
 
         check_out_path(Path(args.out))
+        refuse_overwrite(args, args.out)  # before any work: never over the data, the reference or the store
     progress = silent if args.quiet else StderrBar()
     if args.command == "check":
         result = check(args.data, reference=args.reference, reference_sheet=args.reference_sheet,

@@ -12,6 +12,7 @@ import json
 from pathlib import Path
 
 from investigator.errors import InputError
+from investigator.io.output_files import atomic_output, check_not_input
 from investigator.review.store import (
     Entry,
     ReviewStore,
@@ -185,8 +186,10 @@ def check_export(export: Path) -> None:
 
 
 def write_export(export: Path, path: Path, table, cases: dict[str, dict], history: list[Entry]) -> None:
-    tmp = export.with_name(export.name + ".part")
-    try:
+    """Write the verdicts of the store at ``path`` on the records of ``table`` to ``export`` (.csv, .json);
+    never over the data file or the store."""
+    check_not_input(export, [("data file", table.source.path), ("review store", path)], parameter="export")
+    with atomic_output(export, parameter="export") as tmp:  # never a half-written export under the real name
         if export.suffix.lower() == ".json":
             latest = {}
             for e in history:
@@ -202,11 +205,6 @@ def write_export(export: Path, path: Path, table, cases: dict[str, dict], histor
                            encoding="utf-8")
         else:
             _write_csv(tmp, cases, history)
-        tmp.replace(export)  # never a half-written export under the real name
-    except OSError as exc:
-        tmp.unlink(missing_ok=True)
-        raise InputError(f"export={export}: cannot write ({exc.strerror or exc}); check the folder is "
-                         "writable", parameters=("export",)) from None
 
 
 def _write_csv(tmp: Path, cases: dict[str, dict], history: list[Entry]) -> None:
