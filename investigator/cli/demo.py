@@ -20,7 +20,8 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
                           "fictional company) to a temporary folder, scan it and print the summary.")
     demo.add_argument("--out", metavar="FILE", help="also write the result (.json, .csv, .parquet)")
     demo.add_argument("--keep", metavar="FOLDER", help="write the demo CSV here instead of a temp folder")
-    demo.add_argument("--seed", metavar="N", type=int, default=0, help="random seed of the scan")
+    demo.add_argument("--seed", metavar="N", type=int, default=0,
+                      help="random seed of the scan, from 0 to 4294967295 (2**32 - 1; default 0)")
     return {"demo": run_demo}
 
 

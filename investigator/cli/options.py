@@ -35,7 +35,8 @@ def add_scan_options(p: argparse.ArgumentParser) -> None:
                    help="quantile each method flags above (default 0.975; chi-square for robust_distance)")
     p.add_argument("--contamination", metavar="F", type=float,
                    help="flag this share of records instead of using the cutoffs (e.g. 0.01)")
-    p.add_argument("--seed", metavar="N", type=int, default=0, help="random seed (default 0)")
+    p.add_argument("--seed", metavar="N", type=int, default=0,
+                   help="random seed, a whole number from 0 to 4294967295 (2**32 - 1; default 0)")
     p.add_argument("--sheet", metavar="NAME", help="worksheet of an .xlsx file (default: the first)")
     p.add_argument("--resamples", metavar="R", type=int, default=0,
                    help="re-run the methods on R random subsamples and report how often each flag recurs "
