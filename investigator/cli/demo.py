@@ -9,6 +9,7 @@ import tempfile
 from collections.abc import Callable
 from pathlib import Path
 
+from investigator.cli.echo import echo
 from investigator.cli.open import open_demo
 from investigator.cli.options import refuse_overwrite
 from investigator.progress import StderrBar
@@ -39,11 +40,11 @@ def run_demo(args: argparse.Namespace) -> int:
     path = write_demo(folder)
     if sys.stdin.isatty() and sys.stdout.isatty() and not args.out:  # a person at a terminal: the workspace
         return open_demo(path, args.seed, DEMO_ID)
-    print(f"Demo data written to {path}")
+    echo(f"Demo data written to {path}")
     result = scan(path, id=DEMO_ID, seed=args.seed, progress=StderrBar())
     if args.out:
         result.write(args.out)
-    print(result.summary())
+    echo(result.summary())
     if args.out:
-        print(f"Result written to {args.out}")
+        echo(f"Result written to {args.out}")
     return 0

@@ -6,6 +6,7 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
+from investigator.cli.echo import echo
 from investigator.cli.options import add_scan_options, refuse_overwrite, scan_parameters
 from investigator.errors import InputError
 from investigator.progress import StderrBar
@@ -38,5 +39,5 @@ def run_map(args: argparse.Namespace) -> int:
     result = scan(args.data, options=ScanOptions(**opts), progress=StderrBar())
     draw_map(result.map, result.flagged, result.consensus, result.groups, out,
              subtitle=f"{result.table.name}: {result.n_records:,} records, {int(result.flagged.sum()):,} flagged")
-    print(f"Map written to {out} ({result.run.map.method})")
+    echo(f"Map written to {out} ({result.run.map.method})")
     return 0

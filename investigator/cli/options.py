@@ -12,6 +12,7 @@ from pathlib import Path
 from investigator.errors import InputError
 from investigator.io.datasets import is_dataset, parquet_files
 from investigator.io.output_files import check_not_input
+from investigator.printable import printable
 from investigator.review.store import default_store_path
 
 METHOD_HELP = "robust_distance, local_density, isolation, neighbor_distance"
@@ -21,7 +22,8 @@ class Parser(argparse.ArgumentParser):
     """An argument parser whose usage errors are one line and exit with code 2, as every usage error."""
 
     def error(self, message: str) -> None:
-        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+        # The message can quote what was typed (an invalid choice): its control characters are escaped.
+        self.exit(2, f"{self.prog}: error: {printable(message)} (see {self.prog} --help)\n")
 
 
 def add_scan_options(p: argparse.ArgumentParser) -> None:

@@ -10,6 +10,7 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
+from investigator.cli.echo import echo
 from investigator.cli.options import add_scan_options, refuse_overwrite, scan_parameters
 from investigator.errors import InputError
 from investigator.progress import StderrBar
@@ -55,7 +56,7 @@ def run_report(args: argparse.Namespace) -> int:
     if out.suffix.lower() in (".html", ".htm"):
         shown = min(flagged, args.cases)
         left = f", {flagged - shown:,} left out (--cases)" if shown < flagged else ""
-        print(f"Report written to {out}: {flagged:,} flagged records, {shown:,} in detail{left}.")
+        echo(f"Report written to {out}: {flagged:,} flagged records, {shown:,} in detail{left}.")
     else:
-        print(f"Cases table written to {out}: {flagged:,} flagged records, plus any other record with a verdict.")
+        echo(f"Cases table written to {out}: {flagged:,} flagged records, plus any other record with a verdict.")
     return 0

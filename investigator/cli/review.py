@@ -10,6 +10,7 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
+from investigator.cli.echo import echo
 from investigator.cli.options import refuse_overwrite
 from investigator.errors import InputError
 from investigator.io.output_files import same_file
@@ -90,11 +91,11 @@ def run_verdict(args: argparse.Namespace) -> int:
     entry, before = record_verdict(table, position, state, args.note, path, reviewer=args.reviewer)
     said = f", note '{shown(entry.note)}'" if entry.note else ""
     was = f"; was {before.verdict}" if before else ""
-    print(f"{where(position + 1, table)}: {entry.verdict}{said} (by {shown(entry.reviewer)}{was}). "
+    echo(f"{where(position + 1, table)}: {entry.verdict}{said} (by {shown(entry.reviewer)}{was}). "
           f"Saved in {path}")
     copies = identical_rows(table, position, entry.fingerprint) if table.key_column is None else []
     if len(copies) > 1:
-        print(f"It applies to all {len(copies)} identical records (rows {row_list(copies)}); give --id COLUMN "
+        echo(f"It applies to all {len(copies)} identical records (rows {row_list(copies)}); give --id COLUMN "
               "to tell them apart.")
     return 0
 
@@ -118,9 +119,9 @@ def run_verdicts(args: argparse.Namespace) -> int:
     cases = case_rows(matching, current)
     if out is not None:
         write_export(out, path, table, cases, history)
-    print(listing(path, table, matching, history, exists=path.exists()))
+    echo(listing(path, table, matching, history, exists=path.exists()))
     if out is not None:
-        print(f"Verdicts written to {out}")
+        echo(f"Verdicts written to {out}")
     return 0
 
 

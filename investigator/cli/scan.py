@@ -8,6 +8,7 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
+from investigator.cli.echo import echo
 from investigator.cli.options import add_output_options, add_scan_options, refuse_overwrite, scan_parameters
 from investigator.errors import InputError
 from investigator.progress import StderrBar, silent
@@ -78,9 +79,9 @@ def run_scan(args: argparse.Namespace) -> int:
     if args.out:
         result.write(args.out)
     if not args.quiet:
-        print(result.summary(top=args.top))
+        echo(result.summary(top=args.top))
         if args.out:
-            print(f"Result written to {args.out}")
+            echo(f"Result written to {args.out}")
     return 0
 
 
@@ -93,5 +94,5 @@ def _scan_on_dask(args: argparse.Namespace, options) -> int:
                           workers=args.workers, worker_memory=args.worker_memory, top=args.top,
                           progress=silent if args.quiet else StderrBar())
     if not args.quiet:
-        print(result.summary())
+        echo(result.summary())
     return 0
