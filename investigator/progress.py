@@ -5,6 +5,8 @@ from __future__ import annotations
 import sys
 from collections.abc import Callable
 
+from investigator.printable import printable
+
 Progress = Callable[[str, float], None]
 
 
@@ -25,7 +27,7 @@ class StderrBar:
             return
         filled = int(round(self.width * max(0.0, min(1.0, fraction))))
         bar = "#" * filled + "-" * (self.width - filled)
-        self.stream.write(f"\r[{bar}] {fraction:4.0%} {stage:<28}")
+        self.stream.write(f"\r[{bar}] {fraction:4.0%} {printable(stage):<28}")  # a stage may name a column
         if fraction >= 1.0:
             self.stream.write("\r" + " " * (self.width + 40) + "\r")
         self.stream.flush()

@@ -9,7 +9,9 @@ import tempfile
 from collections.abc import Callable
 from pathlib import Path
 
+from investigator.cli.echo import echo
 from investigator.cli.open import open_demo
+from investigator.cli.options import refuse_overwrite
 from investigator.progress import StderrBar
 
 
@@ -19,25 +21,30 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
                           "fictional company) to a temporary folder, scan it and print the summary.")
     demo.add_argument("--out", metavar="FILE", help="also write the result (.json, .csv, .parquet)")
     demo.add_argument("--keep", metavar="FOLDER", help="write the demo CSV here instead of a temp folder")
-    demo.add_argument("--seed", metavar="N", type=int, default=0, help="random seed of the scan")
+    demo.add_argument("--seed", metavar="N", type=int, default=0,
+                      help="random seed of the scan, from 0 to 4294967295 (2**32 - 1; default 0)")
     return {"demo": run_demo}
 
 
 def run_demo(args: argparse.Namespace) -> int:
     # Deferred: the demo builder needs pandas (0.6 s), the engine 1.9 s (see investigator/cli/scan.py).
-    from investigator.io.demo import DEMO_ID, write_demo
+    from investigator.io.demo import DEMO_FILE, DEMO_ID, write_demo
+    from investigator.io.writers import check_out_path
     from investigator.pipeline.engine import scan
 
     folder = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="investigator-demo-"))
+    if args.out:  # before anything is written: a usable path, and not the demo file itself
+        check_out_path(Path(args.out))
+        refuse_overwrite(argparse.Namespace(data=str(folder / DEMO_FILE)), args.out)
     folder.mkdir(parents=True, exist_ok=True)
     path = write_demo(folder)
     if sys.stdin.isatty() and sys.stdout.isatty() and not args.out:  # a person at a terminal: the workspace
         return open_demo(path, args.seed, DEMO_ID)
-    print(f"Demo data written to {path}")
+    echo(f"Demo data written to {path}")
     result = scan(path, id=DEMO_ID, seed=args.seed, progress=StderrBar())
     if args.out:
         result.write(args.out)
-    print(result.summary())
+    echo(result.summary())
     if args.out:
-        print(f"Result written to {args.out}")
+        echo(f"Result written to {args.out}")
     return 0

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 from collections.abc import Callable
 
+from investigator.cli.echo import echo
 from investigator.cli.options import add_scan_options, scan_parameters
 from investigator.output.explanation import explanation_text
 from investigator.progress import StderrBar
@@ -29,5 +30,5 @@ def run_explain(args: argparse.Namespace) -> int:
     from investigator.pipeline.options import ScanOptions
 
     result = scan(args.data, options=ScanOptions(**scan_parameters(args)), progress=StderrBar())
-    print(explanation_text(result.explain(row=args.row, key=args.key, peers=args.peers)))
+    echo(explanation_text(result.explain(row=args.row, key=args.key, peers=args.peers)))
     return 0

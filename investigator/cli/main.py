@@ -15,8 +15,10 @@ from collections.abc import Callable
 from investigator.cli import demo, explain, report, review, scan
 from investigator.cli import map as map_command
 from investigator.cli import open as open_command
+from investigator.cli.echo import echo
 from investigator.cli.options import Parser, flag_message
 from investigator.errors import InputError
+from investigator.printable import printable
 from investigator.version import __version__
 
 DESCRIPTION = (
@@ -49,8 +51,8 @@ def main(argv: list[str] | None = None) -> int:
         return handlers[args.command](args)
     except InputError as exc:
         # The engine names its parameters as the API spells them; here they are the flags (--cutoff 1.5).
-        message = flag_message(exc).replace("\r", "\\r").replace("\n", "\\n")  # always one line
-        print(f"investigator {args.command}: error: {message}", file=sys.stderr)
+        # Always one line, and names from the data cannot drive the terminal: line breaks and controls escaped.
+        echo(f"investigator {args.command}: error: {printable(flag_message(exc))}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("investigator: interrupted", file=sys.stderr)
@@ -61,8 +63,8 @@ def main(argv: list[str] | None = None) -> int:
     except Exception as exc:  # an internal error: one line, the traceback only on request
         if os.environ.get("INVESTIGATOR_DEBUG"):
             raise
-        print(
-            f"investigator {args.command}: internal error: {type(exc).__name__}: {exc} "
+        echo(
+            f"investigator {args.command}: internal error: {type(exc).__name__}: {printable(exc)} "
             "(set INVESTIGATOR_DEBUG=1 to see the traceback, and please report it)",
             file=sys.stderr,
         )

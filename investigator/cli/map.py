@@ -6,7 +6,8 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
-from investigator.cli.options import add_scan_options, scan_parameters
+from investigator.cli.echo import echo
+from investigator.cli.options import add_scan_options, refuse_overwrite, scan_parameters
 from investigator.errors import InputError
 from investigator.progress import StderrBar
 
@@ -25,6 +26,7 @@ def run_map(args: argparse.Namespace) -> int:
     out = Path(args.out)
     if out.suffix.lower() != ".png" or not out.parent.exists():
         raise InputError(f"--out {out}: give a .png file in an existing folder")
+    refuse_overwrite(args, out)
     opts = scan_parameters(args)
     opts.setdefault("map", "auto")
     if opts["map"] == "none":
@@ -37,5 +39,5 @@ def run_map(args: argparse.Namespace) -> int:
     result = scan(args.data, options=ScanOptions(**opts), progress=StderrBar())
     draw_map(result.map, result.flagged, result.consensus, result.groups, out,
              subtitle=f"{result.table.name}: {result.n_records:,} records, {int(result.flagged.sum()):,} flagged")
-    print(f"Map written to {out} ({result.run.map.method})")
+    echo(f"Map written to {out} ({result.run.map.method})")
     return 0

@@ -7,8 +7,13 @@ from __future__ import annotations
 
 import argparse
 import re
+from pathlib import Path
 
 from investigator.errors import InputError
+from investigator.io.datasets import is_dataset, parquet_files
+from investigator.io.output_files import check_not_input
+from investigator.printable import printable
+from investigator.review.store import default_store_path
 
 METHOD_HELP = "robust_distance, local_density, isolation, neighbor_distance"
 
@@ -17,7 +22,8 @@ class Parser(argparse.ArgumentParser):
     """An argument parser whose usage errors are one line and exit with code 2, as every usage error."""
 
     def error(self, message: str) -> None:
-        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+        # The message can quote what was typed (an invalid choice): its control characters are escaped.
+        self.exit(2, f"{self.prog}: error: {printable(message)} (see {self.prog} --help)\n")
 
 
 def add_scan_options(p: argparse.ArgumentParser) -> None:
@@ -31,7 +37,8 @@ def add_scan_options(p: argparse.ArgumentParser) -> None:
                    help="quantile each method flags above (default 0.975; chi-square for robust_distance)")
     p.add_argument("--contamination", metavar="F", type=float,
                    help="flag this share of records instead of using the cutoffs (e.g. 0.01)")
-    p.add_argument("--seed", metavar="N", type=int, default=0, help="random seed (default 0)")
+    p.add_argument("--seed", metavar="N", type=int, default=0,
+                   help="random seed, a whole number from 0 to 4294967295 (2**32 - 1; default 0)")
     add_reading_options(p)
     p.add_argument("--resamples", metavar="R", type=int, default=0,
                    help="re-run the methods on R random subsamples and report how often each flag recurs "
@@ -82,6 +89,33 @@ def scan_parameters(args: argparse.Namespace) -> dict:
         "keep_reference_outliers": getattr(args, "keep_reference_outliers", False),
     }
     return {k: v for k, v in given.items() if v is not None}
+
+
+def command_inputs(args: argparse.Namespace) -> list[tuple[str, str | Path | None]]:
+    """What a command reads and must never write over: the data (each file of a Parquet dataset), the
+    reference, the limits file and the review store (given, or the default one beside the data)."""
+    data = getattr(args, "data", None)
+    inputs: list[tuple[str, str | Path | None]] = []
+    store = getattr(args, "store", None)
+    if data is not None and is_dataset(data):
+        try:
+            files = parquet_files(data)
+        except InputError:  # no Parquet files there: reported by the scan itself, nothing to overwrite
+            files = []
+        folder = [("data folder", data)] if Path(data).is_dir() else []  # a glob: its files are the inputs
+        inputs += [*folder, *(("data file", f) for f in files)]
+    elif data is not None:
+        inputs += [("data file", data), ("review store", store or default_store_path(data))]
+    return [*inputs, ("reference file", getattr(args, "reference", None)),
+            ("limits file", getattr(args, "limits", None)), ("review store", store)]
+
+
+def refuse_overwrite(args: argparse.Namespace, out: str | Path | None, *, parameter: str = "out",
+                     folder: bool = False) -> None:
+    """Refuse, before any work, an output path (``--out``, ``--export``) that is one of the command's inputs.
+    Every command that writes a file calls this first; the writers check again before writing."""
+    if out is not None:
+        check_not_input(out, command_inputs(args), parameter=parameter, folder=folder)
 
 
 # Flags spelled otherwise than `--` + the API parameter with dashes for underscores. `scan_dataset` is how the

@@ -10,7 +10,8 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
-from investigator.cli.options import add_scan_options, scan_parameters
+from investigator.cli.echo import echo
+from investigator.cli.options import add_scan_options, refuse_overwrite, scan_parameters
 from investigator.errors import InputError
 from investigator.progress import StderrBar
 from investigator.report import DEFAULT_CASES, check_report_path, write_report
@@ -43,6 +44,7 @@ def run_report(args: argparse.Namespace) -> int:
 
     out = Path(args.out)
     check_report_path(out)
+    refuse_overwrite(args, out)
     if args.cases < 0:
         raise InputError(f"--cases {args.cases}: give 0 or more (the number of cases explained in detail)")
     if args.store is not None and not Path(args.store).is_file():
@@ -54,7 +56,7 @@ def run_report(args: argparse.Namespace) -> int:
     if out.suffix.lower() in (".html", ".htm"):
         shown = min(flagged, args.cases)
         left = f", {flagged - shown:,} left out (--cases)" if shown < flagged else ""
-        print(f"Report written to {out}: {flagged:,} flagged records, {shown:,} in detail{left}.")
+        echo(f"Report written to {out}: {flagged:,} flagged records, {shown:,} in detail{left}.")
     else:
-        print(f"Cases table written to {out}: {flagged:,} flagged records, plus any other record with a verdict.")
+        echo(f"Cases table written to {out}: {flagged:,} flagged records, plus any other record with a verdict.")
     return 0

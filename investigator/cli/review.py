@@ -10,8 +10,10 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
-from investigator.cli.options import add_reading_options
+from investigator.cli.echo import echo
+from investigator.cli.options import add_reading_options, refuse_overwrite
 from investigator.errors import InputError
+from investigator.io.output_files import same_file
 from investigator.review.store import (
     VERDICT_MEANING,
     VERDICTS,
@@ -72,7 +74,7 @@ def _add_common(p: argparse.ArgumentParser) -> None:
 def store_path(args: argparse.Namespace) -> Path:
     path = Path(args.store) if args.store else default_store_path(args.data)
     data = Path(args.data)
-    if data.exists() and path.exists() and path.resolve() == data.resolve():
+    if data.exists() and path.exists() and same_file(path, data):  # also through a symbolic or hard link
         raise InputError(f"--store {path}: is the data file itself; give another path for the store")
     return path
 
@@ -90,11 +92,11 @@ def run_verdict(args: argparse.Namespace) -> int:
     entry, before = record_verdict(table, position, state, args.note, path, reviewer=args.reviewer)
     said = f", note '{shown(entry.note)}'" if entry.note else ""
     was = f"; was {before.verdict}" if before else ""
-    print(f"{where(position + 1, table)}: {entry.verdict}{said} (by {shown(entry.reviewer)}{was}). "
+    echo(f"{where(position + 1, table)}: {entry.verdict}{said} (by {shown(entry.reviewer)}{was}). "
           f"Saved in {path}")
     copies = identical_rows(table, position, entry.fingerprint) if table.key_column is None else []
     if len(copies) > 1:
-        print(f"It applies to all {len(copies)} identical records (rows {row_list(copies)}); give --id COLUMN "
+        echo(f"It applies to all {len(copies)} identical records (rows {row_list(copies)}); give --id COLUMN "
               "to tell them apart.")
     return 0
 
@@ -106,6 +108,7 @@ def run_verdicts(args: argparse.Namespace) -> int:
     out = Path(args.export) if args.export else None
     if out is not None:
         check_export(out)
+        refuse_overwrite(args, out, parameter="export")
     table = load_table(args.data, sheet=args.sheet, id_column=args.id, decimal=args.decimal,
                        header_row=args.header_row)
     path = store_path(args)
@@ -118,9 +121,9 @@ def run_verdicts(args: argparse.Namespace) -> int:
     cases = case_rows(matching, current)
     if out is not None:
         write_export(out, path, table, cases, history)
-    print(listing(path, table, matching, history, exists=path.exists()))
+    echo(listing(path, table, matching, history, exists=path.exists()))
     if out is not None:
-        print(f"Verdicts written to {out}")
+        echo(f"Verdicts written to {out}")
     return 0
 
 

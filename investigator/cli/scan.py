@@ -8,7 +8,8 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
-from investigator.cli.options import add_output_options, add_scan_options, scan_parameters
+from investigator.cli.echo import echo
+from investigator.cli.options import add_output_options, add_scan_options, refuse_overwrite, scan_parameters
 from investigator.errors import InputError
 from investigator.progress import StderrBar, silent
 
@@ -59,6 +60,7 @@ def run_scan(args: argparse.Namespace) -> int:
 
     options = ScanOptions(**scan_parameters(args))
     if getattr(args, "engine", "memory") == "dask":
+        refuse_overwrite(args, args.out, folder=True)
         return _scan_on_dask(args, options)
     for flag in ("scheduler", "workers", "worker_memory"):
         if getattr(args, flag, None) is not None:
@@ -67,6 +69,7 @@ def run_scan(args: argparse.Namespace) -> int:
         from investigator.io.writers import check_out_path  # pandas and pyarrow: 0.6 s, see above
 
         check_out_path(Path(args.out))
+        refuse_overwrite(args, args.out)  # before any work: never over the data, the reference or the store
     progress = silent if args.quiet else StderrBar()
     if args.command == "check":
         result = check(args.data, reference=args.reference, reference_sheet=args.reference_sheet,
@@ -76,9 +79,9 @@ def run_scan(args: argparse.Namespace) -> int:
     if args.out:
         result.write(args.out)
     if not args.quiet:
-        print(result.summary(top=args.top))
+        echo(result.summary(top=args.top))
         if args.out:
-            print(f"Result written to {args.out}")
+            echo(f"Result written to {args.out}")
     return 0
 
 
@@ -91,5 +94,5 @@ def _scan_on_dask(args: argparse.Namespace, options) -> int:
                           workers=args.workers, worker_memory=args.worker_memory, top=args.top,
                           progress=silent if args.quiet else StderrBar())
     if not args.quiet:
-        print(result.summary())
+        echo(result.summary())
     return 0

@@ -25,6 +25,7 @@ import pyarrow.parquet as pq
 from investigator.errors import InputError
 from investigator.io.datasets import PARQUET_SUFFIXES, is_dataset, parquet_files
 from investigator.io.numbers import DECIMALS, NumberColumn, read_numbers
+from investigator.printable import printable
 
 MIN_ROWS = 5
 CSV_SUFFIXES = {".csv", ".txt", ".tsv", ".tab"}
@@ -682,8 +683,9 @@ def _check_key_values(values: pd.Series, column: str, name: str) -> None:
 
 
 def _show(name) -> str:
-    """A name or value fit for a one-line message: line breaks (common in spreadsheet headers) escaped."""
-    return str(name).replace("\r", "\\r").replace("\n", "\\n")
+    """A name or value fit for a one-line message: line breaks (common in spreadsheet headers) and terminal
+    control codes escaped, so a message is one line and a file cannot drive the terminal that shows it."""
+    return printable(name)
 
 
 def name_list(names, limit: int = 12) -> str:

@@ -1,5 +1,6 @@
 """What writing results needs, whatever is written: JSON text without NaN, spreadsheet-safe CSV cells, and a
-usable --out path checked before any work. Which result goes into which file is the output layer's
+usable --out path checked before any work (that it is never an input of the run, and the writing itself, are
+:mod:`investigator.io.output_files`). Which result goes into which file is the output layer's
 (:mod:`investigator.output.records`).
 
 CSV cells that a spreadsheet would run as a formula (starting with = + - @, a tab or a carriage return) are
@@ -60,3 +61,5 @@ def check_out_path(path: Path) -> None:
                          parameters=("path",))
     if not path.parent.exists():
         raise InputError(f"path={path}: folder {path.parent} does not exist; create it first", parameters=("path",))
+    if path.is_dir():
+        raise InputError(f"path={path}: is a folder; give a file name such as result{suffix}", parameters=("path",))

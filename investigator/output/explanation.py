@@ -1,8 +1,14 @@
-"""An explanation as terminal text: one sentence first, then the tables."""
+"""An explanation as terminal text: one sentence first, then the tables.
+
+Feature names, keys and values from the data are shown through :func:`printable` (terminal control codes
+escaped, the rest as it is) before they are padded; :func:`format_value` itself keeps the value as it is,
+for the report and the cases table, which escape for their own formats.
+"""
 
 from __future__ import annotations
 
 from investigator.explain.explanation import Explanation, Typical, TypicalLevel
+from investigator.printable import printable
 
 # How often a flag recurs over resampled runs (--resamples) for it to be called stable or unstable.
 STABLE = 0.9
@@ -29,17 +35,22 @@ def format_value(value) -> str:
     return str(value)
 
 
+def shown_value(value) -> str:
+    """:func:`format_value` fit for a terminal: control codes escaped."""
+    return printable(format_value(value))
+
+
 def typical_text(t: Typical) -> str:
     """A typical range in words: the commonest level and its share, or the median and the quartiles."""
     if isinstance(t, TypicalLevel):
-        return f"mostly {t.level} ({t.share:.0%})"
+        return f"mostly {printable(t.level)} ({t.share:.0%})"
     return f"{format_value(t.median)} ({format_value(t.q1)} to {format_value(t.q3)})"
 
 
 def headline_text(e: Explanation) -> str:
     """The first sentence of an explanation: flagged or not and why, rank and consensus, the main reasons."""
     m = len(e.method_scores)
-    who = f"Record {e.key}" + (f" (row {e.row})" if e.key != e.row else "")
+    who = f"Record {printable(e.key)}" + (f" (row {e.row})" if e.key != e.row else "")
     why = e.flag_reason or ""
     if e.flagged and why.startswith("far beyond ") and why != "far beyond combined":
         names = why.removeprefix("far beyond ")
@@ -59,11 +70,12 @@ def headline_text(e: Explanation) -> str:
     parts = []
     for t in e.top_features[:2]:
         if t.direction == "rarer":
-            parts.append(f"{t.feature} has a rare value ({format_value(t.value)}; typical: {typical_text(t.typical)})")
+            parts.append(f"{printable(t.feature)} has a rare value ({shown_value(t.value)}; typical: "
+                         f"{typical_text(t.typical)})")
         elif t.direction in ("higher", "lower"):
             median = t.typical.median if not isinstance(t.typical, TypicalLevel) else None
-            parts.append(f"{t.feature} is {t.direction} than typical ({format_value(t.value)} against "
-                         f"a median of {format_value(median)})")
+            parts.append(f"{printable(t.feature)} is {t.direction} than typical ({shown_value(t.value)} against "
+                         f"a median of {shown_value(median)})")
     if parts:
         intro = " It stands out mainly because " if e.votes else " Its largest deviations: "
         lead += intro + " and ".join(parts) + "."
@@ -78,8 +90,8 @@ def explanation_text(e: Explanation) -> str:
         lines.append(f"Flagged in {seen} of {runs} resampled runs: {stability_label(e.stability)}.")
     nearest = e.nearest_ordinary
     if nearest:
-        change = " and ".join(f"{c.feature} {format_value(c.after)} instead of {format_value(c.before)}"
-                          for c in nearest.changes)
+        change = " and ".join(f"{printable(c.feature)} {shown_value(c.after)} instead of "
+                          f"{shown_value(c.before)}" for c in nearest.changes)
         if nearest.features_changed > 2:
             lines.append("No change to one or two features alone brings it under the robust_distance cutoff.")
         lines.append(f"Smallest change found that brings it under the robust_distance cutoff: {change} "
@@ -89,7 +101,7 @@ def explanation_text(e: Explanation) -> str:
         lines.append("No change to the features robust_distance uses brings it under its cutoff.")
     lines += ["", "Methods", f"  {'method':<18} {'score':>10} {'cutoff':>10}  flag  top features"]
     for key, m in e.method_scores.items():
-        tops = ", ".join(f"{c.feature} {c.share:.0%}" for c in e.contributions_of(key)[:3])
+        tops = ", ".join(f"{printable(c.feature)} {c.share:.0%}" for c in e.contributions_of(key)[:3])
         flag = "yes" if m.flag else "no"
         lines.append(f"  {key:<18} {m.score:>10.4g} {m.cutoff:>10.4g}  {flag:<4}  {tops}")
     if any(c.share < 0 for c in e.contributions_of("robust_distance")):
@@ -100,29 +112,30 @@ def explanation_text(e: Explanation) -> str:
                   f"  {'feature':<16} {'value':>12}  {'direction':<9} {'typical (median, IQR)':<28} "
                   f"{'z':>6} {'share':>6}  methods"]
         for t in e.top_features:
-            lines.append(f"  {t.feature:<16} {format_value(t.value):>12}  {t.direction:<9} "
+            lines.append(f"  {printable(t.feature):<16} {shown_value(t.value):>12}  {t.direction:<9} "
                          f"{typical_text(t.typical):<28} {t.robust_z:>6.1f} {t.share:>6.0%}  "
                          f"{', '.join(t.methods)}")
     if e.column_hits:
         lines += ["", "Column hits"]
         for h in e.column_hits:
             side = "above" if h["side"] == "upper" else "below"
-            lines.append(f"  {h['column']}: {h['rule']} ({format_value(h['value'])} is {side} "
-                         f"{format_value(h['limit'])})")
+            lines.append(f"  {printable(h['column'])}: {h['rule']} ({shown_value(h['value'])} is {side} "
+                         f"{shown_value(h['limit'])})")
     peers = e.peers.records
     if peers:
         names = [t.feature for t in e.top_features[:4]] or list(peers[0].values)[:4]
         lines += ["", f"Peers: the {len(peers)} nearest unflagged records",
-                  f"  {'row':>6} {'key':<14} {'distance':>8}  " + "  ".join(f"{n[:12]:>12}" for n in names)]
+                  f"  {'row':>6} {'key':<14} {'distance':>8}  "
+                  + "  ".join(f"{printable(n)[:12]:>12}" for n in names)]
         own = {t.feature: t.value for t in e.top_features}
-        lines.append(f"  {'this':>6} {str(e.key)[:14]:<14} {'':>8}  "
-                     + "  ".join(f"{format_value(own.get(n)):>12}" for n in names))
+        lines.append(f"  {'this':>6} {printable(e.key)[:14]:<14} {'':>8}  "
+                     + "  ".join(f"{shown_value(own.get(n)):>12}" for n in names))
         for p in peers:
-            lines.append(f"  {p.row:>6} {str(p.key)[:14]:<14} {p.distance:>8.2f}  "
-                         + "  ".join(f"{format_value(p.values.get(n)):>12}" for n in names))
+            lines.append(f"  {p.row:>6} {printable(p.key)[:14]:<14} {p.distance:>8.2f}  "
+                         + "  ".join(f"{shown_value(p.values.get(n)):>12}" for n in names))
         diffs = e.peers.differences
         if diffs:
             lines.append("  Differences that matter most: " + "; ".join(
-                f"{d.feature} {format_value(d.value)} vs {format_value(d.peers)}" for d in diffs))
+                f"{printable(d.feature)} {shown_value(d.value)} vs {shown_value(d.peers)}" for d in diffs))
     lines += ["", "A flag is a lead for a person to review, not proof of error or fraud."]
     return "\n".join(lines)

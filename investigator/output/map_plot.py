@@ -6,6 +6,9 @@ triangles with a dark edge, so the map reads without colour too; their fill runs
 uniform colour map (plasma) by consensus, with a colour bar. Groups are outlined by the convex hull of
 their members' positions, widened by a small margin, and labelled with id and size; large clusters (kinds
 of normal) get a grey label at their median position and no outline.
+
+The PNG is written under a temporary name and renamed when complete (:func:`atomic_output`), so a killed
+run or a full disk leaves no empty or truncated PNG, and an earlier map of the same name stays intact.
 """
 
 from __future__ import annotations
@@ -18,6 +21,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from scipy.spatial import ConvexHull
 
+from investigator.io.output_files import atomic_output
 from investigator.structure.groups import Grouping
 
 MAX_LABELS = 20  # groups labelled by id and size (the largest); the rest are outlined only
@@ -92,7 +96,8 @@ def draw_map(coords: np.ndarray, flagged: np.ndarray, consensus: np.ndarray, gro
     fig.legend(handles=handles, loc="lower left", bbox_to_anchor=(0.07, 0.02), ncol=3, frameon=False,
                fontsize=9)
     path = Path(path)
-    fig.savefig(path, dpi=dpi, format="png")
+    with atomic_output(path, parameter="path") as tmp:
+        fig.savefig(tmp, dpi=dpi, format="png")
     return path
 
 

@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from investigator.explain.explanation import Explanation
+from investigator.io.output_files import atomic_output, check_not_input
 from investigator.io.writers import check_out_path, safe_frame, to_json_text
 
 if TYPE_CHECKING:
@@ -123,16 +124,26 @@ def to_dict(result: ScanResult) -> dict:
 def write_result(result: ScanResult, path: Path) -> Path:
     """Write ``result`` to ``path``; the format follows the extension (.json, .csv, .parquet)."""
     check_out_path(path)
+    check_not_input(path, result_inputs(result), parameter="path")
     suffix = path.suffix.lower()
-    tmp = path.with_name(path.name + ".part")
-    if suffix == ".json":
-        tmp.write_text(to_json_text(to_dict(result)), encoding="utf-8")
-    elif suffix == ".csv":
-        safe_frame(_key_as_text(to_frame(result))).to_csv(tmp, index=False, lineterminator="\n")
-    else:
-        _key_as_text(to_frame(result)).to_parquet(tmp, index=False)
-    tmp.replace(path)  # never leave a half-written output under the real name
+    with atomic_output(path, parameter="path") as tmp:  # never a half-written output under the real name
+        if suffix == ".json":
+            tmp.write_text(to_json_text(to_dict(result)), encoding="utf-8")
+        elif suffix == ".csv":
+            safe_frame(_key_as_text(to_frame(result))).to_csv(tmp, index=False, lineterminator="\n")
+        else:
+            _key_as_text(to_frame(result)).to_parquet(tmp, index=False)
     return path
+
+
+def result_inputs(result: ScanResult) -> list[tuple[str, str | None]]:
+    """The files a scan read, none of which an output may replace: the data, the reference, the limits file
+    and the review store."""
+    run = result.run
+    return [("data file", result.table.source.path),
+            ("reference file", run.reference.input.path if run.reference is not None else None),
+            ("limits file", result.options.limits),
+            ("review store", run.review_store)]
 
 
 def _key_as_text(frame: pd.DataFrame) -> pd.DataFrame:

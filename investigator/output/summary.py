@@ -1,8 +1,14 @@
-"""The short text summary printed by ``investigator scan``."""
+"""The short text summary printed by ``investigator scan``.
+
+Names and keys from the data pass through :func:`printable` (terminal control codes escaped) before they
+are padded, so the columns stay aligned and a file cannot drive the user's terminal.
+"""
 
 from __future__ import annotations
 
 from typing import TYPE_CHECKING
+
+from investigator.printable import printable
 
 if TYPE_CHECKING:  # this layer reads the result it is given; it never imports the pipeline
     from investigator.pipeline.dask_engine import DatasetScan
@@ -15,7 +21,7 @@ CAUTION = (
 
 
 def _short(value, width: int = 14) -> str:
-    text = str(value)
+    text = printable(value)
     return text if len(text) <= width else text[: width - 1] + "~"
 
 
@@ -24,14 +30,14 @@ def summary_text(result: ScanResult, top: int = 10) -> str:
     lines = []
     src = run.input
     digest = src.sha256 or ""
-    lines.append(f"Scanned {result.table.name}" + (f" (sha256 {digest[:12]}...)" if digest else ""))
-    lines.append(f"{src.rows:,} records, {src.columns} columns, key: {src.key}")
+    lines.append(f"Scanned {printable(result.table.name)}" + (f" (sha256 {digest[:12]}...)" if digest else ""))
+    lines.append(f"{src.rows:,} records, {src.columns} columns, key: {printable(src.key)}")
     feats = []
     for spec in result.features.specs:
         tag = {"log": " (log)", "rarity": " (category)"}.get(spec.transform, "")
-        feats.append(spec.name + tag)
+        feats.append(printable(spec.name) + tag)
     lines.append(f"Features ({len(feats)}): " + ", ".join(feats))
-    left = [f"{c.name} ({c.role})" for c in result.columns if not c.is_feature]
+    left = [f"{printable(c.name)} ({c.role})" for c in result.columns if not c.is_feature]
     if left:
         lines.append("Left out: " + ", ".join(left))
     lines += _how_scored(run, list(result.method_results), "Notices:")
@@ -41,7 +47,7 @@ def summary_text(result: ScanResult, top: int = 10) -> str:
     if run.reference is not None:
         ref = run.reference
         path = ref.input.path if ref.input.path is not None else "a data frame"
-        lines.append(f"Reference: {path}, {ref.used:,} of {ref.input.rows:,} records used (phase I left out "
+        lines.append(f"Reference: {printable(path)}, {ref.used:,} of {ref.input.rows:,} records used (phase I left out "
                      f"{ref.phase_i.excluded:,}); hotelling reported beside the methods, without a vote")
     out_of_spec = result.out_of_spec
     if out_of_spec is not None:
@@ -52,14 +58,14 @@ def summary_text(result: ScanResult, top: int = 10) -> str:
     for col, tests in benford.items():
         for label, key in (("first digit", "first_digit"), ("first two digits", "first_two_digits")):
             t = tests[key]
-            warn = ("; " + "; ".join(t["warnings"])) if t["warnings"] else ""
-            lines.append(f"Benford {label}, {col}: MAD {t['mad']:.4f} ({t['conformity']}), {t['used']:,} "
+            warn = ("; " + "; ".join(map(printable, t["warnings"]))) if t["warnings"] else ""
+            lines.append(f"Benford {label}, {printable(col)}: MAD {t['mad']:.4f} ({t['conformity']}), {t['used']:,} "
                          f"values; most over-represented: {', '.join(map(str, t['excess_digits']))}{warn}")
     if benford:
         lines.append("  " + next(iter(benford.values()))["first_digit"]["caution"])
     dup = screens.get("duplicates")
     if dup:
-        lines.append(f"Same values on {', '.join(dup['columns'])}: {dup['n_groups']:,} groups, "
+        lines.append(f"Same values on {', '.join(map(printable, dup['columns']))}: {dup['n_groups']:,} groups, "
                      f"{dup['records_in_groups']:,} records")
     n, flagged = result.n_records, int(result.flagged.sum())
     with_hits = sum(1 for h in result.column_hits if h)
@@ -78,7 +84,7 @@ def summary_text(result: ScanResult, top: int = 10) -> str:
         m = sum(1 for r in results.values() if r.method.votes)  # hotelling does not vote
         for i in order:
             strongest = sorted((k for k, r in results.items() if r.flags[i]), key=lambda k: -results[k].z[i])
-            cols = sorted({h["column"] for h in result.column_hits[i]})
+            cols = sorted({printable(h["column"]) for h in result.column_hits[i]})
             detail = f"{result.flag_reason[i]} | " + ", ".join(strongest) + (f" | {', '.join(cols)}" if cols else "")
             stable = ""
             if result.stability is not None:
@@ -98,10 +104,11 @@ def dataset_summary_text(scan: DatasetScan) -> str:
     """The summary of a Dask scan (:class:`investigator.pipeline.dask_engine.DatasetScan`)."""
     run, top = scan.run, scan.top
     src, fitted = run.input, run.fitted
-    lines = [f"Scanned {src.path} on Dask ({run.cluster['scheduler']})",
-             f"{src.rows:,} records in {src.partitions} partitions ({src.files} files), key: {src.key}",
+    lines = [f"Scanned {printable(src.path)} on Dask ({run.cluster['scheduler']})",
+             f"{src.rows:,} records in {src.partitions} partitions ({src.files} files), key: {printable(src.key)}",
              f"Fitted on a random sample of {run.fit.sample:,} records"]
-    feats = [s.name + {"log": " (log)", "rarity": " (category)"}.get(s.transform, "") for s in fitted.features]
+    feats = [printable(s.name) + {"log": " (log)", "rarity": " (category)"}.get(s.transform, "")
+             for s in fitted.features]
     lines.append(f"Features ({len(feats)}): " + ", ".join(feats))
     lines += _how_scored(fitted, list(fitted.methods), "Notices (from the sample):")
     n, flagged = src.rows or 0, run.flagged
@@ -112,7 +119,7 @@ def dataset_summary_text(scan: DatasetScan) -> str:
         m = len(fitted.methods) - ("hotelling" in fitted.methods)
         for r in top.itertuples(index=False):
             lines.append(f"  {r.row:>9}  {_short(r.key):<14} {r.consensus:>9.3f} {r.votes:>2}/{m:<2}  "
-                         f"{r.top_features}")
+                         f"{printable(r.top_features)}")
     lines += ["", f"Results: {scan.out} (Parquet, one file per partition; run record in {scan.out}/_run.json)",
               "", CAUTION]
     return "\n".join(lines)
@@ -123,7 +130,7 @@ __all__ = ["CAUTION", "dataset_summary_text", "summary_text"]
 
 def _how_scored(run, methods: list[str], heading: str) -> list[str]:
     """The notices, the methods with the neighbour search, and the flag rule of a run record."""
-    lines = [heading, *(f"  - {n}" for n in run.notices)] if run.notices else []
+    lines = [heading, *(f"  - {printable(n)}" for n in run.notices)] if run.notices else []
     nb = run.neighbors
     search = f"; neighbours: {nb.search}, k={nb.k}" if nb else ""
     return [*lines, "Methods: " + ", ".join(methods) + search, "Rule: " + run.rule]

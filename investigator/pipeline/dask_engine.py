@@ -22,7 +22,6 @@ from __future__ import annotations
 import json
 import logging
 import os
-import shutil
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
@@ -36,6 +35,7 @@ from dask.distributed import Client, LocalCluster, as_completed
 
 from investigator.errors import InputError
 from investigator.io.datasets import PARQUET_SUFFIXES, is_dataset, parquet_files
+from investigator.io.output_files import check_not_input, part_path, remove, write_error
 from investigator.io.tables import MIN_ROWS, Source, Table, read_parquet_schema
 from investigator.output.summary import dataset_summary_text
 from investigator.pipeline.options import ScanOptions
@@ -197,6 +197,10 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
     started = datetime.now(UTC).replace(microsecond=0).isoformat()
     progress("opening the dataset", 0.01)
     files, ddf = open_dataset(data)
+    # The results folder is replaced as a whole: it must hold none of the inputs, nor lie in the data folder.
+    folder = [("data folder", str(data))] if Path(str(data)).is_dir() else []
+    check_not_input(out, [*folder, *(("data file", f) for f in files), ("limits file", options.limits)],
+                    parameter="out", folder=True)
     if options.id is not None and options.id not in ddf.columns:
         raise InputError(f"{data}: `id` column '{options.id}' not found; columns are: "
                          f"{', '.join(map(str, ddf.columns[:12]))}", parameters=("id",))
@@ -229,25 +233,33 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
         progress("scoring the partitions", 0.4)
         shared = client.scatter(model, broadcast=True)
         scored = ddf.map_partitions(_score, shared, offsets, meta, meta=meta).to_delayed()
-        tmp = out.with_name(out.name + ".part")
-        if tmp.exists():
-            shutil.rmtree(tmp)
-        tmp.mkdir()
+        tmp = part_path(out)
+        remove(tmp)  # left by a killed run
+        try:
+            tmp.mkdir()
+        except OSError as exc:
+            raise write_error(out, exc, "out") from None
         # One task per partition scores it, writes its file and returns its counts and top records, so the
         # results are read once and progress can be shown partition by partition.
         columns = ["row", "key", "consensus", "consensus_z", "votes", "top_features"]
         writes = [delayed(_write_part)(part, str(tmp / SCORES_FILE.format(i)), list(model.fitted_methods), columns, top)
                   for i, part in enumerate(scored)]
         summaries = []
-        for done, future in enumerate(as_completed(client.compute(writes)), 1):
-            summaries.append(future.result())
-            progress(f"scored {done:,} of {len(writes):,} partitions", 0.4 + 0.55 * done / len(writes))
-        top_frame, counts = _combine_summaries(summaries, top)
-        run = _run_record(model, data, files, lengths, fit_sample, cluster_info, counts, started, out)
-        (tmp / RUN_FILE).write_text(json.dumps(run.to_dict(), indent=1, default=_plain) + "\n", encoding="utf-8")
-        if out.exists():
-            shutil.rmtree(out)  # an earlier results folder (checked above), replaced by the complete new one
-        tmp.replace(out)
+        try:
+            for done, future in enumerate(as_completed(client.compute(writes)), 1):
+                summaries.append(future.result())
+                progress(f"scored {done:,} of {len(writes):,} partitions", 0.4 + 0.55 * done / len(writes))
+            top_frame, counts = _combine_summaries(summaries, top)
+            run = _run_record(model, data, files, lengths, fit_sample, cluster_info, counts, started, out)
+            (tmp / RUN_FILE).write_text(json.dumps(run.to_dict(), indent=1, default=_plain) + "\n",
+                                        encoding="utf-8")
+            _replace_folder(tmp, out)
+        except OSError as exc:
+            remove(tmp)
+            raise write_error(out, exc, "out") from None
+        except BaseException:
+            remove(tmp)
+            raise
     finally:
         if own:
             cluster = getattr(client, "cluster", None)
@@ -256,6 +268,23 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
                 cluster.close()
     progress("done", 1.0)
     return DatasetScan(out, run, top_frame)
+
+
+def _replace_folder(new: Path, out: Path) -> None:
+    """Put the complete folder ``new`` at ``out``; an earlier results folder there (checked before the run)
+    is moved aside first and removed only once the new one is in place, so a failure keeps it."""
+    if not out.exists():
+        new.replace(out)
+        return
+    old = out.with_name(out.name + ".old")
+    remove(old)
+    out.replace(old)
+    try:
+        new.replace(out)
+    except OSError:
+        old.replace(out)
+        raise
+    remove(old)
 
 
 def _write_part(frame: pd.DataFrame, path: str, methods: list[str], columns: list[str], top: int) -> dict:

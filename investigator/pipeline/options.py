@@ -9,6 +9,10 @@ from investigator.io.tables import check_reading_options
 from investigator.methods import METHOD_KEYS
 
 MAP_METHODS = ("none", "auto", "umap", "pca")
+# The seed reaches NumPy's legacy RandomState (scikit-learn's and UMAP's random_state), whose seeds are the
+# 32-bit unsigned integers (NumPy documentation, numpy.random.RandomState: "must be convertible to 32 bit
+# unsigned integers"); the Generator-based draws take any of those too.
+SEED_MAX = 2**32 - 1
 
 
 def _names(value, parameter: str) -> tuple[str, ...] | None:
@@ -91,13 +95,14 @@ class ScanOptions:
                     f"{self.contamination:g}",
                     parameters=("contamination",),
                 )
-        if isinstance(self.seed, bool) or not isinstance(self.seed, int) or self.seed < 0:
+        if isinstance(self.seed, bool) or not isinstance(self.seed, int) or not 0 <= self.seed <= SEED_MAX:
             try:
                 seed = int(str(self.seed))
             except ValueError:
                 seed = -1
-            if seed < 0:
-                raise InputError(f"`seed` must be a whole number >= 0, not '{self.seed}'", parameters=("seed",))
+            if not 0 <= seed <= SEED_MAX:
+                raise InputError(f"`seed` must be a whole number from 0 to {SEED_MAX:,} (2**32 - 1), not "
+                                 f"'{self.seed}'", parameters=("seed",))
             set_(self, "seed", seed)
 
         try:

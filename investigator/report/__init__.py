@@ -13,6 +13,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 
 from investigator.errors import InputError
+from investigator.io.output_files import atomic_output, check_not_input
 
 FORMATS = (".html", ".htm", ".xlsx", ".csv")
 DEFAULT_CASES = 50
@@ -48,9 +49,12 @@ def write_report(result, out: str | Path, *, cases: int = DEFAULT_CASES, store: 
         raise InputError(f"cases={cases}: give 0 or more (the number of cases explained in detail)",
                          parameters=("cases",))
     review = read_review(result, store)
+    # Deferred as above: the output layer, which lists a scan's inputs, imports pandas (0.6 s).
+    from investigator.output.records import result_inputs
+
+    check_not_input(path, [*result_inputs(result), ("review store", review.path)], parameter="out")
     suffix = path.suffix.lower()
-    tmp = path.with_name(path.name + ".part")
-    try:
+    with atomic_output(path, parameter="out") as tmp:  # never a half-written report under the real name
         if suffix in (".html", ".htm"):
             from investigator.report.html import render_html
 
@@ -62,13 +66,6 @@ def write_report(result, out: str | Path, *, cases: int = DEFAULT_CASES, store: 
 
             headers, rows = table_rows(result, build_cases(result, review))
             (write_csv if suffix == ".csv" else write_xlsx)(tmp, headers, rows)
-        tmp.replace(path)  # never a half-written report under the real name
-    except OSError as exc:
-        tmp.unlink(missing_ok=True)
-        raise InputError(f"out={path}: cannot write ({exc.strerror or exc}); check the folder is writable",
-                         parameters=("out",)) from None
-    finally:
-        tmp.unlink(missing_ok=True)
     return path
 
 

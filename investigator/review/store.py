@@ -5,6 +5,10 @@ Every change is one row of ``history``, written in its own transaction; nothing 
 (the TUI) and a writer (a CLI command) work at once, and ``busy_timeout`` makes two writers wait for each
 other instead of failing (SQLite documentation: "Write-Ahead Logging", "PRAGMA busy_timeout").
 
+A write that fails (a full disk, SQLITE_FULL) leaves the store as it was: SQLite rolls the transaction back,
+sometimes by itself ("Response To Errors Within A Transaction"), so the rollback here is done only while a
+transaction is still open, and the user gets the one-line reason rather than the rollback's own complaint.
+
 Only the standard library is imported here, so ``investigator --help`` stays fast.
 """
 
@@ -16,7 +20,7 @@ import sqlite3
 import threading
 import time
 from collections.abc import Iterator
-from contextlib import contextmanager
+from contextlib import contextmanager, suppress
 from dataclasses import asdict, dataclass
 from datetime import UTC, datetime
 from pathlib import Path
@@ -239,7 +243,7 @@ class ReviewStore:
             db.execute(f"PRAGMA application_id = {APPLICATION_ID}")
             db.execute("COMMIT")
         except BaseException:
-            db.execute("ROLLBACK")
+            _rollback(db)
             raise
 
     def close(self) -> None:
@@ -263,8 +267,7 @@ class ReviewStore:
                     yield self._db
                     self._db.execute("COMMIT")
                 except BaseException:
-                    if self._db.in_transaction:
-                        self._db.execute("ROLLBACK")
+                    _rollback(self._db)
                     raise
             except sqlite3.Error as exc:
                 raise _store_error(self.path, exc) from None
@@ -336,6 +339,21 @@ class ReviewStore:
         return found[0] if found else None
 
 
+def _rollback(db: sqlite3.Connection) -> None:
+    """Roll back the open transaction, if SQLite has not already done so after the error; a failing rollback
+    is not reported over the error that led here (the journal restores the store on the next open)."""
+    if db.in_transaction:
+        with suppress(sqlite3.Error):
+            db.execute("ROLLBACK")
+
+
+def _full(exc: sqlite3.Error) -> bool:
+    # SQLITE_FULL ("database or disk is full"): the disk is full, or the store reached its page limit. The
+    # primary code is the low byte of the extended one (SQLite documentation, "Result and Error Codes").
+    code = getattr(exc, "sqlite_errorcode", None)
+    return (code is not None and code & 0xFF == sqlite3.SQLITE_FULL) or "disk is full" in str(exc)
+
+
 def _busy(exc: sqlite3.Error) -> bool:
     text = str(exc)
     return "locked" in text or "busy" in text
@@ -343,10 +361,16 @@ def _busy(exc: sqlite3.Error) -> bool:
 
 def _store_error(path: Path, exc: sqlite3.Error) -> InputError:
     reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+    if _full(exc):
+        return InputError(f"review store {path}: the disk (or the store) is full, so nothing was saved; earlier "
+                          "verdicts and notes are kept; free some space and try again, or give another store=PATH",
+                          parameters=("store",))
     if _busy(exc):
         fix = f"another program held it for over {BUSY_TIMEOUT_MS // 1000} s; try again"
     elif "not a database" in reason or "malformed" in reason:
         fix = "it is not a readable review store; give another store=PATH"
+    elif "disk I/O error" in reason:
+        fix = "nothing was saved; the disk may be full or failing: check it, or give another store=PATH"
     else:
         fix = "check the folder exists and is writable, or give another store=PATH"
     return InputError(f"review store {path}: {reason}; {fix}", parameters=("store",))

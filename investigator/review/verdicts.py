@@ -12,6 +12,8 @@ import json
 from pathlib import Path
 
 from investigator.errors import InputError
+from investigator.io.output_files import atomic_output, check_not_input
+from investigator.printable import printable
 from investigator.review.store import (
     Entry,
     ReviewStore,
@@ -92,10 +94,10 @@ def case_rows(matching, current: list[Entry]) -> dict[str, dict]:
 
 def listing(path: Path, table, matching, history: list[Entry], *, exists: bool) -> str:
     if not exists:
-        return f"No verdicts yet: there is no review store at {path}."
-    how = f"by key ({table.key_column})" if table.key_column else "by content (no --id)"
-    lines = [f"Review store {path}: {len(history)} change{'s' * (len(history) != 1)}.",
-             "", f"Verdicts on the records of {table.name}, matched {how}:"]
+        return f"No verdicts yet: there is no review store at {shown(path)}."
+    how = f"by key ({shown(table.key_column)})" if table.key_column else "by content (no --id)"
+    lines = [f"Review store {shown(path)}: {len(history)} change{'s' * (len(history) != 1)}.",
+             "", f"Verdicts on the records of {shown(table.name)}, matched {how}:"]
     if not matching.matches:
         lines.append("  none")
     for _, m in sorted(matching.matches.items()):
@@ -140,7 +142,7 @@ def listing(path: Path, table, matching, history: list[Entry], *, exists: bool) 
 def where(row: int, table) -> str:
     if table.key_column is None:
         return f"row {row}"
-    return f"row {row} ({table.key_column} {shown(table.keys[row - 1])})"
+    return f"row {row} ({shown(table.key_column)} {shown(table.keys[row - 1])})"
 
 
 def row_list(rows: list[int], limit: int = 10) -> str:
@@ -150,7 +152,7 @@ def row_list(rows: list[int], limit: int = 10) -> str:
 
 def shown(text: object) -> str:
     """User text on one line, with control characters escaped (no terminal escape sequences get through)."""
-    return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii") for c in str(text))
+    return printable(text)
 
 
 def _label(case_id: str) -> str:
@@ -185,8 +187,10 @@ def check_export(export: Path) -> None:
 
 
 def write_export(export: Path, path: Path, table, cases: dict[str, dict], history: list[Entry]) -> None:
-    tmp = export.with_name(export.name + ".part")
-    try:
+    """Write the verdicts of the store at ``path`` on the records of ``table`` to ``export`` (.csv, .json);
+    never over the data file or the store."""
+    check_not_input(export, [("data file", table.source.path), ("review store", path)], parameter="export")
+    with atomic_output(export, parameter="export") as tmp:  # never a half-written export under the real name
         if export.suffix.lower() == ".json":
             latest = {}
             for e in history:
@@ -202,11 +206,6 @@ def write_export(export: Path, path: Path, table, cases: dict[str, dict], histor
                            encoding="utf-8")
         else:
             _write_csv(tmp, cases, history)
-        tmp.replace(export)  # never a half-written export under the real name
-    except OSError as exc:
-        tmp.unlink(missing_ok=True)
-        raise InputError(f"export={export}: cannot write ({exc.strerror or exc}); check the folder is "
-                         "writable", parameters=("export",)) from None
 
 
 def _write_csv(tmp: Path, cases: dict[str, dict], history: list[Entry]) -> None:

@@ -16,6 +16,7 @@ from textual.reactive import reactive
 from textual.worker import Worker, WorkerState
 
 from investigator.errors import InputError
+from investigator.printable import printable
 from investigator.tui import jobs
 from investigator.tui.models.columns import ColumnChoices
 from investigator.tui.models.map import group_labels, map_coords
@@ -86,7 +87,7 @@ class InvestigatorApp(App):
 
     def open_path(self, path: str | Path) -> None:
         self.path = Path(path)
-        self.sub_title = self.path.name  # the name only: fits 80 columns
+        self.sub_title = printable(self.path.name)  # the name only: fits 80 columns
         self.load_error = None
         options = self.base_options
         self.run_worker(lambda: jobs.load(self.path, options), thread=True, name="load",
@@ -108,15 +109,15 @@ class InvestigatorApp(App):
 
     def start_scan(self) -> None:
         if self.loaded is None:
-            self.notify("Nothing loaded to scan.", severity="warning")
+            self.notify_plain("Nothing loaded to scan.", severity="warning")
             return
         if self.token is not None:
-            self.notify("A scan is running (esc cancels it).", severity="warning")
+            self.notify_plain("A scan is running (esc cancels it).", severity="warning")
             return
         try:
             options = self.scan_options()
         except InputError as exc:
-            self.notify(self.error_text(exc), severity="error")
+            self.notify_plain(self.error_text(exc), severity="error")
             return
         token = self.token = jobs.CancelToken()
         table, store = self.loaded.table, self.store_path()
@@ -147,6 +148,11 @@ class InvestigatorApp(App):
         if handler is not None:
             handler(worker.result if state == WorkerState.SUCCESS else None, worker.error)
 
+    def notify_plain(self, message: str, **kwargs) -> None:
+        """A notification whose text is shown as it is: it can quote names, keys and notes from the data, which
+        must neither be read as markup (``[/]`` would stop the app) nor drive the terminal."""
+        self.notify(printable(message), markup=False, **kwargs)
+
     def _message(self, error: BaseException) -> str:
         if isinstance(error, InputError):
             return self.error_text(error).replace("\n", " ")
@@ -168,10 +174,10 @@ class InvestigatorApp(App):
         self.progress = None
         if error is not None:
             if isinstance(error, jobs.ScanCancelled):
-                self.notify("Scan cancelled; the previous result (if any) is kept.")
+                self.notify_plain("Scan cancelled; the previous result (if any) is kept.")
             else:
                 self.last_error = self._message(error)
-                self.notify(self.last_error, severity="error", timeout=10)
+                self.notify_plain(self.last_error, severity="error", timeout=10)
             return
         result, cases = value
         self.views = ViewCache(result)
@@ -202,7 +208,7 @@ class InvestigatorApp(App):
 
     def _done_explain(self, _value, error) -> None:
         if error is not None:
-            self.notify(self._message(error), severity="error")
+            self.notify_plain(self._message(error), severity="error")
 
     def request_map(self) -> None:
         if self.result is None or self.map_points is not None:
@@ -213,7 +219,7 @@ class InvestigatorApp(App):
 
     def _done_map(self, value, error) -> None:
         if error is not None:
-            self.notify(self._message(error), severity="error")
+            self.notify_plain(self._message(error), severity="error")
         else:
             self.map_points = value
 
@@ -232,13 +238,13 @@ class InvestigatorApp(App):
 
     def _done_verdict(self, value, error) -> None:
         if error is not None:
-            self.notify(f"Verdict not saved: {self._message(error)}", severity="error", timeout=10)
+            self.notify_plain(f"Verdict not saved: {self._message(error)}", severity="error", timeout=10)
             return
         entry, verdicts, notes = value
         self.result.verdicts, self.result.notes = verdicts, notes
         self.cases.set_verdicts(verdicts, notes)
         self.review_version += 1
-        self.notify(f"Saved: {entry.key or 'row ' + str(entry.row)} is {entry.verdict} "
+        self.notify_plain(f"Saved: {entry.key or 'row ' + str(entry.row)} is {entry.verdict} "
                     f"(in {self.store_path().name})")
 
     def open_group(self, position: int) -> None:
@@ -248,7 +254,7 @@ class InvestigatorApp(App):
         gid = int(grouping.group[position]) if grouping is not None else -1
         case = next((c for c in cases if c.group == gid), None)
         if case is None:
-            self.notify("This record is not in a group of unusual records.", timeout=4)
+            self.notify_plain("This record is not in a group of unusual records.", timeout=4)
             return
         self.push_screen(GroupScreen(case, jobs.group_verdict(case, self.store_path())))
 
@@ -264,10 +270,10 @@ class InvestigatorApp(App):
                 entry = jobs.save_group_verdict(case, state, note, self.store_path(),
                                                 self.result.run.started, self.result.table.source.sha256)
             except Exception as exc:  # a store problem: one line, the UI goes on
-                self.notify(f"Verdict not saved: {self._message(exc)}", severity="error", timeout=10)
+                self.notify_plain(f"Verdict not saved: {self._message(exc)}", severity="error", timeout=10)
                 return
             screen.set_verdict(entry.verdict)
-            self.notify(f"Saved: group {case.group} is {entry.verdict} (in {self.store_path().name})")
+            self.notify_plain(f"Saved: group {case.group} is {entry.verdict} (in {self.store_path().name})")
 
         self.push_screen(ask, save)
 

@@ -8,6 +8,7 @@ from textual.screen import Screen
 from textual.widgets import Footer, Header, Input, Static
 
 from investigator.tui.models.cases import NO_VERDICT, CaseFilter
+from investigator.tui.plain import plain
 from investigator.tui.settings import mark_hint_seen
 from investigator.tui.widgets.cases_table import CasesTable
 from investigator.tui.widgets.scan_progress import ScanProgress
@@ -99,10 +100,10 @@ class CasesScreen(Screen):
         verdict = data.verdicts[p] or "none"
         note = f" ({data.notes[p]})" if data.notes[p] else ""
         flag = f"FLAG ({data.reason[p]})" if data.flagged[p] else "not flagged"
-        detail.update(
+        detail.update(plain(
             f"{data.keys[p]} (row {data.rows[p]}, rank {data.rank[p]:,}): {flag}, "
             f"above the cutoff of {', '.join(which) or 'no method'}. Column hits: {hit_text}. "
-            f"Verdict: {verdict}{note}")
+            f"Verdict: {verdict}{note}"))
 
     def on_cases_table_selected(self, event: CasesTable.Selected) -> None:
         self.app.open_record(event.position, self.table.order)

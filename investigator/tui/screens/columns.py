@@ -9,6 +9,7 @@ from textual.containers import Vertical
 from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Header, Input, Static
 
+from investigator.tui.plain import plain
 from investigator.tui.widgets.scan_progress import ScanProgress
 
 HEADERS = ("column", "role", "type", "missing", "distinct", "log", "distribution")
@@ -51,9 +52,9 @@ class ColumnsScreen(Screen):
             return
         t = loaded.table
         key = f", key column '{t.key_column}'" if t.key_column else ", no key column (records by row)"
-        self.query_one("#columns-title", Static).update(
+        self.query_one("#columns-title", Static).update(plain(
             f"{t.name}: {t.n_rows:,} records, {len(loaded.rows)} columns{key}. "
-            "space: feature/excluded · l: log · s: scan")
+            "space: feature/excluded · l: log · s: scan"))
         for r in loaded.rows:
             table.add_row(*self._cells(r), key=r.name)
         table.focus()
@@ -63,8 +64,8 @@ class ColumnsScreen(Screen):
         choices, decided = self.app.choices, self.app.logged()
         role = choices.role(r.name)
         shown = role if role == r.role else f"{role} (was {r.role})"
-        return (r.name, shown, r.dtype, f"{r.missing:,}", f"{r.distinct:,}", choices.log_label(r.name, decided),
-                r.sketch)
+        return tuple(map(plain, (r.name, shown, r.dtype, f"{r.missing:,}", f"{r.distinct:,}",
+                                 choices.log_label(r.name, decided), r.sketch)))
 
     def _refresh_cells(self) -> None:
         loaded = self.app.loaded
@@ -79,7 +80,7 @@ class ColumnsScreen(Screen):
         box = self.query_one("#load-error")
         box.set_class(error is None, "hidden")
         if error is not None:
-            self.query_one("#load-error-text", Static).update(f"Could not open the file: {error}")
+            self.query_one("#load-error-text", Static).update(plain(f"Could not open the file: {error}"))
             self.query_one("#columns-title", Static).update("No data loaded.")
             self.query_one("#other-file", Input).focus()
 
@@ -93,7 +94,7 @@ class ColumnsScreen(Screen):
         name = self._current()
         if name is not None:
             r = next(r for r in self.app.loaded.rows if r.name == name)
-            self.query_one("#column-why", Static).update(f"{name}: {r.reason}")
+            self.query_one("#column-why", Static).update(plain(f"{name}: {r.reason}"))
 
     def on_data_table_row_highlighted(self, _event) -> None:
         self._why()
@@ -104,7 +105,7 @@ class ColumnsScreen(Screen):
         if name is not None:
             problem = self.app.choices.toggle_role(name)
             if problem:
-                self.notify(problem, severity="warning")
+                self.app.notify_plain(problem, severity="warning")
             self._refresh_cells()
 
     def action_toggle_log(self) -> None:
@@ -112,7 +113,7 @@ class ColumnsScreen(Screen):
         if name is not None:
             problem = self.app.choices.toggle_log(name, self.app.logged())
             if problem:
-                self.notify(problem, severity="warning")
+                self.app.notify_plain(problem, severity="warning")
             self._refresh_cells()
 
     def action_scan(self) -> None:

@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from rich.table import Table
+from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import VerticalScroll
@@ -12,6 +13,7 @@ from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
 from investigator.output.explanation import format_value
+from investigator.tui.plain import plain
 
 if TYPE_CHECKING:  # the engine's types; the screen only reads them
     from investigator.structure.cases import GroupCase
@@ -52,14 +54,15 @@ class GroupScreen(Screen):
         for col in ("feature", "group", "rest", "difference"):
             table.add_column(col, justify="left" if col == "feature" else "right")
         for p in self.case.profile[:8]:
-            table.add_row(p.feature, format_value(p.group), format_value(p.rest), f"{p.difference:+.1f}")
+            table.add_row(plain(p.feature), plain(format_value(p.group)), plain(format_value(p.rest)),
+                          f"{p.difference:+.1f}")
         return table
 
-    def _members(self) -> str:
+    def _members(self) -> Text:
         members = self.case.members
         shown = ", ".join(f"{m.key} (row {m.row})" for m in members[:MEMBERS_SHOWN])
         more = f" and {len(members) - MEMBERS_SHOWN} more" if len(members) > MEMBERS_SHOWN else ""
-        return shown + more
+        return plain(shown + more)
 
     def set_verdict(self, verdict: str) -> None:
         self.verdict = verdict

@@ -7,6 +7,7 @@ from textual.binding import Binding
 from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
+from investigator.tui.plain import plain
 from investigator.tui.widgets.map_canvas import MapCanvas
 
 LEGEND = "⠂ ordinary  ◆ flagged alone  1-9 flagged, in group  + cursor"
@@ -42,11 +43,11 @@ class MapScreen(Screen):
         if d is None or p is None:
             return
         flag = "FLAG" if d.flagged[p] else "not flagged"
-        self.query_one("#map-status", Static).update(
+        self.query_one("#map-status", Static).update(plain(
             f"At the cursor: {d.keys[p]} (row {d.rows[p]}) · rank {d.rank[p]:,} · {flag} · "
             f"consensus {d.consensus[p]:.4f} · "
             f"votes {d.votes[p]}/{len(d.methods)} · verdict {d.verdicts[p] or 'none'} · enter opens it"
-            + (" · o opens its group" if self.app.group_labels is not None and self.app.group_labels[p] > 0 else ""))
+            + (" · o opens its group" if self.app.group_labels is not None and self.app.group_labels[p] > 0 else "")))
 
     def on_map_canvas_opened(self, event: MapCanvas.Opened) -> None:
         self.app.open_record(event.position, self.app.cases.ranking)

@@ -15,6 +15,7 @@ from textual.widgets import Footer, Header, Static
 from investigator.explain.explanation import Explanation
 from investigator.output.explanation import format_value, typical_text
 from investigator.tui.models.record import RecordView
+from investigator.tui.plain import plain
 from investigator.tui.widgets.contribution_bars import ContributionBars
 
 DEBOUNCE_S = 0.06  # moving fast through records asks the engine only for the one the user stops on
@@ -114,24 +115,24 @@ class RecordScreen(Screen):
         verdict = d.verdicts[p] or "none"
         note = f" ({d.notes[p]})" if d.notes[p] else ""
         flag = f"FLAG ({d.reason[p]})" if d.flagged[p] else "not flagged"
-        self.query_one("#record-head", Static).update(
+        self.query_one("#record-head", Static).update(plain(
             f"Record {d.keys[p]} · row {d.rows[p]} · rank {d.rank[p]:,} · {flag} · consensus "
             f"{d.consensus[p]:.4f} · votes {d.votes[p]}/{len(d.methods)} · verdict: {verdict}{note} · "
-            f"{self.index + 1} of {len(self.order)}")
+            f"{self.index + 1} of {len(self.order)}"))
 
     def _draw(self, view: RecordView) -> None:
         self.view = view
         e = view.explanation
-        self.query_one("#record-headline", Static).update(view.headline)
-        self.query_one("#record-change", Static).update(_change(e))
+        self.query_one("#record-headline", Static).update(plain(view.headline))
+        self.query_one("#record-change", Static).update(plain(_change(e)))
         self.query_one("#record-methods", Static).update(_methods(e))
         self.query_one(ContributionBars).show(e)
         self.query_one("#record-values", Static).update(_values(view))
         hits = e.column_hits
-        self.query_one("#record-hits", Static).update(
+        self.query_one("#record-hits", Static).update(plain(
             "\n".join(f"{h['column']}: {h['rule']} ({format_value(h['value'])} is "
                       f"{'above' if h['side'] == 'upper' else 'below'} {format_value(h['limit'])})" for h in hits)
-            or "none: no single column is out of the ordinary by the per-column rules")
+            or "none: no single column is out of the ordinary by the per-column rules"))
         self.query_one("#record-peers", Static).update(_peers(view))
 
 
@@ -156,7 +157,7 @@ def _methods(e: Explanation) -> Table:
     for key, m in e.method_scores.items():
         tops = ", ".join(f"{c.feature} {c.share:.0%}" for c in e.contributions_of(key)[:2])
         verdict = "yes: above" if m.flag else "no: below"
-        t.add_row(key, f"{m.score:.4g}", f"{m.cutoff:.4g}", verdict, tops, style="bold" if m.flag else "")
+        t.add_row(key, f"{m.score:.4g}", f"{m.cutoff:.4g}", verdict, plain(tops), style="bold" if m.flag else "")
     return t
 
 
@@ -168,22 +169,23 @@ def _values(view: RecordView) -> Table:
     for v in view.values:
         mark = {"higher": "▲ higher", "lower": "▼ lower", "rarer": "◆ rare"}.get(top.get(v.feature), "")
         value = format_value(v.value) + (" (imputed)" if v.imputed else "")
-        t.add_row(v.feature, value, typical_text(v.typical), f"{v.robust_z:+.1f}", mark, style="bold" if mark else "")
+        t.add_row(plain(v.feature), plain(value), plain(typical_text(v.typical)), f"{v.robust_z:+.1f}", mark,
+                  style="bold" if mark else "")
     return t
 
 
-def _peers(view: RecordView) -> Table | str:
+def _peers(view: RecordView) -> Table | Text:
     e = view.explanation
     peers = e.peers.records
     if not peers:
-        return "no unflagged peers"
+        return plain("no unflagged peers")
     names = [t.feature for t in e.top_features[:4]] or list(peers[0].values)[:4]
     t = Table(box=None, padding=(0, 1), show_edge=False)
     t.add_column("record")
     for n in names:
-        t.add_column(n[:12], justify="right")
+        t.add_column(plain(n, 12), justify="right")
     own = {v.feature: v.value for v in view.values}
-    t.add_row(f"this ({e.key})", *[format_value(own.get(n)) for n in names], style="bold")
+    t.add_row(plain(f"this ({e.key})"), *[plain(format_value(own.get(n))) for n in names], style="bold")
     for p in peers:
-        t.add_row(f"{p.key} d={p.distance:.2f}", *[format_value(p.values.get(n)) for n in names])
+        t.add_row(plain(f"{p.key} d={p.distance:.2f}"), *[plain(format_value(p.values.get(n))) for n in names])
     return t

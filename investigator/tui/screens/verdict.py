@@ -10,6 +10,8 @@ from textual.screen import ModalScreen
 from textual.widget import Widget
 from textual.widgets import Input, Label, Static
 
+from investigator.tui.plain import plain
+
 LETTERS = {"o": "open", "c": "confirmed", "b": "benign", "f": "follow-up"}
 
 
@@ -52,7 +54,7 @@ class VerdictScreen(ModalScreen[tuple[str, str] | None]):
     def compose(self) -> ComposeResult:
         with Vertical(id="verdict-box"):
             what = f"record {self.key} (row {self.row})" if self.row is not None else self.key
-            yield Label(f"Verdict on {what}; now: {self.verdict or 'none'}")
+            yield Label(plain(f"Verdict on {what}; now: {self.verdict or 'none'}"))
             yield StatePicker(self.verdict or "confirmed", id="verdict-state")
             yield Input(value=self.note or "", placeholder="note (optional)", id="verdict-note")
             yield Static("letter: state · type the note · enter saves · esc cancels", classes="dim")

@@ -14,6 +14,7 @@ from textual.message import Message
 from textual.reactive import reactive
 from textual.widget import Widget
 
+from investigator.printable import printable
 from investigator.tui.models.cases import CasesData
 
 SHORT = {"robust_distance": "robust", "local_density": "density", "isolation": "isolation",
@@ -189,7 +190,7 @@ class CasesTable(Widget, can_focus=True):
             here = i == self.cursor
             line = "› " if here else "  "  # the cursor has a symbol too, not only reverse video
             for cid, _, w in cols:
-                text = self._cell(cid, p)[:w]
+                text = printable(self._cell(cid, p))[:w]  # keys can hold control codes
                 line += (text.rjust(w) if cid in self.data.scores or cid in ("rank", "consensus", "votes")
                          else text.ljust(w)) + " "
             style = "reverse" if here and self.has_focus else "bold" if here else ""

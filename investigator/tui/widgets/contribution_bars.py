@@ -10,12 +10,14 @@ from rich.text import Text
 from textual.widgets import Static
 
 from investigator.explain.explanation import Contribution, Explanation
+from investigator.printable import printable
 
 
 def bars_text(contributions: dict[str, tuple[Contribution, ...]], flags: dict[str, bool], width: int = 80,
               top: int = 4) -> Text:
     out = Text()
-    name_w = min(16, max((len(c.feature) for v in contributions.values() for c in v[:top]), default=8))
+    name_w = min(16, max((len(printable(c.feature)) for v in contributions.values() for c in v[:top]),
+                         default=8))
     bar_w = max(8, width - name_w - 12)
     for method, items in contributions.items():
         mark = "flags it" if flags.get(method) else "does not flag it"
@@ -27,7 +29,7 @@ def bars_text(contributions: dict[str, tuple[Contribution, ...]], flags: dict[st
             share = c.share
             n = max(0, min(bar_w, round(abs(share) * bar_w)))
             bar = ("█" if share >= 0 else "░") * n
-            out.append(f"  {c.feature[:name_w]:<{name_w}} ")
+            out.append(f"  {printable(c.feature)[:name_w]:<{name_w}} ")
             out.append(f"{bar:<{bar_w}}", style="bold" if flags.get(method) else "")
             out.append(f" {share:>+5.0%}\n")
     return out

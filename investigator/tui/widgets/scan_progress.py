@@ -6,6 +6,8 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal
 from textual.widgets import Label, ProgressBar
 
+from investigator.tui.plain import plain
+
 
 class ScanProgress(Horizontal):
     DEFAULT_CSS = """
@@ -27,4 +29,4 @@ class ScanProgress(Horizontal):
         if progress is not None:
             stage, fraction = progress
             self.query_one(ProgressBar).update(progress=round(100 * fraction))
-            self.query_one("#scan-stage", Label).update(f"{stage} (esc cancels)")
+            self.query_one("#scan-stage", Label).update(plain(f"{stage} (esc cancels)"))
