@@ -75,16 +75,19 @@ def _reason(t: TopFeature, e: Explanation) -> str | None:
 
 def pulling_text(e: Explanation) -> str | None:
     """The features that pull the record toward ordinary, per method, as a plain sentence (None if none)."""
-    parts = []
+    parts, count = [], 0
     for key in e.method_scores:
         names = [c.feature for c in e.pulling(key)[:3]]
         if names:
             verb = "makes" if len(names) == 1 else "make"
             parts.append(f"{', '.join(names)} {verb} it look more ordinary to {key}")
+            count += len(names)
+
     if not parts:
         return None
-    return ("; ".join(parts) + " (given the other features, these values bring the record closer to the "
-            "centre; shares are of what pushes the record out).")
+    these = "its value brings" if count == 1 else "these values bring"
+    return ("Pulling toward ordinary: " + "; ".join(parts) + f" (given the other features, {these} the record "
+            "closer to the centre; shares are of what pushes the record out).")
 
 
 def nearest_sentence(nearest: NearestOrdinary) -> str:
@@ -148,7 +151,7 @@ def explanation_text(e: Explanation) -> str:
         lines.append(f"  {key:<18} {m.score:>10.4g} {m.cutoff:>10.4g}  {flag:<4}  {tops}")
     pulling = pulling_text(e)
     if pulling:
-        lines.append("  " + pulling[0].upper() + pulling[1:])
+        lines.append("  " + pulling)
     if e.top_features:
         lines += ["", "Features that stand out (across methods)",
                   f"  {'feature':<16} {'value':>12}  {'direction':<34} {'z':>6} {'share':>6}  methods  typical"]

@@ -563,7 +563,7 @@ def _case(result, c: Case) -> Safe:
          for k, m in e.method_scores.items()], numeric=(1, 2)))
     pulling = pulling_text(e)
     if pulling:
-        parts.append(tag("p", pulling[0].upper() + pulling[1:]))
+        parts.append(tag("p", pulling))
     if e.top_features:
         parts.append(tag("h4", "Features that stand out (across methods)"))
         parts.append(table(
