@@ -20,7 +20,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from investigator.explain.explanation import Explanation, Typical
+from investigator.explain.explanation import Explanation
+from investigator.explain.typical import TypicalValues
 from investigator.explain.view import Pool, build_pool, explain_positions, top_features_texts, typical_ranges
 
 if TYPE_CHECKING:  # the result is the pipeline's; this layer only reads it
@@ -32,7 +33,7 @@ class Explainer:
     elsewhere (a fitted model); otherwise built from the result when first needed."""
 
     def __init__(self, result: ScanResult, *, pool: Pool | None = None,
-                 typical: tuple[Typical, ...] | None = None) -> None:
+                 typical: TypicalValues | None = None) -> None:
         self.result = result
         self._lock = threading.RLock()  # re-entrant: building the flagged explanations builds the pool
         self._pool = pool
@@ -48,8 +49,9 @@ class Explainer:
             return self._pool
 
     @property
-    def typical(self) -> tuple[Typical, ...]:
-        """Per feature, what an ordinary record looks like (in the order of ``result.features``)."""
+    def typical(self) -> TypicalValues:
+        """Per feature, what an ordinary record looks like (in the order of ``result.features``; grouped by
+        category where one takes part, see :meth:`TypicalValues.of`)."""
         with self._lock:
             if self._typical is None:
                 self._typical = typical_ranges(self.pool)

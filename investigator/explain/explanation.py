@@ -17,14 +17,21 @@ from dataclasses import dataclass
 
 @dataclass(frozen=True, slots=True)
 class TypicalRange:
-    """What an ordinary record's number looks like: median and quartiles in the column's own units."""
+    """What an ordinary record's number looks like: median and quartiles in the column's own units, over
+    ``records`` ordinary records: those of the record's own category (``group`` = the category column,
+    ``level`` its level) or all of them (``group`` None; ``note`` says why when a category was too small)."""
 
     median: float
     q1: float
     q3: float
+    records: int = 0
+    group: str | None = None
+    level: str | None = None
+    note: str | None = None
 
     def to_dict(self) -> dict:
-        return {"median": self.median, "q1": self.q1, "q3": self.q3}
+        return {"median": self.median, "q1": self.q1, "q3": self.q3, "records": self.records,
+                "group": self.group, "level": self.level, "note": self.note}
 
 
 @dataclass(frozen=True, slots=True)
@@ -35,7 +42,7 @@ class TypicalLevel:
     share: float
 
     def to_dict(self) -> dict:
-        return {"level": self.level, "share": self.share}
+        return {"level": self.level, "share": self.share, "group": None}
 
 
 Typical = TypicalRange | TypicalLevel
@@ -60,7 +67,9 @@ class MethodScore:
 
 @dataclass(frozen=True, slots=True)
 class Contribution:
-    """One feature's part in one method's score: the contribution value and its share."""
+    """One feature's part in one method's score: the contribution value as computed (signed: a negative
+    robust_distance value pulls the record toward ordinary) and its share of what pushes the record out
+    (value / sum of the positive values; 0 for a feature that pulls it in, so the shares add up to 1)."""
 
     feature: str
     value: float
@@ -73,8 +82,10 @@ class Contribution:
 @dataclass(frozen=True, slots=True)
 class TopFeature:
     """A feature of the combined view: the record's raw value (a level, a number, or None when it was
-    imputed), its direction, the typical range, the robust z the methods saw, the mean share and the keys
-    of the methods that point at it."""
+    imputed), its direction (explain/typical.py: ``higher`` / ``lower`` outside the typical range, ``within``
+    it, ``combination`` inside it with a large share, ``rarer`` / ``common`` for a level), the typical range
+    (the record's own category's where grouped), the robust z the methods saw, the mean share, the keys of
+    the methods that point at it, and for ``combination`` the feature it combines with (``with_feature``)."""
 
     feature: str
     value: float | str | None
@@ -84,11 +95,12 @@ class TopFeature:
     share: float
     methods: tuple[str, ...]
     imputed: bool
+    with_feature: str | None = None
 
     def to_dict(self) -> dict:
         return {"feature": self.feature, "value": self.value, "direction": self.direction,
                 "typical": self.typical.to_dict(), "robust_z": self.robust_z, "share": self.share,
-                "methods": list(self.methods), "imputed": self.imputed}
+                "methods": list(self.methods), "imputed": self.imputed, "with_feature": self.with_feature}
 
 
 @dataclass(frozen=True, slots=True)
@@ -149,7 +161,9 @@ class Change:
 
 @dataclass(frozen=True, slots=True)
 class NearestOrdinary:
-    """The smallest change that brings the record under a method's cutoff (robust_distance)."""
+    """The smallest change that brings the record under a method's cutoff (robust_distance), kept within the
+    observed range of ordinary records and whole for whole-number columns; ``reaches_cutoff`` False when
+    no such change was found and this is the closest one (``distance_after`` still above ``cutoff``)."""
 
     method: str
     features_changed: int
@@ -157,11 +171,13 @@ class NearestOrdinary:
     distance_before: float
     distance_after: float
     cutoff: float
+    reaches_cutoff: bool = True
 
     def to_dict(self) -> dict:
         return {"method": self.method, "features_changed": self.features_changed,
                 "changes": [c.to_dict() for c in self.changes], "distance_before": self.distance_before,
-                "distance_after": self.distance_after, "cutoff": self.cutoff}
+                "distance_after": self.distance_after, "cutoff": self.cutoff,
+                "reaches_cutoff": self.reaches_cutoff}
 
 
 @dataclass(frozen=True, slots=True)
@@ -211,8 +227,17 @@ class Explanation:
         return {k: [c.to_dict() for c in items] for k, items in self.contributions.items()}
 
     def contributions_of(self, method: str) -> tuple[Contribution, ...]:
-        """The method's contributions, largest |share| first; none for a method that gave none."""
+        """The method's contributions: those that push the record out, largest share first, then those that
+        pull it toward ordinary (negative value), strongest first; none for a method that gave none."""
         return self.contributions.get(method, ())
+
+    def pushing(self, method: str) -> tuple[Contribution, ...]:
+        """The method's contributions that push the record out (positive value), largest share first."""
+        return tuple(c for c in self.contributions_of(method) if c.value > 0)
+
+    def pulling(self, method: str) -> tuple[Contribution, ...]:
+        """The method's contributions that pull the record toward ordinary (negative value)."""
+        return tuple(c for c in self.contributions_of(method) if c.value < 0)
 
     def flagged_by(self, method: str) -> bool:
         """Whether ``method`` puts the record above its cutoff (False for a method that did not run)."""

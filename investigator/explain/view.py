@@ -1,11 +1,13 @@
 """One record's explanation: the combined view across methods, its peers and the smallest change.
 
-Combined view: each method's contributions become shares (negative Shapley values count 0 here), the shares
-are averaged over the methods, and the features with the largest mean share are listed with the record's raw
-value, the direction (higher / lower than typical, or rarer for a category), the typical range among ordinary
-records (the unflagged records of a scan, the reference records in reference mode) (median and interquartile
-range in the column's own units, or the commonest level), the robust z-score the methods saw, and the methods
-that point at it (share >= 25%, or the method's top feature).
+Contributions per method become shares of what pushes the record out: each positive value over the sum of the
+positive values (a negative Shapley value pulls the record toward ordinary; it keeps its value and has share
+0). Combined view: the shares are averaged over the methods, and the features with the largest mean share are
+listed with the record's raw value, the direction (explain/typical.py: higher / lower outside the typical
+range, within it, in combination with another feature when inside it with a large share, rarer for a
+category), the typical range among ordinary records (the unflagged records of a scan, the reference records
+in reference mode; within the record's own category where a category takes part), the robust z-score the
+methods saw, and the methods that point at it (share >= 25%, or the method's top feature).
 
 Peers: the k nearest ordinary records in the scaled feature space (brute force, so exact), never the record
 itself, with the features where the record differs most from the peers' median. Above ``PEER_SAMPLE_ABOVE``
@@ -18,7 +20,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import pandas as pd
 from sklearn.neighbors import NearestNeighbors
 
 from investigator.explain.contributions import method_contributions, shares
@@ -30,17 +31,14 @@ from investigator.explain.explanation import (
     PeerDifference,
     Peers,
     TopFeature,
-    Typical,
-    TypicalLevel,
-    TypicalRange,
 )
 from investigator.explain.nearest import nearest_ordinary
+from investigator.explain.typical import TypicalValues, build_typical, direction
 from investigator.prepare.features import Features
 from investigator.prepare.roles import CATEGORICAL
 
 POINTS_AT = 0.25
 TOP = 5
-TYPICAL_Z = 0.5  # within half a robust standard deviation of the median: neither higher nor lower
 PEER_SAMPLE_ABOVE = 100_000  # ordinary records; above this, peers come from a random sample of them
 PEER_SAMPLE = 50_000
 
@@ -73,20 +71,9 @@ def build_pool(result) -> Pool:
     return Pool(result.features, ordinary, result.table.row_numbers, result.keys, "scan")
 
 
-def typical_ranges(pool: Pool) -> tuple[Typical, ...]:
-    """Per feature, what an ordinary record of ``pool`` looks like."""
-    F, members = pool.features, pool.positions
-    out: list[Typical] = []
-    for j, spec in enumerate(F.specs):
-        if spec.role == CATEGORICAL:
-            share = pd.Series(F.levels[j][members]).value_counts(normalize=True)
-            out.append(TypicalLevel(str(share.index[0]), float(share.iloc[0])))
-        else:
-            keep = members[~F.imputed[members, j]]
-            t = F.transformed[keep, j]
-            q1, med, q3 = (float(spec.to_original(v)) for v in np.quantile(t, [0.25, 0.5, 0.75]))
-            out.append(TypicalRange(med, q1, q3))
-    return tuple(out)
+def typical_ranges(pool: Pool) -> TypicalValues:
+    """Per feature, what an ordinary record of ``pool`` looks like (explain/typical.py)."""
+    return build_typical(pool.features, pool.positions)
 
 
 def raw_value(features: Features, i: int, j: int):
@@ -125,7 +112,7 @@ def find_peers(result, pool: Pool, positions: np.ndarray, k: int) -> tuple[np.nd
     return cand[keep].reshape(len(positions), k), dist[keep].reshape(len(positions), k)
 
 
-def explain_positions(result, positions, pool: Pool, typical: tuple[Typical, ...],
+def explain_positions(result, positions, pool: Pool, typical: TypicalValues,
                       peers: int = 5) -> list[Explanation]:
     """Explanations for the records at 0-based ``positions`` (batched where it pays), with peers from
     ``pool`` and the ``typical`` ranges of its records (what :class:`Explainer` keeps)."""
@@ -139,29 +126,33 @@ def explain_positions(result, positions, pool: Pool, typical: tuple[Typical, ...
     ]
 
 
-def _one(result, pool, i, n, contrib, peer_pos, peer_dist, typical) -> Explanation:
+def _one(result, pool, i, n, contrib, peer_pos, peer_dist, typical: TypicalValues) -> Explanation:
     names = result.features.names
     per_method = {}
     share_rows = []
     for key, values in contrib.items():
         v = values[n]
-        sh = shares(v[None, :])[0]
-        order = np.argsort(-np.abs(sh), kind="stable")
+        sh = shares(np.maximum(v, 0)[None, :])[0]  # shares of what pushes the record out; pulling ones 0
+        order = np.lexsort((np.where(v < 0, v, 0.0), -sh))  # pushing by share, then pulling, strongest first
         per_method[key] = tuple(Contribution(names[j], float(v[j]), float(sh[j])) for j in order if v[j] != 0)
-        share_rows.append(shares(np.maximum(v, 0)[None, :])[0])
+        share_rows.append(sh)
     mean_share = np.mean(share_rows, axis=0)
     z = result.features.values[i]
     top = []
-    for j in np.argsort(-mean_share, kind="stable")[:TOP]:
+    ranked = np.argsort(-mean_share, kind="stable")
+    for j in ranked[:TOP]:
         if mean_share[j] <= 0:
             break
         spec = result.features.specs[j]
         pointing = tuple(key for key, row in zip(contrib, share_rows, strict=True)
                          if row[j] >= POINTS_AT or (row.max() > 0 and row.argmax() == j))
+        t = typical.of(result.features, i, j)
+        value = raw_value(result.features, i, j)
+        said = direction(spec.role, value, float(z[j]), t, float(mean_share[j]))
         top.append(TopFeature(
-            feature=spec.name, value=raw_value(result.features, i, j), direction=_direction(spec, z[j]),
-            typical=typical[j], robust_z=float(z[j]), share=float(mean_share[j]), methods=pointing,
-            imputed=bool(result.features.imputed[i, j]),
+            feature=spec.name, value=value, direction=said, typical=t, robust_z=float(z[j]),
+            share=float(mean_share[j]), methods=pointing, imputed=bool(result.features.imputed[i, j]),
+            with_feature=_partner(names, ranked, mean_share, int(j)) if said == "combination" else None,
         ))
     return Explanation(
         row=int(result.table.row_numbers[i]),
@@ -181,7 +172,7 @@ def _one(result, pool, i, n, contrib, peer_pos, peer_dist, typical) -> Explanati
         top_features=tuple(top),
         column_hits=tuple(result.column_hits[i]),
         peers=_peers(result, pool, i, peer_pos, peer_dist),
-        nearest_ordinary=nearest_ordinary(result, i),
+        nearest_ordinary=nearest_ordinary(result, i, typical.bounds),
         stability=None if result.stability is None else float(result.stability[i]),
         resamples=result.options.resamples or None,
     )
@@ -207,20 +198,29 @@ def _peers(result, pool, i, peer_pos, peer_dist) -> Peers:
     return Peers(rows, tuple(differences), pool.source)
 
 
-def _direction(spec, z: float) -> str:
-    if spec.role == CATEGORICAL:
-        return "rarer" if z > 0 else "common"
-    if abs(z) < TYPICAL_Z:
-        return "typical"
-    return "higher" if z > 0 else "lower"
+def _partner(names, ranked, mean_share, j: int) -> str | None:
+    """The feature a share inside the typical range combines with: the one with the next largest share."""
+    for k in ranked:
+        if k != j and mean_share[k] > 0:
+            return names[k]
+    return None
 
 
-SIGNS = {"higher": "+", "lower": "-", "typical": "~", "rarer": "rare", "common": "common"}
+SIGNS = {"higher": "+", "lower": "-", "within": "~", "rarer": "rare", "common": "common"}
+
+
+def sign_text(said: str, partner: str | None) -> str:
+    """The short direction of the one-line view: +, -, ~ (within the typical range), rare, common, or
+    "with <feature>" for a feature unusual in combination with another."""
+    if said == "combination":
+        return f"with {partner}" if partner else "in combination"
+    return SIGNS[said]
 
 
 def top_features_text(explanation: Explanation, limit: int = 3) -> str:
-    """E.g. "amount (+, 61%); hour (+, 22%)" for CSV/Parquet."""
-    return "; ".join(f"{t.feature} ({SIGNS[t.direction]}, {t.share:.0%})" for t in explanation.top_features[:limit])
+    """E.g. "amount (+, 61%); hour (+, 22%); approver_level (with amount, 12%)" for CSV/Parquet."""
+    return "; ".join(f"{t.feature} ({sign_text(t.direction, t.with_feature)}, {t.share:.0%})"
+                     for t in explanation.top_features[:limit])
 
 
 def top_features_texts(result, positions, limit: int = 3) -> list[str]:
@@ -231,11 +231,19 @@ def top_features_texts(result, positions, limit: int = 3) -> list[str]:
         return []
     contrib = method_contributions(result, positions)
     mean_share = np.mean([shares(np.maximum(v, 0)) for v in contrib.values()], axis=0)
-    order = np.argsort(-mean_share, axis=1, kind="stable")[:, :limit]
-    Z, specs, names = result.features.values[positions], result.features.specs, result.features.names
+    ranked = np.argsort(-mean_share, axis=1, kind="stable")
+    typical = result.explainer.typical
+    F = result.features
+    Z, specs, names = F.values[positions], F.specs, F.names
     out = []
-    for n in range(len(positions)):
-        parts = [f"{names[j]} ({SIGNS[_direction(specs[j], Z[n, j])]}, {mean_share[n, j]:.0%})"
-                 for j in order[n] if mean_share[n, j] > 0]
+    for n, i in enumerate(positions):
+        parts = []
+        for j in ranked[n, :limit]:
+            if mean_share[n, j] <= 0:
+                continue
+            said = direction(specs[j].role, raw_value(F, int(i), int(j)), float(Z[n, j]),
+                             typical.of(F, int(i), int(j)), float(mean_share[n, j]))
+            partner = _partner(names, ranked[n], mean_share[n], int(j)) if said == "combination" else None
+            parts.append(f"{names[j]} ({sign_text(said, partner)}, {mean_share[n, j]:.0%})")
         out.append("; ".join(parts))
     return out

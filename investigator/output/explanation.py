@@ -7,7 +7,7 @@ for the report and the cases table, which escape for their own formats.
 
 from __future__ import annotations
 
-from investigator.explain.explanation import Explanation, Typical, TypicalLevel
+from investigator.explain.explanation import Explanation, NearestOrdinary, TopFeature, Typical, TypicalLevel
 from investigator.printable import printable
 
 # How often a flag recurs over resampled runs (--resamples) for it to be called stable or unstable.
@@ -41,10 +41,77 @@ def shown_value(value) -> str:
 
 
 def typical_text(t: Typical) -> str:
-    """A typical range in words: the commonest level and its share, or the median and the quartiles."""
+    """A typical range in words: the commonest level and its share, or the quartiles and the median, with
+    the records they come from when that is the record's own category (or a word on why it is not)."""
     if isinstance(t, TypicalLevel):
-        return f"mostly {printable(t.level)} ({t.share:.0%})"
-    return f"{format_value(t.median)} ({format_value(t.q1)} to {format_value(t.q3)})"
+        return f"mostly {t.level} ({t.share:.0%})"
+    text = f"{format_value(t.q1)} to {format_value(t.q3)} (median {format_value(t.median)})"
+    if t.group is not None:
+        return f"{text} for {t.group} = {t.level}"
+    if t.note:
+        return f"{text}; {t.note}"
+    return text
+
+
+def direction_text(t: TopFeature) -> str:
+    """A feature's direction in words: outside its typical range (higher / lower), within it, unusual in
+    combination with another feature (inside its range, yet a large share), or a rare or common level."""
+    if t.direction in ("higher", "lower"):
+        return f"{t.direction} than typical"
+    if t.direction == "combination":
+        return f"unusual in combination with {t.with_feature}" if t.with_feature else "unusual in combination"
+    if t.direction == "rarer":
+        return "a level rarer than typical"
+    if t.direction == "common":
+        return "a common level"
+    return "within the typical range"
+
+
+def _reason(t: TopFeature, e: Explanation) -> str | None:
+    """One top feature as a reason in the first sentence (None for one within its range)."""
+    if t.direction == "rarer":
+        return f"{t.feature} has a rare value ({format_value(t.value)}; typical: {typical_text(t.typical)})"
+    if t.direction in ("higher", "lower"):
+        return (f"{t.feature} is {t.direction} than typical ({format_value(t.value)}; typical: "
+                f"{typical_text(t.typical)})")
+    if t.direction == "combination":
+        other = next((o for o in e.top_features if o.feature == t.with_feature), None)
+        beside = f" while {other.feature} is {format_value(other.value)}" if other is not None else ""
+        alone = ("a common level on its own" if isinstance(t.typical, TypicalLevel)
+                 else f"within its typical range on its own, {typical_text(t.typical)}")
+        return (f"{t.feature} is unusual in combination with {t.with_feature} ({format_value(t.value)}{beside}; "
+                f"{alone})")
+    return None
+
+
+def pulling_text(e: Explanation) -> str | None:
+    """The features that pull the record toward ordinary, per method, as a plain sentence (None if none)."""
+    parts, count = [], 0
+    for key in e.method_scores:
+        names = [c.feature for c in e.pulling(key)[:3]]
+        if names:
+            verb = "makes" if len(names) == 1 else "make"
+            parts.append(f"{', '.join(names)} {verb} it look more ordinary to {key}")
+            count += len(names)
+
+    if not parts:
+        return None
+    these = "its value brings" if count == 1 else "these values bring"
+    return ("Pulling toward ordinary: " + "; ".join(parts) + f" (given the other features, {these} the record "
+            "closer to the centre; shares are of what pushes the record out).")
+
+
+def nearest_sentence(nearest: NearestOrdinary) -> str:
+    """The smallest change in one sentence (kept within the observed range, whole numbers kept whole), or
+    the closest change found when none within those limits brings the record under the cutoff."""
+    change = " and ".join(f"{c.feature} {format_value(c.after)} instead of {format_value(c.before)}"
+                          for c in nearest.changes)
+    numbers = (f"(distance {nearest.distance_before:.1f} -> {nearest.distance_after:.1f}, cutoff "
+               f"{nearest.cutoff:.2f})")
+    if not nearest.reaches_cutoff:
+        return ("No change within the observed range of ordinary records (whole numbers kept whole) brings it "
+                f"under the robust_distance cutoff; the closest found: {change} {numbers}.")
+    return f"Smallest change found that brings it under the robust_distance cutoff: {change} {numbers}."
 
 
 def headline_text(e: Explanation) -> str:
@@ -67,19 +134,11 @@ def headline_text(e: Explanation) -> str:
         lead = f"{who} is not flagged: no method puts it above its cutoff"
     rank = f"rank {e.rank:,}, " if e.rank is not None else ""
     lead += f" ({rank}consensus {e.consensus:.3f})."
-    parts = []
-    for t in e.top_features[:2]:
-        if t.direction == "rarer":
-            parts.append(f"{printable(t.feature)} has a rare value ({shown_value(t.value)}; typical: "
-                         f"{typical_text(t.typical)})")
-        elif t.direction in ("higher", "lower"):
-            median = t.typical.median if not isinstance(t.typical, TypicalLevel) else None
-            parts.append(f"{printable(t.feature)} is {t.direction} than typical ({shown_value(t.value)} against "
-                         f"a median of {shown_value(median)})")
+    parts = [p for p in (_reason(t, e) for t in e.top_features[:2]) if p]
     if parts:
         intro = " It stands out mainly because " if e.votes else " Its largest deviations: "
         lead += intro + " and ".join(parts) + "."
-    return lead
+    return printable(lead)
 
 
 def explanation_text(e: Explanation) -> str:
@@ -90,31 +149,27 @@ def explanation_text(e: Explanation) -> str:
         lines.append(f"Flagged in {seen} of {runs} resampled runs: {stability_label(e.stability)}.")
     nearest = e.nearest_ordinary
     if nearest:
-        change = " and ".join(f"{printable(c.feature)} {shown_value(c.after)} instead of "
-                          f"{shown_value(c.before)}" for c in nearest.changes)
         if nearest.features_changed > 2:
             lines.append("No change to one or two features alone brings it under the robust_distance cutoff.")
-        lines.append(f"Smallest change found that brings it under the robust_distance cutoff: {change} "
-                     f"(distance {nearest.distance_before:.1f} -> {nearest.distance_after:.1f}, cutoff "
-                     f"{nearest.cutoff:.2f}).")
+        lines.append(nearest_sentence(nearest))
     elif e.flagged_by("robust_distance"):
         lines.append("No change to the features robust_distance uses brings it under its cutoff.")
-    lines += ["", "Methods", f"  {'method':<18} {'score':>10} {'cutoff':>10}  flag  top features"]
+    lines += ["", "Methods (shares of what pushes the record out)",
+              f"  {'method':<18} {'score':>10} {'cutoff':>10}  flag  top features"]
     for key, m in e.method_scores.items():
-        tops = ", ".join(f"{printable(c.feature)} {c.share:.0%}" for c in e.contributions_of(key)[:3])
+        tops = ", ".join(f"{c.feature} {c.share:.0%}" for c in e.pushing(key)[:3])
         flag = "yes" if m.flag else "no"
         lines.append(f"  {key:<18} {m.score:>10.4g} {m.cutoff:>10.4g}  {flag:<4}  {tops}")
-    if any(c.share < 0 for c in e.contributions_of("robust_distance")):
-        lines.append("  (a negative robust_distance share: given the other features, this one brings the "
-                     "record closer to the centre)")
+    pulling = pulling_text(e)
+    if pulling:
+        lines.append("  " + pulling)
     if e.top_features:
         lines += ["", "Features that stand out (across methods)",
-                  f"  {'feature':<16} {'value':>12}  {'direction':<9} {'typical (median, IQR)':<28} "
-                  f"{'z':>6} {'share':>6}  methods"]
+                  f"  {'feature':<16} {'value':>12}  {'direction':<34} {'z':>6} {'share':>6}  methods  typical"]
         for t in e.top_features:
-            lines.append(f"  {printable(t.feature):<16} {shown_value(t.value):>12}  {t.direction:<9} "
-                         f"{typical_text(t.typical):<28} {t.robust_z:>6.1f} {t.share:>6.0%}  "
-                         f"{', '.join(t.methods)}")
+            lines.append(f"  {t.feature:<16} {format_value(t.value):>12}  {direction_text(t):<34} "
+                         f"{t.robust_z:>6.1f} {t.share:>6.0%}  {', '.join(t.methods) or '-'}  "
+                         f"{typical_text(t.typical)}")
     if e.column_hits:
         lines += ["", "Column hits"]
         for h in e.column_hits:
@@ -138,4 +193,6 @@ def explanation_text(e: Explanation) -> str:
             lines.append("  Differences that matter most: " + "; ".join(
                 f"{printable(d.feature)} {shown_value(d.value)} vs {shown_value(d.peers)}" for d in diffs))
     lines += ["", "A flag is a lead for a person to review, not proof of error or fraud."]
-    return "\n".join(lines)
+    # Every line once more through printable: the sentences above quote names and values (escaping twice is
+    # harmless, since an escaped text is all printable).
+    return "\n".join(printable(line) for line in lines)

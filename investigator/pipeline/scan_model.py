@@ -27,7 +27,7 @@ import pandas as pd
 
 from investigator.checks.limits import load_limits, spec_hits
 from investigator.explain.explainer import Explainer
-from investigator.explain.explanation import Typical
+from investigator.explain.typical import TypicalValues
 from investigator.explain.view import Pool, peer_candidates
 from investigator.io.tables import Source, Table
 from investigator.methods.base import Method
@@ -68,7 +68,7 @@ class ScanModel:
     combined_far: float | None  # the far-out level of the combined evidence on the fit sample
     z_threshold: float | None  # with contamination: the consensus z the fit sample's flagged reach
     pool: Pool  # ordinary sample records (peers)
-    typical: tuple[Typical, ...]  # typical ranges of the ordinary sample records
+    typical: TypicalValues  # typical ranges of the ordinary sample records
     limits: list[Limit] | None
     key_column: str | None
     source: Source

@@ -9,8 +9,6 @@ from investigator.explain.explanation import Explanation, NearestOrdinary
 from investigator.explain.view import top_features_text
 from investigator.output.explanation import format_value
 
-SIGNS = {"higher": "+", "lower": "-", "typical": "~", "rarer": "rare", "common": "common"}
-
 
 @dataclass
 class Case:
@@ -61,8 +59,9 @@ def nearest_text(nearest: NearestOrdinary | None) -> str:
         return ""
     change = " and ".join(f"{c.feature} {format_value(c.after)} instead of {format_value(c.before)}"
                           for c in nearest.changes)
+    reach = "" if nearest.reaches_cutoff else "; the closest found within the ordinary range: not under it"
     return (f"{change} (robust distance {nearest.distance_before:.1f} -> {nearest.distance_after:.1f}, "
-            f"cutoff {nearest.cutoff:.2f})")
+            f"cutoff {nearest.cutoff:.2f}{reach})")
 
 
 def top_text(explanation: Explanation, limit: int = 5) -> str:

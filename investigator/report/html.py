@@ -14,10 +14,17 @@ import matplotlib
 import numpy as np
 
 from investigator.explain.explanation import Peer, PeerDifference
-from investigator.output.explanation import format_value, headline_text, typical_text
+from investigator.output.explanation import (
+    direction_text,
+    format_value,
+    headline_text,
+    nearest_sentence,
+    pulling_text,
+    typical_text,
+)
 from investigator.output.summary import CAUTION
 from investigator.report import plots
-from investigator.report.cases import Case, build_cases, column_hits_text, nearest_text, top_text
+from investigator.report.cases import Case, build_cases, column_hits_text, top_text
 from investigator.report.markup import Safe, definitions, esc, items, join, share_bar, table, tag
 from investigator.report.reviews import Review
 from investigator.structure.cases import GroupCase
@@ -543,23 +550,25 @@ def _case(result, c: Case) -> Safe:
     if nearest:
         prefix = ("No change to one or two features alone brings it under the robust_distance cutoff. "
                   if nearest.features_changed > 2 else "")
-        parts.append(tag("p", prefix + "Smallest change that brings it under the robust_distance cutoff: "
-                         + nearest_text(nearest) + "."))
+        parts.append(tag("p", prefix + nearest_sentence(nearest)))
     if e.stability is not None:
         parts.append(tag("p", f"Flagged in {e.stability:.0%} of {e.resamples} resampled runs."))
     for key in ("pattern", "group"):
         if r.get(key) is not None:
             parts.append(tag("p", f"{key.capitalize()}: {r[key]}"))
     parts.append(table(
-        ["method", "score", "cutoff", "above", "top contributions"],
+        ["method", "score", "cutoff", "above", "top contributions (share of what pushes it out)"],
         [[k, format_value(m.score), format_value(m.cutoff), "yes" if m.flag else "no",
-          ", ".join(f"{x.feature} {x.share:.0%}" for x in e.contributions_of(k)[:3])]
+          ", ".join(f"{x.feature} {x.share:.0%}" for x in e.pushing(k)[:3])]
          for k, m in e.method_scores.items()], numeric=(1, 2)))
+    pulling = pulling_text(e)
+    if pulling:
+        parts.append(tag("p", pulling))
     if e.top_features:
         parts.append(tag("h4", "Features that stand out (across methods)"))
         parts.append(table(
-            ["feature", "value", "direction", "typical (median, IQR)", "robust z", "share", "methods"],
-            [[t.feature, format_value(t.value) + (" (imputed)" if t.imputed else ""), t.direction,
+            ["feature", "value", "direction", "typical (quartiles, median)", "robust z", "share", "methods"],
+            [[t.feature, format_value(t.value) + (" (imputed)" if t.imputed else ""), direction_text(t),
               typical_text(t.typical), f"{t.robust_z:.1f}", share_bar(t.share), ", ".join(t.methods)]
              for t in e.top_features], numeric=(1, 4), nowrap=(4, 5)))
     if r["column_hits"]:

@@ -124,13 +124,18 @@ def test_an_explanation_read_by_attribute_matches_the_result_arrays(demo):
             assert t.typical.level == column[ordinary].astype(str).value_counts().index[0]
             assert t.value == str(column.iloc[i])
         else:
-            # The median is taken before any log and mapped back, so it lies between the two middle values.
+            # Quartiles of the values as read (numpy, linear interpolation), over the unflagged records of
+            # the record's own category when the range says it was computed on one.
             assert isinstance(t.typical, TypicalRange)
             j = result.features.names.index(t.feature)
-            x = result.features.raw[ordinary & ~result.features.imputed[:, j], j]
-            low, high = np.quantile(x, 0.5, method="lower"), np.quantile(x, 0.5, method="higher")
-            assert low * (1 - 1e-12) <= t.typical.median <= high * (1 + 1e-12)
-            assert t.typical.q1 <= t.typical.median <= t.typical.q3
+            among = ordinary & ~result.features.imputed[:, j]
+            if t.typical.group is not None:
+                among &= frame[t.typical.group].astype(str).to_numpy() == t.typical.level
+                assert t.typical.level == str(frame[t.typical.group].iloc[i])
+            x = result.features.raw[among, j]
+            assert (t.typical.q1, t.typical.median, t.typical.q3) == pytest.approx(
+                tuple(np.quantile(x, [0.25, 0.5, 0.75])), rel=1e-12)
+            assert t.typical.records == len(x)
             assert t.value is None if t.imputed else t.value == result.features.raw[i, j]
     text = explanation_text(e)
     assert f"Record {e.key}" in text and e.top_features[0].feature in text

@@ -39,7 +39,7 @@ def record_view(result, position: int) -> RecordView:
     from investigator.explain.view import raw_value
 
     e = result.explain(row=position + 1)
-    typical = result.explainer.typical
+    typical = result.explainer.typical.for_record(result.features, position)  # its own category's, if any
     z = result.features.values[position]
     values = tuple(
         FeatureValue(spec.name, raw_value(result.features, position, j), typical[j], float(z[j]),

@@ -13,7 +13,7 @@ from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
 from investigator.explain.explanation import Explanation
-from investigator.output.explanation import format_value, typical_text
+from investigator.output.explanation import format_value, nearest_sentence, typical_text
 from investigator.tui.models.record import RecordView
 from investigator.tui.plain import plain
 from investigator.tui.widgets.contribution_bars import ContributionBars
@@ -49,9 +49,10 @@ class RecordScreen(Screen):
             yield Static("", id="record-change")
             yield Static("Why each method flags it or not", classes="section")
             yield Static("", id="record-methods")
-            yield Static("Contributions per method (share of each method's score)", classes="section")
+            yield Static("Contributions per method (share of what pushes the record out)", classes="section")
             yield ContributionBars(id="record-bars")
-            yield Static("Values beside the typical range (unflagged records: median, quartiles)",
+            yield Static("Values beside the typical range (unflagged records: quartiles, median; own category"
+                         " where one takes part)",
                          classes="section")
             yield Static("", id="record-values")
             yield Static("Column hits", classes="section")
@@ -139,11 +140,7 @@ class RecordScreen(Screen):
 def _change(e: Explanation) -> str:
     nearest = e.nearest_ordinary
     if nearest:
-        change = " and ".join(f"{c.feature} {format_value(c.after)} instead of {format_value(c.before)}"
-                              for c in nearest.changes)
-        return (f"Smallest change that makes it ordinary (robust_distance): {change} (distance "
-                f"{nearest.distance_before:.1f} -> {nearest.distance_after:.1f}, cutoff "
-                f"{nearest.cutoff:.2f}).")
+        return nearest_sentence(nearest)
     if e.flagged_by("robust_distance"):
         return "No change to the features robust_distance uses brings it under its cutoff."
     return "robust_distance does not flag it: no change needed there."
@@ -155,7 +152,7 @@ def _methods(e: Explanation) -> Table:
                  ("top features", "left")):
         t.add_column(h, justify=j)
     for key, m in e.method_scores.items():
-        tops = ", ".join(f"{c.feature} {c.share:.0%}" for c in e.contributions_of(key)[:2])
+        tops = ", ".join(f"{c.feature} {c.share:.0%}" for c in e.pushing(key)[:2])
         verdict = "yes: above" if m.flag else "no: below"
         t.add_row(key, f"{m.score:.4g}", f"{m.cutoff:.4g}", verdict, plain(tops), style="bold" if m.flag else "")
     return t
@@ -165,11 +162,16 @@ def _values(view: RecordView) -> Table:
     t = Table(box=None, padding=(0, 1), show_edge=False)
     for h, j in (("feature", "left"), ("value", "right"), ("typical", "left"), ("z", "right"), ("", "left")):
         t.add_column(h, justify=j)
-    top = {f.feature: f.direction for f in view.explanation.top_features}
+    top = {f.feature: f for f in view.explanation.top_features}
     for v in view.values:
-        mark = {"higher": "▲ higher", "lower": "▼ lower", "rarer": "◆ rare"}.get(top.get(v.feature), "")
+        f = top.get(v.feature)
+        mark = ""
+        if f is not None:
+            mark = {"higher": "▲ higher", "lower": "▼ lower", "rarer": "◆ rare"}.get(f.direction, "")
+            if f.direction == "combination":
+                mark = f"◇ with {f.with_feature}" if f.with_feature else "◇ in combination"
         value = format_value(v.value) + (" (imputed)" if v.imputed else "")
-        t.add_row(plain(v.feature), plain(value), plain(typical_text(v.typical)), f"{v.robust_z:+.1f}", mark,
+        t.add_row(plain(v.feature), plain(value), plain(typical_text(v.typical)), f"{v.robust_z:+.1f}", plain(mark),
                   style="bold" if mark else "")
     return t
 

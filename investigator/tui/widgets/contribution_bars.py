@@ -1,7 +1,8 @@
 """Bar charts of the feature contributions per method, from an explanation's ``contributions``.
 
-A negative share (robust_distance: the feature brings the record closer to the centre) is drawn with ░ and
-a minus sign, so the direction reads without colour.
+Bars are shares of what pushes the record out (they add up to 100%); features that pull it toward ordinary
+(a negative robust_distance value: given the others, the feature brings the record closer to the centre) are
+named on a line of their own, in words, not as negative bars.
 """
 
 from __future__ import annotations
@@ -25,13 +26,15 @@ def bars_text(contributions: dict[str, tuple[Contribution, ...]], flags: dict[st
         out.append(f" ({mark})\n", style="" if flags.get(method) else "dim")
         if not items:
             out.append("  (no contribution)\n", style="dim")
-        for c in items[:top]:
-            share = c.share
-            n = max(0, min(bar_w, round(abs(share) * bar_w)))
-            bar = ("█" if share >= 0 else "░") * n
+        for c in [c for c in items if c.value > 0][:top]:
+            n = max(0, min(bar_w, round(c.share * bar_w)))
             out.append(f"  {printable(c.feature)[:name_w]:<{name_w}} ")
-            out.append(f"{bar:<{bar_w}}", style="bold" if flags.get(method) else "")
-            out.append(f" {share:>+5.0%}\n")
+            out.append(f"{'█' * n:<{bar_w}}", style="bold" if flags.get(method) else "")
+            out.append(f" {c.share:>5.0%}\n")
+        pulling = [printable(c.feature) for c in items if c.value < 0][:3]
+        if pulling:
+            verb = "makes" if len(pulling) == 1 else "make"
+            out.append(f"  {', '.join(pulling)} {verb} it look more ordinary\n", style="dim")
     return out
 
 
