@@ -27,6 +27,9 @@ from investigator.explain.explanation import Typical, TypicalLevel, TypicalRange
 from investigator.prepare.features import Features
 from investigator.prepare.roles import CATEGORICAL
 
+# Smallest adjusted eta squared for a category to give a feature its typical ranges: 0.06, a 'medium' effect in
+# Cohen's conventions (common practice, from memory).
+MIN_EFFECT = 0.06
 MIN_GROUP = 20  # ordinary records a category level needs for its own typical range (common practice)
 COMBINATION_SHARE = 0.25  # a mean share this large is never called typical
 
@@ -122,18 +125,25 @@ def build_typical(features: Features, members: np.ndarray) -> TypicalValues:
 
 
 def _best_grouping(features: Features, keep: np.ndarray, j: int, categorical: list[int]) -> int | None:
-    """The categorical feature whose levels explain most of feature j's variation (eta squared) among
-    the records at ``keep``; None when there is none or none explains any."""
+    """The categorical feature whose levels explain most of feature j's variation among the records at
+    ``keep``, by eta squared adjusted for the number of levels as R squared is (so an identifier-like column
+    with hundreds of levels does not win by chance); None when none explains at least ``MIN_EFFECT``."""
     t = features.transformed[keep, j]
+    n = len(t)
     total = float(((t - t.mean()) ** 2).sum())
     if total <= 0:
         return None
-    best, best_eta = None, 0.0
+    best, best_eta = None, MIN_EFFECT
     for g in categorical:
-        means = pd.Series(t).groupby(pd.Series(features.levels[g][keep]).astype(str).to_numpy()).transform("mean")
+        labels = pd.Series(features.levels[g][keep]).astype(str).to_numpy()
+        k = len(np.unique(labels))
+        if k < 2 or n - k < 1:
+            continue
+        means = pd.Series(t).groupby(labels).transform("mean")
         eta = float(((means.to_numpy() - t.mean()) ** 2).sum()) / total
-        if eta > best_eta:
-            best, best_eta = g, eta
+        adjusted = 1.0 - (1.0 - eta) * (n - 1) / (n - k)
+        if adjusted >= best_eta:
+            best, best_eta = g, adjusted
     return best
 
 
