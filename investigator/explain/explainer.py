@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import threading
 from collections.abc import Mapping
+from dataclasses import replace
 from types import MappingProxyType
 from typing import TYPE_CHECKING
 
@@ -56,8 +57,11 @@ class Explainer:
             return self._typical
 
     def explain(self, positions, peers: int = 5) -> list[Explanation]:
-        """Explanations of the records at 0-based ``positions`` (computed now, not kept)."""
-        return explain_positions(self.result, positions, self.pool, self.typical, peers=peers)
+        """Explanations of the records at 0-based ``positions`` (computed now, not kept), with their cell
+        findings (``result.cells``)."""
+        explained = explain_positions(self.result, positions, self.pool, self.typical, peers=peers)
+        found = self.result.cells.of(positions) if len(explained) else []
+        return [replace(e, cells=c) for e, c in zip(explained, found, strict=True)]
 
     def flagged(self) -> Mapping[int, Explanation]:
         """The explanations of every flagged record, by 0-based position (computed once; read-only, since
