@@ -18,7 +18,7 @@ data cells", Technometrics 60(2), 135-145). The steps, from memory of the paper:
 Two additions of ours, for tables that hold exact relations:
 
 * a **relation check**: each numeric column is also regressed on all the other numeric columns (least
-  squares on the records without flagged cells, reweighted five times to drop residuals beyond c robust
+  squares on up to 5,000 records without flagged cells, reweighted five times to drop residuals beyond c robust
   scales). Where this regression predicts the column at least twice as well as step 4, its residual flags
   a cell as well, and its prediction is the expected value. Deviations below 2% of a logged value (2% of
   the robust spread of an unlogged one) never count: stored values are rounded, so exact relations are
@@ -27,7 +27,9 @@ Two additions of ours, for tables that hold exact relations:
   so a record's flagged cells are resolved one at a time. Each flagged cell in turn is replaced by its
   expected value; the cell whose repair leaves the fewest other flagged cells (a repair that is itself
   implausible - beyond c, or a fraction on a whole-number column - counts as one more) is reported first,
-  ties going to the larger pairwise residual; the repair is kept and the rest resolved again.
+  ties going to the record that is most consistent after the repair (the smallest sum of squared pairwise
+  residuals); the repair is kept and the rest resolved again. A record where at least half the judged cells
+  deviate is off as a whole (DDC would flag the row): its cells are listed by |residual|, without repairs.
 
 Categories: a level is reported when it is rare given a numeric partner column of the same record: the
 partner's fitted values are cut into ten bins at their deciles, and the record's level is reported when
@@ -68,6 +70,7 @@ MIN_ROWS = 30  # below this many records no cell findings at all (medians of rat
 RELATION_GAIN = 0.5  # the relation check applies where its residual scale is below half the pairwise one
 RELATION_FLOOR = 0.02  # relative deviation (logged) or share of spread (unlogged) never called a finding
 REWEIGHTS = 5
+RELATION_ROWS = 5_000  # the relation regressions are fitted on at most this many clean records
 BINS = 10
 BIN_MIN = 30  # other records in the partner's bin
 RARE_SHARE = 0.01  # at most this share of them with the level ...
@@ -129,10 +132,11 @@ def _in_units(spec: FeatureSpec, z: float) -> float:
     return float(spec.to_original(spec.center + spec.scale * z))
 
 
-def _to_z(spec: FeatureSpec, value: float) -> float:
+def _to_z(spec: FeatureSpec, values: np.ndarray) -> np.ndarray:
+    """Values in the column's own units to standardised units (NaN where the log is undefined)."""
     with np.errstate(invalid="ignore", divide="ignore"):
-        t = np.log(value + spec.offset) if spec.transform == "log" else value
-    return float((t - spec.center) / spec.scale) if np.isfinite(t) else math.nan
+        t = np.log(values + spec.offset) if spec.transform == "log" else values
+        return np.where(np.isfinite(t), (t - spec.center) / spec.scale, np.nan)
 
 
 def _power_hint(value: float, expected: float) -> tuple[int, str, str] | None:
@@ -171,7 +175,8 @@ class CellModel:
         self.names = [features.names[j] for j in self.columns]
         q = len(self.columns)
         Z = self.standardised(features)
-        rows = sample(features.values, FIT_ROWS, ("cells", salt)) if len(Z) > FIT_ROWS else np.arange(len(Z))
+        # Salt 23: a draw of its own (other samples use 7 to 19).
+        rows = sample(features.values, FIT_ROWS, [salt, 23]) if len(Z) > FIT_ROWS else np.arange(len(Z))
         Z = Z[rows]
         U = np.where(np.abs(Z) > CUTOFF, np.nan, Z)
         cor = np.eye(q)
@@ -238,7 +243,7 @@ class CellModel:
         clean = np.all(np.isfinite(Z), axis=1) & ~np.any(np.abs(r1) > CUTOFF, axis=1)
         if clean.sum() < MIN_ROWS + q:
             return
-        Zc = Z[clean]
+        Zc = Z[clean][:RELATION_ROWS]  # the fit rows are a draw by content already: any of them will do
         for j in range(q):
             others = [h for h in range(q) if h != j]
             A = np.column_stack([np.ones(len(Zc)), Zc[:, others]])
@@ -246,7 +251,10 @@ class CellModel:
             keep = np.ones(len(y), dtype=bool)
             coef = np.zeros(q)
             for _ in range(REWEIGHTS):
-                coef = np.linalg.lstsq(A[keep], y[keep], rcond=None)[0]
+                # The normal equations, solved by SVD: cheap at p + 1 unknowns, and safe when the other
+                # columns are collinear among themselves (amount = quantity x unit price on the log scale).
+                Ak = A[keep]
+                coef = np.linalg.lstsq(Ak.T @ Ak, Ak.T @ y[keep], rcond=None)[0]
                 res = y - A @ coef
                 s = _mad(res[keep])
                 if s == 0:
@@ -290,10 +298,22 @@ class CellModel:
             return np.array([bool(np.all(np.isnan(c) | (c == np.round(c)))) for c in raw.T])
 
     def resolve(self, z: np.ndarray, whole: np.ndarray,
-                extra: Callable[[np.ndarray], int] | None = None) -> list[tuple[int, float, float]]:
+                extra: Callable[[np.ndarray], int] | None = None) -> tuple[list[tuple[int, float, float]], bool]:
         """The deviating cells of one record (standardised row ``z``), most explanatory first: (column,
-        expected in standardised units, residual) for each, after the repairs of the ones before it."""
+        expected in standardised units, residual) for each, after the repairs of the ones before it.
+
+        A record where more than half the cells that have a prediction (and more than 3) deviate is off as a whole (DDC
+        flags such rows rather than cells): its deviating cells come by |residual|, without the repair
+        search, which would only pick among equally doubtful cells, and without hints (the second value
+        returned says so)."""
         z = z.copy()
+        pred, r1, r2 = (a[0] for a in self.residuals(z[None, :]))
+        deviating = self.deviating(r1, r2) & np.isfinite(z)
+        judged = int(np.sum(np.isfinite(np.where(np.isnan(r2), r1, r2))))
+        if deviating.sum() > max(3, judged / 2):
+            r = np.where(np.isnan(r2), r1, r2)
+            return [(int(j), float(pred[j]), float(r[j])) for j in np.flatnonzero(deviating)[
+                np.argsort(-np.abs(r[deviating]), kind="stable")]], True
         done = np.zeros(len(z), dtype=bool)
         out = []
         for _ in range(len(z)):
@@ -301,36 +321,35 @@ class CellModel:
             bad = np.flatnonzero(self.deviating(r1, r2) & ~done & np.isfinite(z))
             if not len(bad):
                 break
+            # Every repair tried at once: one trial record per deviating cell.
+            trials = np.repeat(z[None, :], len(bad), axis=0)
+            trials[np.arange(len(bad)), bad] = pred[bad]
+            _, t1, t2 = self.residuals(trials)
+            left = self.deviating(t1, t2) & ~done
+            left[np.arange(len(bad)), bad] = False
             best, best_key = -1, None
-            for j in bad:
-                trial = z.copy()
-                trial[j] = pred[j]
-                _, t1, t2 = (a[0] for a in self.residuals(trial[None, :]))
-                left = self.deviating(t1, t2) & ~done
-                left[j] = False
+            for n, j in enumerate(bad):
                 value = _in_units(self.specs[self.columns[j]], float(pred[j]))
                 implausible = int(abs(pred[j]) > CUTOFF or (whole[j] and abs(value - round(value)) > 0.05))
                 if extra is not None:
-                    implausible += extra(trial)  # levels left rare given the repaired numbers
+                    implausible += extra(trials[n])  # levels left rare given the repaired numbers
                 # Fewest flags left, then the most consistent record: the smallest sum of squared pairwise
                 # residuals after the repair.
-                key = (int(left.sum()) + implausible, float(np.nansum(t1 ** 2)))
+                key = (int(left[n].sum()) + implausible, float(np.nansum(t1[n] ** 2)))
                 if best_key is None or key < best_key:
                     best, best_key = int(j), key
             residual = r2[best] if np.isfinite(r2[best]) else r1[best]
             out.append((best, float(pred[best]), float(residual)))
             z[best] = pred[best]
             done[best] = True
-        return out
+        return out, False
 
-    def passes(self, z: np.ndarray, j: int, candidate_z: float, within: float = CUTOFF) -> bool:
-        """Whether the record would show no deviation in column ``j`` with ``candidate_z`` there: its
-        residual within ``within`` (the cutoff by default)."""
-        trial = z.copy()
-        trial[j] = candidate_z
-        _, r1, r2 = (a[0] for a in self.residuals(trial[None, :]))
-        r = r2[j] if np.isfinite(r2[j]) else r1[j]
-        return bool(np.isfinite(candidate_z) and np.isfinite(r) and abs(r) <= within)
+    def expectation(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Per column of the record ``z``: the expected value and the scale its residual is measured in
+        (both standardised units). Neither depends on the column's own cell, so a candidate value c fits
+        column j when |c - expected_j| <= scale_j x the cutoff."""
+        pred, _, _ = (a[0] for a in self.residuals(z[None, :]))
+        return pred, np.where(np.isfinite(self.rel_scale), self.rel_scale, self.scale)
 
     def predicts(self, j: int) -> bool:
         return bool(np.isfinite(self.rel_scale[j]) or np.isfinite(self.scale[j]))
@@ -465,32 +484,39 @@ class CategoryRule:
 
 def _hints(model: CellModel, z: np.ndarray, j: int, value: float, expected: float, raw_row: np.ndarray,
            limits: list[dict]) -> tuple[str, str]:
-    spec = model.specs[model.columns[j]]
     words, tags = [], []
+    pred, scale = model.expectation(z)
+
+    def fits(h: int, values, within: float = CUTOFF) -> np.ndarray:
+        cand = _to_z(model.specs[model.columns[h]], np.atleast_1d(np.asarray(values, dtype=float)))
+        with np.errstate(invalid="ignore"):
+            return np.isfinite(cand) & (np.abs(cand - pred[h]) <= within * scale[h])
+
     power = _power_hint(value, expected)
-    if power and model.passes(z, j, _to_z(spec, value / 10 ** power[0])):
+    if power and fits(j, value / 10 ** power[0])[0]:
         tags.append(power[1])
         words.append(power[2])
-    elif value * expected < 0 and model.passes(z, j, _to_z(spec, -value)):
+    elif value * expected < 0 and fits(j, -value)[0]:
         tags.append("sign?")
         words.append("the sign is flipped?")
     else:
         # A swap or another column's value must fit closely (within one residual scale, not the cutoff):
         # among the many values a slip could give, one is near the expected value by chance too often.
-        swaps = [v for v in _digit_swaps(value) if model.passes(z, j, _to_z(spec, v), within=1.0)]
+        options = _digit_swaps(value)
+        swaps = [v for v, ok in zip(options, fits(j, options, 1.0), strict=True) if ok]
         if swaps:
             near = min(swaps, key=lambda v: abs(v - expected))
             tags.append("digits swapped?")
             words.append(f"two adjacent digits swapped? {_fmt(near)} would fit")
         else:
-            for h, other in enumerate(raw_row):
-                if h == j or not np.isfinite(other) or other == value:
+            others = [h for h, other in enumerate(raw_row) if h != j and np.isfinite(other) and other != value]
+            for h, ok in zip(others, fits(j, raw_row[others], 1.0), strict=True):
+                if not ok:
                     continue
-                other_spec = model.specs[model.columns[h]]
-                back = _to_z(other_spec, value)  # and this column's value must fit the other column
-                fits_there = (model.passes(z, h, back, within=1.0) if model.predicts(h)
-                              else np.isfinite(back) and abs(back) <= CUTOFF)
-                if fits_there and model.passes(z, j, _to_z(spec, float(other)), within=1.0):
+                # ... and this column's value must fit the other column (or its usual range, unpredicted)
+                back = _to_z(model.specs[model.columns[h]], np.array([value]))[0]
+                there = fits(h, value, 1.0)[0] if model.predicts(h) else np.isfinite(back) and abs(back) <= CUTOFF
+                if there:
                     tags.append(f"= {model.names[h]}?")
                     words.append(f"it is this record's {model.names[h]}: swapped fields?")
                     break
@@ -558,10 +584,11 @@ class CellFinder:
                 limits = self.result.out_of_spec[i] if self.result.out_of_spec is not None else []
                 codes = rule.record_codes(features, i)
                 extra = partial(rule.count, codes, counted=counted)
-                for j, expected_z, residual in model.resolve(Z[n], whole, extra):
+                resolved, as_a_whole = model.resolve(Z[n], whole, extra)
+                for j, expected_z, residual in resolved:
                     spec = model.specs[model.columns[j]]
                     value, expected = float(raw[j]), _in_units(spec, expected_z)
-                    hint, tag = _hints(model, repaired, j, value, expected, raw, limits)
+                    hint, tag = ("", "") if as_a_whole else _hints(model, repaired, j, value, expected, raw, limits)
                     cells.append(CellFinding(model.names[j], value, expected, residual, hint or None, tag))
                     repaired[j] = expected_z
                     blamed.add(int(model.columns[j]))
