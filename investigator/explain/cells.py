@@ -82,7 +82,8 @@ POWER_SLACK = math.log10(1.5)
 class CellFinding:
     """One deviating cell: its column, the record's value, the expected value (the column's own units; the
     expected level for a category), the standardised residual (None for a category) and a hint in words
-    (None when no simple slip explains it). ``tag`` is the short form of the hint for one-line outputs."""
+    (None when no simple slip explains it). ``tag`` is the short form of the hint for one-line outputs ("x100?",
+    "" without a hint)."""
 
     column: str
     value: float | str
@@ -93,7 +94,7 @@ class CellFinding:
 
     def to_dict(self) -> dict:
         return {"column": self.column, "value": self.value, "expected": self.expected,
-                "residual": self.residual, "hint": self.hint}
+                "residual": self.residual, "hint": self.hint, "tag": self.tag}
 
     def short(self) -> str:
         """The finding in a few characters: "amount x100?", "unit_price"."""
@@ -530,14 +531,21 @@ def _hints(model: CellModel, z: np.ndarray, j: int, value: float, expected: floa
 
 class CellFinder:
     """The cell findings of one scan result: fitted once on first use (on the reference records in check
-    mode), then read by every output. ``findings()`` holds the records of the scan's ``cells`` scope
-    (flagged records by default, all with ``cells="all"``)."""
+    mode; by a model that scores blocks, on its sample), then read by every output. ``findings()`` holds the
+    records of the scan's ``cells`` scope (flagged records by default, all with ``cells="all"``)."""
 
-    def __init__(self, result: ScanResult) -> None:
+    def __init__(self, result: ScanResult, fitted: tuple[CellModel, CategoryRule] | None = None) -> None:
         self.result = result
         self._lock = threading.RLock()
-        self._fitted: tuple[CellModel, CategoryRule] | None = None
+        self._fitted = fitted
+        # Level counts include the record itself only when they were counted on the scan's own records.
+        self._counted = fitted is None and result.reference_features is None
         self._scope: Mapping[int, tuple[CellFinding, ...]] | None = None
+
+    @property
+    def fitted(self) -> tuple[CellModel, CategoryRule]:
+        """The fitted cell test and level rule (a model that scores blocks hands them to each block)."""
+        return self._fit()
 
     def _fit(self) -> tuple[CellModel, CategoryRule]:
         with self._lock:
@@ -573,7 +581,7 @@ class CellFinder:
             _, r1, r2 = model.residuals(Z)
             suspect = np.asarray(np.any(model.deviating(r1, r2), axis=1), dtype=bool)
         whole = model.whole_numbers(features)
-        counted = self.result.reference_features is None
+        counted = self._counted
         out = []
         for n, i in enumerate(positions.tolist()):
             cells: list[CellFinding] = []

@@ -180,7 +180,7 @@ def test_every_output_reads_the_same_findings(orders, tmp_path):
     doc = json.loads((result.write(tmp_path / "out.json")).read_text())
     cells = doc["records"][i]["cells"]
     assert cells[0]["column"] == "amount" and cells[0]["hint"].startswith("a factor of 100")
-    assert set(cells[0]) == {"column", "value", "expected", "residual", "hint"}
+    assert set(cells[0]) == {"column", "value", "expected", "residual", "hint", "tag"}
     assert result.to_frame()["cells"][i].startswith("amount x100?")
     explained = result.explain(frame.line[i])
     assert explained.cells == result.cells.findings()[i]
