@@ -1,13 +1,14 @@
 """Time a full scan against scikit-learn's four estimators run with default settings.
 
     python benchmarks/scan_speed.py [--sizes 10000,100000] [--features 20] [--no-reference]
-                                    [--baseline-src DIR] [--repeat 3]
+                                    [--baseline-src DIR] [--repeat 3] [--correlation RHO]
 
 Data: n x p standard normal records, 1% of them shifted by N(0, 4^2) per feature (planted outliers), seed 0.
 The full scan is investigator.scan() on a DataFrame (preparation, neighbour search, all four methods, the
 combination and the column rules). The reference is MinCovDet, LocalOutlierFactor, NearestNeighbors
 (k-th neighbour distance) and IsolationForest from scikit-learn, defaults, one after another in the same
-process. Prints seconds, the ratio, and ROC AUC on the planted outliers for both. With ``--baseline-src``
+process. Prints seconds, the ratio, and ROC AUC on the planted outliers for both, and the time the cell
+findings add (fitted once, then for the flagged records, then for all records). With ``--baseline-src``
 (the folder of another checkout, e.g. ``git worktree add ../before <commit>``), the same scan is also
 timed with that version's code in a fresh process, ``--repeat`` times each, and the medians are printed
 side by side. Figures, not a test.
@@ -26,9 +27,12 @@ import numpy as np
 import pandas as pd
 
 
-def make_data(n: int, p: int, seed: int = 0) -> tuple[pd.DataFrame, np.ndarray]:
+def make_data(n: int, p: int, seed: int = 0, rho: float = 0.0) -> tuple[pd.DataFrame, np.ndarray]:
     rng = np.random.default_rng(seed)
     X = rng.normal(size=(n, p))
+    if rho:  # correlated columns, correlation rho^|j - h| (the A09 structure), so that cells have predictors
+        idx = np.arange(p)
+        X = X @ np.linalg.cholesky(rho ** np.abs(idx[:, None] - idx[None, :])).T
     k = max(1, n // 100)
     X[:k] += rng.normal(0, 4, size=(k, p))
     labels = np.zeros(n)
@@ -86,6 +90,8 @@ def main() -> None:
     parser.add_argument("--no-reference", action="store_true", help="skip the scikit-learn reference run")
     parser.add_argument("--baseline-src", help="folder of another checkout to time the same scan with")
     parser.add_argument("--repeat", type=int, default=3)
+    parser.add_argument("--correlation", type=float, default=0.0,
+                        help="columns correlated rho^|j-h| (0: independent, as by default)")
     args = parser.parse_args()
     if args.baseline_src:
         here = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
@@ -103,13 +109,22 @@ def main() -> None:
 
     investigator.scan(make_data(500, 3)[0])  # warm imports so they are not timed
     for n in (int(s) for s in args.sizes.split(",")):
-        frame, labels = make_data(n, args.features)
+        frame, labels = make_data(n, args.features, rho=args.correlation)
         t = time.perf_counter()
         result = investigator.scan(frame)
         scan_time = time.perf_counter() - t
         search = result.run.neighbors.search
         print(f"\n{n:,} x {args.features}: full scan {scan_time:.1f} s (neighbour search: {search}); "
               f"flagged {int(result.flagged.sum()):,}; consensus AUC {roc_auc_score(labels, result.consensus):.4f}")
+        t = time.perf_counter()
+        found = result.cells.findings()  # cell findings of the flagged records (the default scope)
+        flagged_cells = time.perf_counter() - t
+        t = time.perf_counter()
+        every = result.cells.of(np.arange(result.n_records))  # and of all records (--cells all), fit reused
+        all_cells = time.perf_counter() - t
+        print(f"  cell findings: flagged records {flagged_cells:.1f} s ({sum(map(len, found.values())):,} cells; "
+              f"scan + cells {(scan_time + flagged_cells) / scan_time - 1:+.0%}), all records {all_cells:.1f} s "
+              f"more ({sum(map(len, every)):,} cells; {(scan_time + flagged_cells + all_cells) / scan_time - 1:+.0%})")
         for k, m in result.method_results.items():
             print(f"  {k:<18} AUC {roc_auc_score(labels, m.scores):.4f}")
         if args.no_reference:

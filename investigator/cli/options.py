@@ -43,6 +43,10 @@ def add_scan_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--resamples", metavar="R", type=int, default=0,
                    help="re-run the methods on R random subsamples and report how often each flag recurs "
                    "(default 0: off; 20 is a good choice)")
+    # No argparse choices: ScanOptions names the choices in a one-line error (as for --decimal).
+    p.add_argument("--cells", metavar="WHICH", default="flagged",
+                   help="which records get cell findings (the values that deviate from what the record's "
+                   "other values predict): flagged records (default) or all")
     p.add_argument("--limits", metavar="FILE",
                    help="CSV of specification limits (column, lower, upper): out-of-spec hits per record")
     p.add_argument("--digits", metavar="COL", help="Benford's law first-digit tests on these amount columns")
@@ -85,7 +89,7 @@ def scan_parameters(args: argparse.Namespace) -> dict:
         "contamination": args.contamination, "seed": args.seed, "sheet": args.sheet, "exact": args.exact,
         "decimal": getattr(args, "decimal", None), "header_row": getattr(args, "header_row", None),
         "resamples": args.resamples, "limits": args.limits, "digits": args.digits, "map": args.map,
-        "duplicates": args.duplicates,
+        "duplicates": args.duplicates, "cells": getattr(args, "cells", None),
         "keep_reference_outliers": getattr(args, "keep_reference_outliers", False),
     }
     return {k: v for k, v in given.items() if v is not None}

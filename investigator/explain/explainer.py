@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import threading
 from collections.abc import Mapping
+from dataclasses import replace
 from types import MappingProxyType
 from typing import TYPE_CHECKING
 
@@ -58,8 +59,15 @@ class Explainer:
             return self._typical
 
     def explain(self, positions, peers: int = 5) -> list[Explanation]:
-        """Explanations of the records at 0-based ``positions`` (computed now, not kept)."""
-        return explain_positions(self.result, positions, self.pool, self.typical, peers=peers)
+        """Explanations of the records at 0-based ``positions`` (computed now, not kept), with their cell
+        findings (``result.cells``)."""
+        positions = np.asarray(positions, dtype=int)
+        found = self.result.cells.of(positions) if len(positions) else []
+        # The smallest change tries the cells the findings point at first: a wrong amount is mended there,
+        # not by a made-up quantity.
+        explained = explain_positions(self.result, positions, self.pool, self.typical, peers=peers,
+                                      prefer=[[c.column for c in cells] for cells in found])
+        return [replace(e, cells=c) for e, c in zip(explained, found, strict=True)]
 
     def flagged(self) -> Mapping[int, Explanation]:
         """The explanations of every flagged record, by 0-based position (computed once; read-only, since

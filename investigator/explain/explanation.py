@@ -14,6 +14,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from investigator.explain.cells import CellFinding
+
 
 @dataclass(frozen=True, slots=True)
 class TypicalRange:
@@ -201,6 +203,7 @@ class Explanation:
     nearest_ordinary: NearestOrdinary | None
     stability: float | None
     resamples: int | None
+    cells: tuple[CellFinding, ...] = ()  # the cells that deviate from what the other values predict
 
     def to_dict(self) -> dict:
         return {
@@ -220,6 +223,7 @@ class Explanation:
             "nearest_ordinary": None if self.nearest_ordinary is None else self.nearest_ordinary.to_dict(),
             "stability": self.stability,
             "resamples": self.resamples,
+            "cells": [c.to_dict() for c in self.cells],
         }
 
     def contributions_dict(self) -> dict[str, list[dict]]:

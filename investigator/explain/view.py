@@ -17,6 +17,7 @@ ordinary records they are searched among a reproducible random sample of ``PEER_
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -112,21 +113,24 @@ def find_peers(result, pool: Pool, positions: np.ndarray, k: int) -> tuple[np.nd
     return cand[keep].reshape(len(positions), k), dist[keep].reshape(len(positions), k)
 
 
-def explain_positions(result, positions, pool: Pool, typical: TypicalValues,
-                      peers: int = 5) -> list[Explanation]:
+def explain_positions(result, positions, pool: Pool, typical: TypicalValues, peers: int = 5,
+                      prefer: Sequence[Sequence[str]] | None = None) -> list[Explanation]:
     """Explanations for the records at 0-based ``positions`` (batched where it pays), with peers from
-    ``pool`` and the ``typical`` ranges of its records (what :class:`Explainer` keeps)."""
+    ``pool`` and the ``typical`` ranges of its records (what :class:`Explainer` keeps); ``prefer``: per
+    position, the columns the smallest change should try first (those the cell findings point at)."""
     positions = np.asarray(positions, dtype=int)
     if len(positions) == 0:
         return []
     contrib = method_contributions(result, positions)
     peer_pos, peer_dist = find_peers(result, pool, positions, peers)
     return [
-        _one(result, pool, i, n, contrib, peer_pos[n], peer_dist[n], typical) for n, i in enumerate(positions)
+        _one(result, pool, i, n, contrib, peer_pos[n], peer_dist[n], typical, prefer[n] if prefer else None)
+        for n, i in enumerate(positions)
     ]
 
 
-def _one(result, pool, i, n, contrib, peer_pos, peer_dist, typical: TypicalValues) -> Explanation:
+def _one(result, pool, i, n, contrib, peer_pos, peer_dist, typical: TypicalValues,
+         prefer: Sequence[str] | None = None) -> Explanation:
     names = result.features.names
     per_method = {}
     share_rows = []
@@ -172,7 +176,7 @@ def _one(result, pool, i, n, contrib, peer_pos, peer_dist, typical: TypicalValue
         top_features=tuple(top),
         column_hits=tuple(result.column_hits[i]),
         peers=_peers(result, pool, i, peer_pos, peer_dist),
-        nearest_ordinary=nearest_ordinary(result, i, typical.bounds),
+        nearest_ordinary=nearest_ordinary(result, i, typical.bounds, prefer_columns=prefer),
         stability=None if result.stability is None else float(result.stability[i]),
         resamples=result.options.resamples or None,
     )

@@ -141,8 +141,23 @@ def headline_text(e: Explanation) -> str:
     return printable(lead)
 
 
+def cell_lines(e: Explanation) -> list[str]:
+    """The cells that deviate from what the record's other values predict, one line each."""
+    lines = []
+    for c in e.cells:
+        if c.residual is None:  # a level rare given another column: the hint says it all
+            lines.append(f"  {c.hint}.")
+            continue
+        text = (f"  {c.column} {format_value(c.value)} where this record's other values predict about "
+                f"{format_value(c.expected)} (residual {c.residual:,.1f})")
+        text += f": {c.hint}" if c.hint else ""
+        lines.append(text if text.endswith("?") else text + ".")
+    return ["Cells that look wrong", *lines] if lines else []
+
+
 def explanation_text(e: Explanation) -> str:
     lines = [headline_text(e)]
+    lines += cell_lines(e)
     if e.stability is not None and e.resamples is not None:
         runs = e.resamples
         seen = round(e.stability * runs)

@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
+from investigator.explain.cells import cells_text
 from investigator.explain.explanation import Explanation
 from investigator.io.output_files import atomic_output, check_not_input
 from investigator.io.writers import check_out_path, safe_frame, to_json_text
@@ -35,6 +36,8 @@ def record(result: ScanResult, i: int, explained: Explanation | None = None) -> 
         "nearest_ordinary": explained.nearest_ordinary.to_dict()
         if explained and explained.nearest_ordinary is not None else None,
     }
+    found = result.cells.findings().get(i)
+    extra["cells"] = [c.to_dict() for c in found] if found is not None else None
     if result.stability is not None:
         extra["stability"] = _num(result.stability[i])
     if result.out_of_spec is not None:
@@ -96,6 +99,8 @@ def to_frame(result: ScanResult) -> pd.DataFrame:
     texts = np.full(result.n_records, "", dtype=object)
     texts[flagged] = result.explainer.top_features_texts(flagged)
     out["top_features"] = texts
+    found = result.cells.findings()
+    out["cells"] = [cells_text(found[i]) if i in found else "" for i in range(result.n_records)]
     if result.stability is not None:
         out["stability"] = result.stability
     if result.out_of_spec is not None:

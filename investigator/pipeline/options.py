@@ -13,6 +13,7 @@ MAP_METHODS = ("none", "auto", "umap", "pca")
 # 32-bit unsigned integers (NumPy documentation, numpy.random.RandomState: "must be convertible to 32 bit
 # unsigned integers"); the Generator-based draws take any of those too.
 SEED_MAX = 2**32 - 1
+CELL_SCOPES = ("flagged", "all")
 
 
 def _names(value, parameter: str) -> tuple[str, ...] | None:
@@ -49,6 +50,7 @@ class ScanOptions:
     limits: str | None = None
     keep_reference_outliers: bool = False
     map: str = "none"
+    cells: str = "flagged"  # which records get cell findings: "flagged" or "all"
 
     def __post_init__(self) -> None:
         set_ = object.__setattr__
@@ -119,6 +121,9 @@ class ScanOptions:
             set_(self, "header_row", int(self.header_row))
         check_reading_options(self.decimal, self.header_row)
 
+        if self.cells not in CELL_SCOPES:
+            raise InputError(f"`cells` must be one of {', '.join(CELL_SCOPES)}, not '{self.cells}'",
+                             parameters=("cells",))
         if self.map not in MAP_METHODS:
             raise InputError(f"`map` must be one of {', '.join(MAP_METHODS)}, not '{self.map}'", parameters=("map",))
 

@@ -15,6 +15,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from investigator.errors import InputError
+from investigator.explain.cells import CellFinder
 from investigator.explain.explainer import Explainer
 from investigator.explain.explanation import Explanation
 from investigator.io.tables import Table
@@ -82,8 +83,9 @@ class ScanResult:
     ``preparer`` (fitted preparation), ``neighbors`` (the shared search) and ``graph`` (each record's
     neighbours), ``method_results`` (per method key: fitted method, scores, flags, z-values),
     ``combination`` (votes, consensus, flagged), ``rules`` and ``column_hits``, ``run`` (the run record),
-    ``stability`` (with ``resamples``: the share of resampled runs that flag each record), and
-    ``explainer`` (explanations, built on first use).
+    ``stability`` (with ``resamples``: the share of resampled runs that flag each record),
+    ``explainer`` (explanations, built on first use) and ``cells`` (cell findings: which values of a record
+    deviate from what its other values predict; fitted on first use).
     """
 
     table: Table
@@ -109,9 +111,11 @@ class ScanResult:
     group_cases: list[GroupCase] | None = None  # each small group as one case, with its profile
     kinds: KindsOfNormal | None = None  # the large clusters, each with its own fit
     explainer: Explainer = field(init=False, repr=False)
+    cells: CellFinder = field(init=False, repr=False)
 
     def __post_init__(self) -> None:
         self.explainer = Explainer(self)
+        self.cells = CellFinder(self)
 
     # -- plain arrays --------------------------------------------------------------------------------
     @property

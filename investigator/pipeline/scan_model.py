@@ -26,6 +26,7 @@ import numpy as np
 import pandas as pd
 
 from investigator.checks.limits import load_limits, spec_hits
+from investigator.explain.cells import CategoryRule, CellFinder, CellModel
 from investigator.explain.explainer import Explainer
 from investigator.explain.typical import TypicalValues
 from investigator.explain.view import Pool, peer_candidates
@@ -74,6 +75,7 @@ class ScanModel:
     source: Source
     run: RunRecord  # the fit's run record
     n_fit: int
+    cells: tuple[CellModel, CategoryRule] | None = None  # the cell test fitted on the sample, shared by blocks
 
     @classmethod
     def fit(cls, sample: Table, options: ScanOptions, progress=None) -> ScanModel:
@@ -97,7 +99,7 @@ class ScanModel:
         calibrations = {k: r.calibration for k, r in fit.method_results.items() if r.calibration is not None}
         return cls(options, fit.columns, fit.preparer, search, {k: r.method for k, r in fit.method_results.items()},
                    fit.rules, fit.kinds, calibrations, fit.combination.combined_far, threshold, pool, typical,
-                   limits, sample.key_column, sample.source, fit.run, sample.n_rows)
+                   limits, sample.key_column, sample.source, fit.run, sample.n_rows, cells=fit.cells.fitted)
 
     def score(self, frame: pd.DataFrame, first_row: int) -> ScanResult:
         """Score the records of ``frame``, which are rows first_row + 1, first_row + 2, ... of the dataset."""
@@ -132,6 +134,7 @@ class ScanModel:
                             results, combination, self.rules, self.rules.hits(features), self.run,
                             out_of_spec=out_of_spec, kinds=kinds)
         result.explainer = Explainer(result, pool=self.pool, typical=self.typical)  # peers among the fit's
+        result.cells = CellFinder(result, fitted=self.cells)  # cells judged by the fit's statistics
         return result
 
     def score_frame(self, frame: pd.DataFrame, first_row: int) -> pd.DataFrame:

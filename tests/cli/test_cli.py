@@ -264,3 +264,26 @@ def test_successful_scan_subprocess_exits_0(deliveries, tmp_path):
     assert done.returncode == 0, done.stderr
     assert "Traceback" not in done.stderr
     assert len(json.loads(out.read_text(encoding="utf-8"))["records"]) == N
+
+
+def test_cells_scope_error_is_one_line(cli, tmp_path):
+    path = tmp_path / "t.csv"
+    pd.DataFrame({"a": np.arange(40.0), "b": np.arange(40.0) ** 1.5}).to_csv(path, index=False)
+    code, _, err = cli("scan", path, "--cells", "some", "--quiet")
+    assert code == 2
+    assert_one_line_error(err, "--cells", "flagged, all", "some")
+
+
+@pytest.mark.slow
+def test_cells_all_fills_the_cells_column(cli, tmp_path):
+    # A planted x100 slip in a product relation (fixtures/cells.py, invented order lines): with --cells all
+    # every record has the column; the slip's line reads "amount x100?".
+    from fixtures.cells import purchase_orders
+
+    frame, planted = purchase_orders(n=1500, seed=2)
+    path, out = tmp_path / "orders.csv", tmp_path / "out.csv"
+    frame.to_csv(path, index=False)
+    code, _, err = cli("scan", path, "--id", "line", "--cells", "all", "--quiet", "--out", out)
+    assert code == 0, err
+    written = pd.read_csv(out, keep_default_na=False)
+    assert written["cells"][planted["x100"][0]].startswith("amount x100?")

@@ -32,7 +32,7 @@ DOCS = Path(__file__).resolve().parents[2] / "docs"
 # The explanation's keys, in order (docs/explanations.md and docs/output.md describe each).
 EXPLANATION_KEYS = ["row", "key", "flagged", "votes", "flag_reason", "rank", "consensus", "consensus_z", "methods",
                     "contributions", "top_features", "column_hits", "peers", "nearest_ordinary", "stability",
-                    "resamples"]
+                    "resamples", "cells"]
 # Python names that differ from their JSON keys (a keyword, or a name kept for method keys).
 RENAMED = {"method_scores": "methods", "source": "from", "before": "from", "after": "to", "method_fits": "methods"}
 
@@ -96,6 +96,7 @@ def test_the_flagged_records_explanations_are_what_the_json_records_hold(demo):
         assert rec["contributions"] == d["contributions"] and rec["top_features"] == d["top_features"]
         assert rec["peers"] == [{"row": p["row"], "key": p["key"]} for p in d["peers"]["records"]]
         assert rec["nearest_ordinary"] == d["nearest_ordinary"]
+        assert rec["cells"] == d["cells"]
         assert rec["column_hits"] == d["column_hits"] and rec["flag_reason"] == d["flag_reason"]
         _same(e, d)
 

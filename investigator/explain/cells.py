@@ -1,0 +1,610 @@
+"""Cell findings: which values of a record deviate from what its other values predict, and what was expected.
+
+Numbers follow Detecting Deviating Data Cells (DDC: Rousseeuw & Van den Bossche 2018, "Detecting deviating
+data cells", Technometrics 60(2), 135-145). The steps, from memory of the paper:
+
+1. every numeric feature is robustly standardised (here: the preparer's median and MAD chain, on the log
+   scale where the scan took logs, so that a product such as amount = quantity x unit price is a sum);
+2. cells whose standardised value is beyond c = sqrt(chi2_1 quantile 0.99) = 2.576 are set aside (they
+   predict nothing);
+3. for every pair of columns a robust correlation (here the Gnanadesikan-Kettenring identity
+   (s(u+v)^2 - s(u-v)^2) / (s(u+v)^2 + s(u-v)^2) with s the MAD scale) and a robust slope through the origin
+   (the median of the ratios u_j / u_h); columns with |correlation| >= 0.5 are connected;
+4. each cell's prediction is the weighted mean of the slopes x values of its connected columns in the same
+   record (weights |correlation|), then "deshrunk" by the robust slope of the column on its predictions;
+5. the cell residual (value - prediction) is standardised by the robust scale of the column's residuals, and
+   a cell is flagged when |residual| > c.
+
+Two additions of ours, for tables that hold exact relations:
+
+* a **relation check**: each numeric column is also regressed on all the other numeric columns (least
+  squares on up to 5,000 records without flagged cells, reweighted five times to drop residuals beyond c robust
+  scales). Where this regression predicts the column at least twice as well as step 4, its residual flags
+  a cell as well, and its prediction is the expected value. Deviations below 2% of a logged value (2% of
+  the robust spread of an unlogged one) never count: stored values are rounded, so exact relations are
+  inexact by that much;
+* **one repair explains several flags**: one wrong value spoils the predictions of the cells it predicts,
+  so a record's flagged cells are resolved one at a time. Each flagged cell in turn is replaced by its
+  expected value; the cell whose repair leaves the fewest other flagged cells (a repair that is itself
+  implausible - beyond c, or a fraction on a whole-number column - counts as one more) is reported first,
+  ties going to the record that is most consistent after the repair (the smallest sum of squared pairwise
+  residuals); the repair is kept and the rest resolved again. A record where at least half the judged cells
+  deviate is off as a whole (DDC would flag the row): its cells are listed by |residual|, without repairs.
+
+Categories: a level is reported when it is rare given a numeric partner column of the same record: the
+partner's fitted values are cut into ten bins at their deciles, and the record's level is reported when
+among the other records in its bin (at least 30) at most 1% have that level although its overall share
+would give at least 10 of them. The partner must be a cell with no finding of its own. A simple
+conditional-frequency rule of ours.
+
+Hints say what the deviation looks like when a simple slip would explain it: the value is 10^k times the
+expected value (k != 0, within a factor 1.5, and the value divided by 10^k passes the cell test), its sign
+is flipped, two adjacent digits are swapped, it is another numeric column's value of the same record
+(swapped fields), or it breaks a specification limit (``limits``).
+"""
+
+from __future__ import annotations
+
+import math
+import threading
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
+from functools import partial
+from types import MappingProxyType
+from typing import TYPE_CHECKING
+
+import numpy as np
+from scipy import stats
+
+from investigator.prepare.features import MAD_TO_SD, Features, FeatureSpec
+from investigator.prepare.roles import CATEGORICAL, NUMERIC
+from investigator.sampling import sample
+
+if TYPE_CHECKING:  # the result is the pipeline's; this layer only reads it
+    from investigator.pipeline.result import ScanResult
+
+CUTOFF = float(np.sqrt(stats.chi2.ppf(0.99, 1)))  # 2.576: the paper's cutoff for cells, from memory
+CORR_MIN = 0.5  # connected columns: |robust correlation| at least this (the paper's default, from memory)
+FIT_ROWS = 20_000  # the pairwise statistics are fitted on at most this many records, drawn by content
+MIN_ROWS = 30  # below this many records no cell findings at all (medians of ratios would be noise)
+RELATION_GAIN = 0.5  # the relation check applies where its residual scale is below half the pairwise one
+RELATION_FLOOR = 0.02  # relative deviation (logged) or share of spread (unlogged) never called a finding
+REWEIGHTS = 5
+RELATION_ROWS = 5_000  # the relation regressions are fitted on at most this many clean records
+BINS = 10
+BIN_MIN = 30  # other records in the partner's bin
+RARE_SHARE = 0.01  # at most this share of them with the level ...
+EXPECTED_MIN = 10  # ... although the level's overall share would give at least this many
+POWER_SLACK = math.log10(1.5)
+
+
+@dataclass(frozen=True, slots=True)
+class CellFinding:
+    """One deviating cell: its column, the record's value, the expected value (the column's own units; the
+    expected level for a category), the standardised residual (None for a category) and a hint in words
+    (None when no simple slip explains it). ``tag`` is the short form of the hint for one-line outputs ("x100?",
+    "" without a hint)."""
+
+    column: str
+    value: float | str
+    expected: float | str | None
+    residual: float | None
+    hint: str | None
+    tag: str = ""
+
+    def to_dict(self) -> dict:
+        return {"column": self.column, "value": self.value, "expected": self.expected,
+                "residual": self.residual, "hint": self.hint, "tag": self.tag}
+
+    def short(self) -> str:
+        """The finding in a few characters: "amount x100?", "unit_price"."""
+        return f"{self.column} {self.tag}" if self.tag else self.column
+
+
+def _mad(x: np.ndarray) -> float:
+    x = x[np.isfinite(x)]
+    return float(np.median(np.abs(x - np.median(x)))) * MAD_TO_SD if len(x) else 0.0
+
+
+def _slope(y: np.ndarray, x: np.ndarray, cor: float | None = None) -> float:
+    """The robust slope of y on x through the origin: the median of the ratios y / x (the paper's, from
+    memory). When ties make it 0 (over half of y at its median, as with a few whole-number levels), a choice
+    of ours takes its place: the slope the robust correlation implies, cor x s(y) / s(x), with s the MAD scale
+    (the standard deviation when that is 0), or without a correlation the least-squares slope through the
+    origin on the pairs with |y| within the cutoff."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        b = float(np.median((y / x)[x != 0])) if (x != 0).any() else 0.0
+    if b != 0 and np.isfinite(b):
+        return b
+    if cor is None:
+        inside = np.abs(y) <= CUTOFF
+        xx = float(np.sum(x[inside] ** 2))
+        return float(np.sum(x[inside] * y[inside])) / xx if xx > 0 else 0.0
+    sy, sx = _mad(y) or float(np.std(y)), _mad(x) or float(np.std(x))
+    return cor * sy / sx if sx > 0 else 0.0
+
+
+def _fmt(x: float) -> str:
+    # Mirrors the terminal's number format (output/explanation.py), which this layer may not import.
+    return f"{x:,.4g}" if abs(x) < 1e4 else f"{x:,.0f}"
+
+
+def _in_units(spec: FeatureSpec, z: float) -> float:
+    return float(spec.to_original(spec.center + spec.scale * z))
+
+
+def _to_z(spec: FeatureSpec, values: np.ndarray) -> np.ndarray:
+    """Values in the column's own units to standardised units (NaN where the log is undefined)."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        t = np.log(values + spec.offset) if spec.transform == "log" else values
+        return np.where(np.isfinite(t), (t - spec.center) / spec.scale, np.nan)
+
+
+def _power_hint(value: float, expected: float) -> tuple[int, str, str] | None:
+    if value <= 0 or expected <= 0:
+        return None
+    e = math.log10(value / expected)
+    k = round(e)
+    if k == 0 or abs(e - k) > POWER_SLACK:
+        return None
+    factor = f"{10 ** abs(k):,}"
+    return k, ("x" if k > 0 else "/") + factor + "?", f"a factor of {factor} {'too high' if k > 0 else 'too low'}" \
+        ": a misplaced decimal point?"
+
+
+def _digit_swaps(value: float) -> list[float]:
+    """The numbers that swapping two adjacent, different digits of ``value`` gives (decimal point kept)."""
+    text = f"{abs(value):.10g}"
+    if "e" in text:
+        return []
+    digits = [k for k, ch in enumerate(text) if ch.isdigit()]
+    out = []
+    for a, b in zip(digits, digits[1:], strict=False):
+        if text[a] != text[b]:
+            chars = list(text)
+            chars[a], chars[b] = chars[b], chars[a]
+            out.append(math.copysign(float("".join(chars)), value))
+    return out
+
+
+class CellModel:
+    """The fitted statistics of the cell test on a prepared feature matrix (numeric features only)."""
+
+    def __init__(self, features: Features, salt) -> None:
+        self.specs = features.specs
+        self.columns = np.flatnonzero([s.role == NUMERIC for s in features.specs])
+        self.names = [features.names[j] for j in self.columns]
+        q = len(self.columns)
+        Z = self.standardised(features)
+        # Salt 23: a draw of its own (other samples use 7 to 19).
+        rows = sample(features.values, FIT_ROWS, [salt, 23]) if len(Z) > FIT_ROWS else np.arange(len(Z))
+        Z = Z[rows]
+        U = np.where(np.abs(Z) > CUTOFF, np.nan, Z)
+        cor = np.eye(q)
+        slope = np.zeros((q, q))
+        ok = np.isfinite(U)
+        for j in range(q):
+            for h in range(j + 1, q):
+                both = ok[:, j] & ok[:, h]
+                if both.sum() < MIN_ROWS:
+                    continue
+                u, v = U[both, j], U[both, h]
+                plus, minus = _mad(u + v) ** 2, _mad(u - v) ** 2
+                cor[j, h] = cor[h, j] = (plus - minus) / (plus + minus) if plus + minus > 0 else 0.0
+                if abs(cor[j, h]) >= CORR_MIN:
+                    slope[j, h] = _slope(u, v, cor[j, h])
+                    slope[h, j] = _slope(v, u, cor[j, h])
+        self.cor = cor
+        self.weights = np.where((np.abs(cor) >= CORR_MIN) & ~np.eye(q, dtype=bool), np.abs(cor), 0.0)
+        self.slope = slope
+        self.deshrink = np.ones(q)
+        self.scale = np.full(q, np.nan)
+        pred = self._pairwise(U)
+        for j in range(q):
+            good = np.isfinite(Z[:, j]) & np.isfinite(pred[:, j]) & (pred[:, j] != 0)
+            if good.sum() < MIN_ROWS:
+                continue
+            self.deshrink[j] = _slope(Z[good, j], pred[good, j])
+            s = _mad(Z[good, j] - self.deshrink[j] * pred[good, j])
+            self.scale[j] = s if s > 0 else np.nan
+        # Numbers with a few whole levels (an approver level 1 to 4) follow the others in steps, not along a
+        # line: they predict the other columns but are judged by the level rule alone.
+        self.stepwise = np.array([CategoryRule.level_texts(features, int(c)) is not None for c in self.columns],
+                                 dtype=bool)
+        self.scale[self.stepwise] = np.nan
+        self._fit_relations(Z, U)
+        self.rel_scale[self.stepwise] = np.nan
+
+    def standardised(self, features: Features) -> np.ndarray:
+        """The numeric features on the robust scale, NaN where a cell was missing (it was imputed)."""
+        Z = features.values[:, self.columns].astype(float)
+        return np.where(features.imputed[:, self.columns], np.nan, Z)
+
+    def _pairwise(self, U: np.ndarray) -> np.ndarray:
+        ok = np.isfinite(U)
+        num = np.where(ok, U, 0.0) @ (self.weights * self.slope).T
+        den = ok.astype(float) @ self.weights.T
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return np.where(den > 0, num / den, np.nan)
+
+    def pairwise_residuals(self, Z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Steps 2 to 5 (DDC) for the rows of ``Z``: the predictions (deshrunk, standardised units) and the
+        standardised cell residuals; NaN where a cell has no available connected column."""
+        U = np.where(np.abs(Z) > CUTOFF, np.nan, Z)
+        pred = self.deshrink * self._pairwise(U)
+        return pred, (Z - pred) / self.scale
+
+    def _fit_relations(self, Z: np.ndarray, U: np.ndarray) -> None:
+        q = len(self.columns)
+        self.beta = np.zeros((q, q + 1))  # row j: intercept, then one coefficient per column (0 for j itself)
+        self.rel_scale = np.full(q, np.nan)
+        if q < 2:
+            return
+        _, r1 = self.pairwise_residuals(Z)
+        clean = np.all(np.isfinite(Z), axis=1) & ~np.any(np.abs(r1) > CUTOFF, axis=1)
+        if clean.sum() < MIN_ROWS + q:
+            return
+        Zc = Z[clean][:RELATION_ROWS]  # the fit rows are a draw by content already: any of them will do
+        for j in range(q):
+            others = [h for h in range(q) if h != j]
+            A = np.column_stack([np.ones(len(Zc)), Zc[:, others]])
+            y = Zc[:, j]
+            keep = np.ones(len(y), dtype=bool)
+            coef = np.zeros(q)
+            for _ in range(REWEIGHTS):
+                # The normal equations, solved by SVD: cheap at p + 1 unknowns, and safe when the other
+                # columns are collinear among themselves (amount = quantity x unit price on the log scale).
+                Ak = A[keep]
+                coef = np.linalg.lstsq(Ak.T @ Ak, Ak.T @ y[keep], rcond=None)[0]
+                res = y - A @ coef
+                s = _mad(res[keep])
+                if s == 0:
+                    break
+                keep = np.abs(res) <= CUTOFF * s
+                if keep.sum() < MIN_ROWS + q:
+                    break
+            res = y - A @ coef
+            spec = self.specs[self.columns[j]]
+            floor = RELATION_FLOOR / CUTOFF / (spec.scale if spec.transform == "log" else 1.0)
+            s = max(_mad(res[keep]), floor)
+            # Against the pairwise residual scale, or the column's own (1) where no column is connected.
+            if s < RELATION_GAIN * (self.scale[j] if np.isfinite(self.scale[j]) else 1.0):
+                self.beta[j, 0] = coef[0]
+                self.beta[j, [h + 1 for h in others]] = coef[1:]
+                self.rel_scale[j] = s
+
+    def residuals(self, Z: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """For the rows of ``Z``: the expected values (standardised units: the relation's prediction where
+        the column has one, the pairwise one elsewhere), the pairwise residuals, and the relation residuals
+        (NaN where the column has no relation)."""
+        pred, r1 = self.pairwise_residuals(Z)
+        rel = np.isfinite(self.rel_scale)
+        if not rel.any():
+            return pred, r1, np.full(Z.shape, np.nan)
+        Zf = np.where(np.isfinite(Z), Z, 0.0)  # a missing predictor counts at its median
+        pred2 = self.beta[:, 0] + Zf @ self.beta[:, 1:].T
+        r2 = np.where(rel, (Z - pred2) / self.rel_scale, np.nan)
+        return np.where(rel, pred2, pred), r1, r2
+
+    @staticmethod
+    def deviating(r1: np.ndarray, r2: np.ndarray) -> np.ndarray:
+        """Cells beyond the cutoff: on the relation's residual where the column has a relation (it predicts
+        the column at least twice as well), on the pairwise residual elsewhere."""
+        with np.errstate(invalid="ignore"):
+            return np.abs(np.where(np.isnan(r2), r1, r2)) > CUTOFF
+
+    def whole_numbers(self, features: Features) -> np.ndarray:
+        raw = features.raw[:, self.columns]
+        with np.errstate(invalid="ignore"):
+            return np.array([bool(np.all(np.isnan(c) | (c == np.round(c)))) for c in raw.T])
+
+    def resolve(self, z: np.ndarray, whole: np.ndarray,
+                extra: Callable[[np.ndarray], int] | None = None) -> tuple[list[tuple[int, float, float]], bool]:
+        """The deviating cells of one record (standardised row ``z``), most explanatory first: (column,
+        expected in standardised units, residual) for each, after the repairs of the ones before it.
+
+        A record where more than half the cells that have a prediction (and more than 3) deviate is off as a whole (DDC
+        flags such rows rather than cells): its deviating cells come by |residual|, without the repair
+        search, which would only pick among equally doubtful cells, and without hints (the second value
+        returned says so)."""
+        z = z.copy()
+        pred, r1, r2 = (a[0] for a in self.residuals(z[None, :]))
+        deviating = self.deviating(r1, r2) & np.isfinite(z)
+        judged = int(np.sum(np.isfinite(np.where(np.isnan(r2), r1, r2))))
+        if deviating.sum() > max(3, judged / 2):
+            r = np.where(np.isnan(r2), r1, r2)
+            return [(int(j), float(pred[j]), float(r[j])) for j in np.flatnonzero(deviating)[
+                np.argsort(-np.abs(r[deviating]), kind="stable")]], True
+        done = np.zeros(len(z), dtype=bool)
+        out = []
+        for _ in range(len(z)):
+            pred, r1, r2 = (a[0] for a in self.residuals(z[None, :]))
+            bad = np.flatnonzero(self.deviating(r1, r2) & ~done & np.isfinite(z))
+            if not len(bad):
+                break
+            # Every repair tried at once: one trial record per deviating cell.
+            trials = np.repeat(z[None, :], len(bad), axis=0)
+            trials[np.arange(len(bad)), bad] = pred[bad]
+            _, t1, t2 = self.residuals(trials)
+            left = self.deviating(t1, t2) & ~done
+            left[np.arange(len(bad)), bad] = False
+            best, best_key = -1, None
+            for n, j in enumerate(bad):
+                value = _in_units(self.specs[self.columns[j]], float(pred[j]))
+                implausible = int(abs(pred[j]) > CUTOFF or (whole[j] and abs(value - round(value)) > 0.05))
+                if extra is not None:
+                    implausible += extra(trials[n])  # levels left rare given the repaired numbers
+                # Fewest flags left, then the most consistent record: the smallest sum of squared pairwise
+                # residuals after the repair.
+                key = (int(left[n].sum()) + implausible, float(np.nansum(t1[n] ** 2)))
+                if best_key is None or key < best_key:
+                    best, best_key = int(j), key
+            residual = r2[best] if np.isfinite(r2[best]) else r1[best]
+            out.append((best, float(pred[best]), float(residual)))
+            z[best] = pred[best]
+            done[best] = True
+        return out, False
+
+    def expectation(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Per column of the record ``z``: the expected value and the scale its residual is measured in
+        (both standardised units). Neither depends on the column's own cell, so a candidate value c fits
+        column j when |c - expected_j| <= scale_j x the cutoff."""
+        pred, _, _ = (a[0] for a in self.residuals(z[None, :]))
+        return pred, np.where(np.isfinite(self.rel_scale), self.rel_scale, self.scale)
+
+    def predicts(self, j: int) -> bool:
+        return bool(np.isfinite(self.rel_scale[j]) or np.isfinite(self.scale[j]))
+
+
+@dataclass(frozen=True)
+class _Partner:
+    column: int  # position among the model's numeric columns
+    edges: np.ndarray  # inner bin edges, standardised units
+    counts: np.ndarray  # level x bin
+    share: np.ndarray  # level: share over the counted records
+
+
+@dataclass(frozen=True)
+class _Rare:
+    strength: float  # (others with the level + 1) / the number its overall share would give: smaller is rarer
+    column: int  # feature position of the level column
+    partner: _Partner
+    bin: int
+    others: int  # k: other records in the bin with the level
+    of: int  # m: other records in the bin
+
+
+class CategoryRule:
+    """The conditional-frequency rule for levels (see the module docstring): categories, and numeric
+    columns with at most ``BINS`` distinct whole values (such as an approver level 1 to 4), whose relation
+    to other numbers is a step rather than a line."""
+
+    def __init__(self, features: Features, model: CellModel, Z: np.ndarray) -> None:
+        self.columns: list[int] = []
+        self.codes: dict[int, dict[str, int]] = {}
+        self.levels: dict[int, list[str]] = {}
+        self.partners: dict[int, list[_Partner]] = {}
+        for c in range(len(features.specs)):
+            texts = self.level_texts(features, c)
+            if texts is None:
+                continue
+            levels, codes = np.unique(texts, return_inverse=True)
+            self.columns.append(c)
+            self.levels[c] = [str(v) for v in levels]
+            self.codes[c] = {v: k for k, v in enumerate(self.levels[c])}
+            partners = []
+            for h in range(Z.shape[1]):
+                if model.columns[h] == c:
+                    continue
+                x = Z[:, h]
+                ok = np.isfinite(x)
+                if ok.sum() < BINS * BIN_MIN:
+                    continue
+                edges = np.unique(np.quantile(x[ok], np.linspace(0, 1, BINS + 1)[1:-1]))
+                bins = np.searchsorted(edges, x[ok], side="right")
+                counts = np.zeros((len(levels), len(edges) + 1), dtype=int)
+                np.add.at(counts, (codes[ok], bins), 1)
+                partners.append(_Partner(h, edges, counts, counts.sum(axis=1) / counts.sum()))
+            self.partners[c] = partners
+
+    @staticmethod
+    def level_texts(features: Features, c: int) -> np.ndarray | None:
+        """The levels of column ``c`` as text, or None when it is not a level column."""
+        spec = features.specs[c]
+        if spec.role == CATEGORICAL and c in features.levels:
+            return features.levels[c].astype(str)
+        if spec.role != NUMERIC:
+            return None
+        x = features.raw[:, c]
+        present = x[np.isfinite(x)]
+        if not len(present) or np.any(present != np.round(present)) or len(np.unique(present)) > BINS:
+            return None
+        return np.array([f"{v:g}" if np.isfinite(v) else "" for v in x], dtype=object).astype(str)
+
+    def record_codes(self, features: Features, i: int) -> dict[int, int]:
+        out = {}
+        for c in self.columns:
+            texts = self.level_texts(features.subset(np.array([i])), c)
+            code = self.codes[c].get(str(texts[0])) if texts is not None else None
+            if code is not None:
+                out[c] = code
+        return out
+
+    def rare(self, codes: dict[int, int], z: np.ndarray, counted: bool) -> list[_Rare]:
+        """Every (level column, partner) where the record's level is rare given the partner, rarest first."""
+        out = []
+        for c, code in codes.items():
+            for p in self.partners[c]:
+                if not np.isfinite(z[p.column]):
+                    continue
+                b = int(np.searchsorted(p.edges, z[p.column], side="right"))
+                m = int(p.counts[:, b].sum()) - int(counted)
+                k = int(p.counts[code, b]) - int(counted)
+                expected = p.share[code] * m
+                if m >= BIN_MIN and k <= RARE_SHARE * m and expected >= EXPECTED_MIN:
+                    out.append(_Rare((k + 1) / expected, c, p, b, k, m))
+        return sorted(out, key=lambda r: r.strength)
+
+    def count(self, codes: dict[int, int], z: np.ndarray, counted: bool) -> int:
+        """How many level columns are rare given some partner (the repair search's extra evidence)."""
+        return len({r.column for r in self.rare(codes, z, counted)})
+
+    def findings(self, features: Features, i: int, z: np.ndarray, model: CellModel, blamed: set[int],
+                 counted: bool) -> list[CellFinding]:
+        """The level findings of record ``i`` (``z``: its standardised numbers, repaired; ``blamed``: feature
+        positions with findings already; ``counted``: whether the record is among the counted records). A
+        level rare given a partner that has a finding of its own is not reported (the partner explains it),
+        nor a level whose column is the partner of a rarer finding."""
+        out = []
+        codes = self.record_codes(features, i)
+        partners_used: set[int] = set()
+        for r in self.rare(codes, z, counted):
+            partner = int(model.columns[r.partner.column])
+            if r.column in blamed or partner in blamed or r.column in partners_used:
+                continue
+            blamed.add(r.column)
+            partners_used.add(partner)
+            p, b = r.partner, r.bin
+            spec = model.specs[partner]
+            name = model.names[p.column]
+            lo = _in_units(spec, float(p.edges[b - 1])) if b > 0 else None
+            hi = _in_units(spec, float(p.edges[b])) if b < len(p.edges) else None
+            if lo is not None and hi is not None:
+                where = f"from {_fmt(lo)} to {_fmt(hi)}"
+            else:
+                where = f"above {_fmt(lo)}" if lo is not None else f"below {_fmt(hi)}" if hi is not None else "any"
+            col = features.names[r.column]
+            level = self.levels[r.column][codes[r.column]]
+            common = self.levels[r.column][int(np.argmax(p.counts[:, b]))]
+            numeric = features.specs[r.column].role == NUMERIC
+            out.append(CellFinding(col, float(level) if numeric else level, float(common) if numeric else common,
+                                   None, f"{col} {level} is rare for {name} {where}: {r.others:,} of {r.of:,} "
+                                   "such records", f"rare for {name}?"))
+        return out
+
+
+def _hints(model: CellModel, z: np.ndarray, j: int, value: float, expected: float, raw_row: np.ndarray,
+           limits: list[dict]) -> tuple[str, str]:
+    words, tags = [], []
+    pred, scale = model.expectation(z)
+
+    def fits(h: int, values, within: float = CUTOFF) -> np.ndarray:
+        cand = _to_z(model.specs[model.columns[h]], np.atleast_1d(np.asarray(values, dtype=float)))
+        with np.errstate(invalid="ignore"):
+            return np.isfinite(cand) & (np.abs(cand - pred[h]) <= within * scale[h])
+
+    power = _power_hint(value, expected)
+    if power and fits(j, value / 10 ** power[0])[0]:
+        tags.append(power[1])
+        words.append(power[2])
+    elif value * expected < 0 and fits(j, -value)[0]:
+        tags.append("sign?")
+        words.append("the sign is flipped?")
+    else:
+        # A swap or another column's value must fit closely (within one residual scale, not the cutoff):
+        # among the many values a slip could give, one is near the expected value by chance too often.
+        options = _digit_swaps(value)
+        swaps = [v for v, ok in zip(options, fits(j, options, 1.0), strict=True) if ok]
+        if swaps:
+            near = min(swaps, key=lambda v: abs(v - expected))
+            tags.append("digits swapped?")
+            words.append(f"two adjacent digits swapped? {_fmt(near)} would fit")
+        else:
+            others = [h for h, other in enumerate(raw_row) if h != j and np.isfinite(other) and other != value]
+            for h, ok in zip(others, fits(j, raw_row[others], 1.0), strict=True):
+                if not ok:
+                    continue
+                # ... and this column's value must fit the other column (or its usual range, unpredicted)
+                back = _to_z(model.specs[model.columns[h]], np.array([value]))[0]
+                there = fits(h, value, 1.0)[0] if model.predicts(h) else np.isfinite(back) and abs(back) <= CUTOFF
+                if there:
+                    tags.append(f"= {model.names[h]}?")
+                    words.append(f"it is this record's {model.names[h]}: swapped fields?")
+                    break
+    for hit in limits:
+        if hit.get("column") == model.names[j]:
+            side, bound = hit["side"], hit["upper"] if hit["side"] == "above" else hit["lower"]
+            tags.append(f"{side} limit")
+            words.append(f"{side} the {'upper' if side == 'above' else 'lower'} limit {_fmt(float(bound))}")
+    return "; ".join(words), " ".join(tags)
+
+
+class CellFinder:
+    """The cell findings of one scan result: fitted once on first use (on the reference records in check
+    mode; by a model that scores blocks, on its sample), then read by every output. ``findings()`` holds the
+    records of the scan's ``cells`` scope (flagged records by default, all with ``cells="all"``)."""
+
+    def __init__(self, result: ScanResult, fitted: tuple[CellModel, CategoryRule] | None = None) -> None:
+        self.result = result
+        self._lock = threading.RLock()
+        self._fitted = fitted
+        # Level counts include the record itself only when they were counted on the scan's own records.
+        self._counted = fitted is None and result.reference_features is None
+        self._scope: Mapping[int, tuple[CellFinding, ...]] | None = None
+
+    @property
+    def fitted(self) -> tuple[CellModel, CategoryRule]:
+        """The fitted cell test and level rule (a model that scores blocks hands them to each block)."""
+        return self._fit()
+
+    def _fit(self) -> tuple[CellModel, CategoryRule]:
+        with self._lock:
+            if self._fitted is None:
+                ref = self.result.reference_features
+                fit_on = ref if ref is not None else self.result.features
+                model = CellModel(fit_on, self.result.options.seed)
+                self._fitted = (model, CategoryRule(fit_on, model, model.standardised(fit_on)))
+            return self._fitted
+
+    def findings(self) -> Mapping[int, tuple[CellFinding, ...]]:
+        """The findings of every record in the scope, by 0-based position (read-only; computed once)."""
+        with self._lock:
+            if self._scope is None:
+                scope = getattr(self.result.options, "cells", "flagged")
+                positions = (np.arange(self.result.n_records) if scope == "all"
+                             else np.flatnonzero(self.result.flagged))
+                self._scope = MappingProxyType(dict(zip(positions.tolist(), self.of(positions), strict=True)))
+            return self._scope
+
+    def of(self, positions) -> list[tuple[CellFinding, ...]]:
+        """The findings of the records at 0-based ``positions`` (the scope's when kept, otherwise now)."""
+        positions = np.asarray(positions, dtype=int)
+        if self._scope is not None and all(int(i) in self._scope for i in positions):
+            return [self._scope[int(i)] for i in positions]
+        if len(positions) == 0 or self.result.n_records < MIN_ROWS:
+            return [() for _ in positions]
+        model, rule = self._fit()
+        features = self.result.features
+        Z = model.standardised(features.subset(positions))
+        suspect: np.ndarray = np.zeros(len(positions), dtype=bool)
+        if Z.shape[1]:
+            _, r1, r2 = model.residuals(Z)
+            suspect = np.asarray(np.any(model.deviating(r1, r2), axis=1), dtype=bool)
+        whole = model.whole_numbers(features)
+        counted = self._counted
+        out = []
+        for n, i in enumerate(positions.tolist()):
+            cells: list[CellFinding] = []
+            blamed: set[int] = set()
+            repaired = Z[n].copy()
+            if suspect[n]:
+                raw = features.raw[i, model.columns]
+                limits = self.result.out_of_spec[i] if self.result.out_of_spec is not None else []
+                codes = rule.record_codes(features, i)
+                extra = partial(rule.count, codes, counted=counted)
+                resolved, as_a_whole = model.resolve(Z[n], whole, extra)
+                for j, expected_z, residual in resolved:
+                    spec = model.specs[model.columns[j]]
+                    value, expected = float(raw[j]), _in_units(spec, expected_z)
+                    hint, tag = ("", "") if as_a_whole else _hints(model, repaired, j, value, expected, raw, limits)
+                    cells.append(CellFinding(model.names[j], value, expected, residual, hint or None, tag))
+                    repaired[j] = expected_z
+                    blamed.add(int(model.columns[j]))
+            cells += rule.findings(features, i, repaired, model, blamed, counted)
+            out.append(tuple(cells))
+        return out
+
+
+def cells_text(cells: tuple[CellFinding, ...]) -> str:
+    """The findings of one record in one line (the CSV/Parquet column): "amount x100?; unit_price"."""
+    return "; ".join(c.short() for c in cells)
