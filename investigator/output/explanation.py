@@ -7,6 +7,7 @@ for the report and the cases table, which escape for their own formats.
 
 from __future__ import annotations
 
+from investigator.explain.cells import CellFinding
 from investigator.explain.explanation import Explanation, NearestOrdinary, TopFeature, Typical, TypicalLevel
 from investigator.printable import printable
 
@@ -141,17 +142,20 @@ def headline_text(e: Explanation) -> str:
     return printable(lead)
 
 
+def cell_sentence(c: CellFinding) -> str:
+    """One cell finding in words: "amount 3,855 where this record's other values predict about 38.55
+    (residual 41.2): a factor of 100 too high: a misplaced decimal point?"."""
+    if c.residual is None:  # a level rare given another column: the hint says it all
+        return f"{c.hint}."
+    text = (f"{c.column} {format_value(c.value)} where this record's other values predict about "
+            f"{format_value(c.expected)} (residual {c.residual:,.1f})")
+    text += f": {c.hint}" if c.hint else ""
+    return text if text.endswith("?") else text + "."
+
+
 def cell_lines(e: Explanation) -> list[str]:
     """The cells that deviate from what the record's other values predict, one line each."""
-    lines = []
-    for c in e.cells:
-        if c.residual is None:  # a level rare given another column: the hint says it all
-            lines.append(f"  {c.hint}.")
-            continue
-        text = (f"  {c.column} {format_value(c.value)} where this record's other values predict about "
-                f"{format_value(c.expected)} (residual {c.residual:,.1f})")
-        text += f": {c.hint}" if c.hint else ""
-        lines.append(text if text.endswith("?") else text + ".")
+    lines = [f"  {cell_sentence(c)}" for c in e.cells]
     return ["Cells that look wrong", *lines] if lines else []
 
 

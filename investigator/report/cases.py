@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 from investigator.explain.explanation import Explanation, NearestOrdinary
 from investigator.explain.view import top_features_text
-from investigator.output.explanation import format_value
+from investigator.output.explanation import cell_sentence, format_value
 
 
 @dataclass
@@ -64,6 +64,12 @@ def nearest_text(nearest: NearestOrdinary | None) -> str:
             f"cutoff {nearest.cutoff:.2f}{reach})")
 
 
+def cells_text(explanation: Explanation) -> str:
+    """The cells that look wrong, each in words, e.g. "amount 3,855 where this record's other values predict
+    about 38.55 (residual 41.2): a factor of 100 too high: a misplaced decimal point?"."""
+    return " ".join(cell_sentence(c) for c in explanation.cells)
+
+
 def top_text(explanation: Explanation, limit: int = 5) -> str:
     return top_features_text(explanation, limit=limit)
 
@@ -74,7 +80,7 @@ def table_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
     extra = [k for k in ("stability", "pattern", "group") if any(k in c.record for c in cases)]
     headers = (["case", "rank", "row", "key", "consensus", "consensus_z", "votes", "flagged", "flag_reason"]
                + [f"flag_{k}" for k in methods]
-               + ["top_features", "column_hits", "nearest_ordinary_change"] + extra
+               + ["cells", "top_features", "column_hits", "nearest_ordinary_change"] + extra
                + ["verdict", "note", "reviewer", "verdict_at", "changed_since_verdict"])
     rows = []
     for c in cases:
@@ -84,7 +90,7 @@ def table_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
             [c.rank, r["rank"], r["row"], _plain(r["key"]), r["consensus"], r["consensus_z"], r["votes"], r["flagged"],
              r["flag_reason"]]
             + [r["flags"][k] for k in methods]
-            + [top_text(c.explanation), column_hits_text(r["column_hits"]),
+            + [cells_text(c.explanation), top_text(c.explanation), column_hits_text(r["column_hits"]),
                nearest_text(c.explanation.nearest_ordinary)]
             + [_plain(r.get(k)) for k in extra]
             + [entry.verdict if entry else None, entry.note if entry else None,

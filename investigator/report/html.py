@@ -15,6 +15,7 @@ import numpy as np
 
 from investigator.explain.explanation import Peer, PeerDifference
 from investigator.output.explanation import (
+    cell_sentence,
     direction_text,
     format_value,
     headline_text,
@@ -546,6 +547,9 @@ def _case(result, c: Case) -> Safe:
             text.append(tag("span", "; the record has changed since the verdict (see Verdicts)",
                             class_="changed"))
         parts.append(tag("p", "Verdict: ", *text))
+    if e.cells:  # the values that look wrong come first: they are what a reviewer checks at the source
+        parts.append(tag("h4", "Cells that look wrong"))
+        parts.append(items(cell_sentence(cell) for cell in e.cells))
     nearest = e.nearest_ordinary
     if nearest:
         prefix = ("No change to one or two features alone brings it under the robust_distance cutoff. "

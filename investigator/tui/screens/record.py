@@ -13,7 +13,7 @@ from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
 from investigator.explain.explanation import Explanation
-from investigator.output.explanation import format_value, nearest_sentence, typical_text
+from investigator.output.explanation import cell_sentence, format_value, nearest_sentence, typical_text
 from investigator.tui.models.record import RecordView
 from investigator.tui.plain import plain
 from investigator.tui.widgets.contribution_bars import ContributionBars
@@ -138,6 +138,12 @@ class RecordScreen(Screen):
 
 
 def _change(e: Explanation) -> str:
+    """The cells that look wrong (first: what a reviewer checks at the source), then the smallest change."""
+    cells = "".join(f"Cell: {cell_sentence(c)}\n" for c in e.cells)
+    return cells + _smallest_change(e)
+
+
+def _smallest_change(e: Explanation) -> str:
     nearest = e.nearest_ordinary
     if nearest:
         return nearest_sentence(nearest)
@@ -163,10 +169,15 @@ def _values(view: RecordView) -> Table:
     for h, j in (("feature", "left"), ("value", "right"), ("typical", "left"), ("z", "right"), ("", "left")):
         t.add_column(h, justify=j)
     top = {f.feature: f for f in view.explanation.top_features}
+    cells = {c.column: c for c in view.explanation.cells}
     for v in view.values:
         f = top.get(v.feature)
         mark = ""
-        if f is not None:
+        cell = cells.get(v.feature)
+        if cell is not None:  # a value that looks wrong: said before its direction, with what was expected
+            expected = "" if cell.expected is None else f" expected ~{format_value(cell.expected)}"
+            mark = f"✗ wrong?{expected}" + (f" {cell.tag}" if cell.tag else "")
+        elif f is not None:
             mark = {"higher": "▲ higher", "lower": "▼ lower", "rarer": "◆ rare"}.get(f.direction, "")
             if f.direction == "combination":
                 mark = f"◇ with {f.with_feature}" if f.with_feature else "◇ in combination"
