@@ -108,8 +108,7 @@ def _describe(result, i, features, deltas, method, d2_before) -> NearestOrdinary
     for j, delta in zip(features, deltas, strict=True):
         spec = result.features.specs[j]
         before = float(result.features.raw[i, j])
-        new_t = (x[j] + delta) * spec.scale + spec.center
-        after = float(spec.to_original(new_t))
+        after = float(spec.to_original(spec.unscaled(x[j] + delta)))  # through the bound's compression
         changes.append(Change(spec.name, before, after, after - before, float(delta)))
         x[j] += delta
     location, P = _fit_of(result, i)

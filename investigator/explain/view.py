@@ -35,7 +35,8 @@ from investigator.explain.explanation import (
     TypicalRange,
 )
 from investigator.explain.nearest import nearest_ordinary
-from investigator.prepare.features import Features
+from investigator.prepare import magnitudes
+from investigator.prepare.features import MISSING_LEVEL, Features
 from investigator.prepare.roles import CATEGORICAL
 
 POINTS_AT = 0.25
@@ -83,8 +84,13 @@ def typical_ranges(pool: Pool) -> tuple[Typical, ...]:
             out.append(TypicalLevel(str(share.index[0]), float(share.iloc[0])))
         else:
             keep = members[~F.imputed[members, j]]
+            if not len(keep):
+                # No ordinary record has a value here (a sparse column whose values are all in flagged
+                # records): what is typical is to have none, as the category encoding would say.
+                out.append(TypicalLevel(MISSING_LEVEL, 1.0))
+                continue
             t = F.transformed[keep, j]
-            q1, med, q3 = (float(spec.to_original(v)) for v in np.quantile(t, [0.25, 0.5, 0.75]))
+            q1, med, q3 = (float(spec.to_original(v)) for v in magnitudes.quantiles(t, [0.25, 0.5, 0.75]))
             out.append(TypicalRange(med, q1, q3))
     return tuple(out)
 
@@ -201,7 +207,7 @@ def _peers(result, pool, i, peer_pos, peer_dist) -> Peers:
                 peer_values = [raw_value(F, int(p), j) for p in peer_pos]
                 typical = max(peer_values, key=peer_values.count)  # ties: the nearest peer's value
             else:
-                typical = float(spec.to_original(np.median(F.transformed[peer_pos, j])))
+                typical = float(spec.to_original(magnitudes.median(F.transformed[peer_pos, j])))
             differences.append(PeerDifference(spec.name, raw_value(result.features, i, j), typical,
                                               float(gap[j])))
     return Peers(rows, tuple(differences), pool.source)

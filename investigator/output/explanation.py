@@ -60,10 +60,12 @@ def headline_text(e: Explanation) -> str:
     for t in e.top_features[:2]:
         if t.direction == "rarer":
             parts.append(f"{t.feature} has a rare value ({format_value(t.value)}; typical: {typical_text(t.typical)})")
+        elif t.direction in ("higher", "lower") and isinstance(t.typical, TypicalLevel):
+            # A number where ordinary records have none (a sparse column): there is no median to compare.
+            parts.append(f"{t.feature} has a value ({format_value(t.value)}) where ordinary records have none")
         elif t.direction in ("higher", "lower"):
-            median = t.typical.median if not isinstance(t.typical, TypicalLevel) else None
             parts.append(f"{t.feature} is {t.direction} than typical ({format_value(t.value)} against "
-                         f"a median of {format_value(median)})")
+                         f"a median of {format_value(t.typical.median)})")
     if parts:
         intro = " It stands out mainly because " if e.votes else " Its largest deviations: "
         lead += intro + " and ".join(parts) + "."
