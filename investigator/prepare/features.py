@@ -167,7 +167,8 @@ def column_scale(t: np.ndarray) -> tuple[float, float, str]:
     u = np.ldexp(np.asarray(t, dtype=float), -k)
     q1, q3 = np.quantile(u, [0.25, 0.75])
     center, spread, rule = robust_scale(u, magnitude=max(abs(float(q1)), abs(float(q3))))
-    return float(np.ldexp(center, k)), min(float(np.ldexp(spread, k)), magnitudes.FLOAT_MAX), rule
+    with np.errstate(over="ignore"):  # a spread beyond the largest float is capped there
+        return float(np.ldexp(center, k)), min(float(np.ldexp(spread, k)), magnitudes.FLOAT_MAX), rule
 
 
 def column_numbers(values: pd.Series) -> np.ndarray:

@@ -11,7 +11,7 @@ as CSV and given to ``investigator scan --out x.json`` in this process; for some
 * on 0, every score, z-value and consensus in the JSON is a finite number, and every input row appears
   exactly once, with its key.
 
-Profiles: ``ci`` (the default: 30 examples, derandomised, so CI cannot flap; about 40 s on two idle cores)
+Profiles: ``ci`` (the default: 40 examples, tables to 300 rows, derandomised, so CI cannot flap)
 and ``long`` (run by hand: ``INVESTIGATOR_HYPOTHESIS=long pytest tests/cli/test_property_input.py``; random,
 2,000 examples, tables to 3,000 rows). See DEVELOPERS.md.
 """
@@ -36,16 +36,15 @@ from investigator.cli.main import main
 
 # No explain phase: it reruns a failing example a hundred times over (minutes per failure on a scan).
 PHASES = (Phase.explicit, Phase.reuse, Phase.generate, Phase.shrink)
-settings.register_profile(
-    "ci", max_examples=30, deadline=None, derandomize=True, print_blob=True, phases=PHASES,
-    suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture, HealthCheck.data_too_large],
-)
-settings.register_profile(
-    "long", max_examples=2000, deadline=None, derandomize=False, print_blob=True, phases=PHASES,
-    suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture, HealthCheck.data_too_large],
-)
+QUIET = [HealthCheck.too_slow, HealthCheck.function_scoped_fixture, HealthCheck.data_too_large]
+settings.register_profile("ci", max_examples=40, deadline=None, derandomize=True, database=None, print_blob=True,
+                          phases=PHASES,
+                          suppress_health_check=QUIET)
+settings.register_profile("long", max_examples=int(os.environ.get("INVESTIGATOR_HYPOTHESIS_EXAMPLES", "2000")),
+                          deadline=None, derandomize=False, print_blob=True, phases=PHASES,
+                          suppress_health_check=QUIET)
 PROFILE = os.environ.get("INVESTIGATOR_HYPOTHESIS", "ci")
-MAX_ROWS = 3000 if PROFILE == "long" else 800
+MAX_ROWS = 3000 if PROFILE == "long" else 300
 
 # Magnitudes at the edges of floating point (IEEE 754 doubles: largest 1.7976931348623157e308, smallest
 # subnormal 5e-324), zeros of both signs, and values whose square or float32 form overflows.
@@ -54,7 +53,13 @@ EXTREMES = (1e308, -1e308, 1.7976931348623157e308, -1.7976931348623157e308, 1e30
 # Text a number column of a real file may hold: placeholders, units, separators, spelled-out non-numbers.
 ODD_TEXT = ("n/a", "NA", "-", "?", "none", "null", "NaN", "inf", "-inf", "1e999", "12%", "$5", "1,234",
             "1 234", " 7 ", "0x1F", "1.2.3", "TRUE", "—", "ÿ", "12abc", "", "e", ".")
-KINDS = ("float", "int", "code", "text", "bool", "date", "constant", "sparse")
+# Text columns as files hold them: separators and quotes, line breaks inside a cell, spreadsheet formulas,
+# accents and symbols outside Latin-1, long values.
+HOSTILE_TEXT = ("a;b", "tab\there", "line\nbreak", 'quote " inside', "=1+2", "+cmd", "@SUM(A1)", "日本語",
+                "emoji \U0001f600", "x" * 300, "  padded  ", "|pipe|", "back\\slash", "\r")
+NUMBER_KINDS = ("float", "int", "code", "constant", "sparse", "extreme", "mixed", "thousands")
+KINDS = ("float", "int", "code", "text", "bool", "date", "constant", "sparse", "extreme", "mixed", "thousands",
+         "hostile")
 
 
 @dataclass(frozen=True)
@@ -69,19 +74,20 @@ class Shape:
     odd: tuple[tuple[int, int, str], ...]  # odd text in number columns, the same way
     key: bool
     seed: int
+    screens: bool  # also --digits, --duplicates and --limits on the first number column
 
 
 @st.composite
 def shapes(draw) -> Shape:
     rows = draw(st.one_of(st.integers(1, 12), st.integers(13, 120), st.integers(121, MAX_ROWS)))
-    kinds = tuple(draw(st.lists(st.sampled_from(KINDS), min_size=1, max_size=8)))
+    kinds = tuple(draw(st.lists(st.sampled_from(KINDS + ("float", "float", "int")), min_size=1, max_size=8)))
     extremes = draw(st.lists(st.tuples(st.integers(0, 7), st.integers(0, 10_000), st.sampled_from(EXTREMES)),
                              max_size=6))
     odd = draw(st.lists(st.tuples(st.integers(0, 7), st.integers(0, 10_000), st.sampled_from(ODD_TEXT)),
                         max_size=4))
     return Shape(rows, kinds, draw(st.sampled_from((0.0, 0.0, 0.02, 0.3, 0.9))),
                  draw(st.sampled_from((0.0, 0.0, 0.1, 0.6))), tuple(extremes), tuple(odd), draw(st.booleans()),
-                 draw(st.integers(0, 2**32 - 1)))
+                 draw(st.integers(0, 2**32 - 1)), draw(st.booleans()))
 
 
 def build(shape: Shape) -> tuple[list[str], list[list[str]]]:
@@ -106,6 +112,14 @@ def build(shape: Shape) -> tuple[list[str], list[list[str]]]:
             cells = [str(np.datetime64("2015-01-01") + int(d)) for d in days]
         elif kind == "constant":
             cells = ["4.5"] * n
+        elif kind == "extreme":  # nothing but values at the edges of floating point
+            cells = [repr(float(v)) for v in rng.choice(EXTREMES, n)]
+        elif kind == "mixed":  # numbers and odd text, half and half
+            cells = [repr(float(v)) if rng.random() < 0.5 else str(rng.choice(ODD_TEXT)) for v in rng.normal(0, 1, n)]
+        elif kind == "thousands":  # numbers written with thousands separators
+            cells = [f"{v:,.2f}" for v in rng.lognormal(8, 1, n)]
+        elif kind == "hostile":
+            cells = [str(v) for v in rng.choice(HOSTILE_TEXT, n)]
         else:  # sparse: a number in about 1 row in 500, blank elsewhere
             cells = [repr(float(v)) if rng.random() < 0.002 else "" for v in rng.normal(100, 5, n)]
         if shape.missing:
@@ -113,7 +127,7 @@ def build(shape: Shape) -> tuple[list[str], list[list[str]]]:
                 cells[i] = ""
         columns.append(cells)
     p = len(columns)
-    numeric = [j for j, k in enumerate(shape.kinds) if k in ("float", "int", "code", "constant", "sparse")]
+    numeric = [j for j, k in enumerate(shape.kinds) if k in NUMBER_KINDS]
     if numeric:
         for j, i, value in shape.extremes:
             columns[numeric[j % len(numeric)]][i % n] = repr(value)
@@ -132,10 +146,23 @@ def build(shape: Shape) -> tuple[list[str], list[list[str]]]:
 
 def write(path: Path, header: list[str], rows: list[list[str]]) -> Path:
     with open(path, "w", newline="", encoding="utf-8") as handle:
-        writer = csv.writer(handle, lineterminator="\n")
+        # Lines end in CRLF, so that the writer quotes a cell holding either character (with "\n" alone it
+        # leaves a lone "\r" bare, which every reader takes for a line break).
+        writer = csv.writer(handle, lineterminator="\r\n")
         writer.writerow(header)
         writer.writerows(rows)
     return path
+
+
+def screen_args(shape: Shape, header: list[str], folder: Path) -> tuple:
+    """--digits (Benford), --duplicates and --limits (a lower and an upper limit) on the first number column."""
+    names = [h for h, k in zip(header[int(shape.key):], shape.kinds, strict=True) if k in NUMBER_KINDS]
+    if not names:
+        return ()
+    limits = folder / "limits.csv"
+    upper = abs(EXTREMES[shape.seed % len(EXTREMES)])  # at least the lower limit, or the file is refused
+    limits.write_text(f"column,lower,upper\n{names[0]},-1e300,{upper!r}\n", encoding="utf-8")
+    return ("--digits", names[0], "--duplicates", names[0], "--limits", limits)
 
 
 def run(*args) -> tuple[int, str, str]:
@@ -180,8 +207,9 @@ def test_any_table_gives_a_result_or_a_one_line_error(shape: Shape, extra: str):
     with tempfile.TemporaryDirectory() as tmp:
         data = write(Path(tmp) / "table.csv", header, rows)
         id_args = ("--id", "record_id") if shape.key else ()
+        screens = screen_args(shape, header, Path(tmp)) if shape.screens else ()
         out = Path(tmp) / "result.json"
-        code, _, err = run("scan", data, "--out", out, "--map", "none", "--quiet", *id_args)
+        code, _, err = run("scan", data, "--out", out, "--map", "none", "--quiet", *id_args, *screens)
         assert_contract(code, err, "scan")
         event(f"scan exit {code}" + (f": {err.split(': error: ')[-1][:60]}" if code else ""))
         if code == 0:
@@ -193,7 +221,7 @@ def test_any_table_gives_a_result_or_a_one_line_error(shape: Shape, extra: str):
             new = write(Path(tmp) / "new.csv", header, rows[half:])
             checked = Path(tmp) / "checked.json"
             code, _, err = run("check", new, "--reference", reference, "--out", checked, "--map", "none",
-                               "--quiet", *id_args)
+                               "--quiet", *id_args, *screens)
             assert_contract(code, err, "check")
             if code == 0:
                 keys = [r[0] for r in rows[half:]] if shape.key else None
