@@ -24,7 +24,7 @@ import numpy as np
 import pandas as pd
 
 from investigator.explain.explanation import Typical, TypicalLevel, TypicalRange
-from investigator.prepare.features import Features
+from investigator.prepare.features import MISSING_LEVEL, Features
 from investigator.prepare.roles import CATEGORICAL
 
 # Smallest adjusted eta squared for a category to give a feature its typical ranges: 0.06, a 'medium' effect in
@@ -106,8 +106,11 @@ def build_typical(features: Features, members: np.ndarray) -> TypicalValues:
             overall.append(TypicalLevel(str(share.index[0]), float(share.iloc[0])))
             continue
         keep = members[~features.imputed[members, j]]
-        if len(keep) == 0:  # every ordinary value was filled in: the fill is all there is
-            keep = members
+        if len(keep) == 0:
+            # No ordinary record has a value here (a sparse column whose values are all in flagged records):
+            # what is typical is to have none, as the category encoding would say.
+            overall.append(TypicalLevel(MISSING_LEVEL, 1.0))
+            continue
         raw = features.raw[keep, j]
         raw = np.where(np.isfinite(raw), raw, spec.to_original(features.transformed[keep, j]))
         overall.append(_range(raw))

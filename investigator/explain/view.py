@@ -35,6 +35,7 @@ from investigator.explain.explanation import (
 )
 from investigator.explain.nearest import nearest_ordinary
 from investigator.explain.typical import TypicalValues, build_typical, direction
+from investigator.prepare import magnitudes
 from investigator.prepare.features import Features
 from investigator.prepare.roles import CATEGORICAL
 
@@ -196,7 +197,7 @@ def _peers(result, pool, i, peer_pos, peer_dist) -> Peers:
                 peer_values = [raw_value(F, int(p), j) for p in peer_pos]
                 typical = max(peer_values, key=peer_values.count)  # ties: the nearest peer's value
             else:
-                typical = float(spec.to_original(np.median(F.transformed[peer_pos, j])))
+                typical = float(spec.to_original(magnitudes.median(F.transformed[peer_pos, j])))
             differences.append(PeerDifference(spec.name, raw_value(result.features, i, j), typical,
                                               float(gap[j])))
     return Peers(rows, tuple(differences), pool.source)

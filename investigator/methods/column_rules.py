@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from investigator.prepare import magnitudes
 from investigator.prepare.features import Features
 
 RULES = ("three_sigma", "modified_z", "boxplot_fence")
@@ -40,10 +41,17 @@ class ColumnRules:
         self.skipped_: list[str] = []
         for j in np.flatnonzero(features.numeric_mask()):
             t = features.transformed[~features.imputed[:, j], j]
-            mean, sd = float(np.mean(t)), float(np.std(t, ddof=1))
-            med = float(np.median(t))
-            mad = float(np.median(np.abs(t - med)))
-            q1, q3 = (float(v) for v in np.quantile(t, [0.25, 0.75]))
+            if not len(t):  # every cell of the reference records was filled: nothing to set limits by
+                continue
+            # Values near the float limits: computed on t / 2^k (exact), so no difference overflows (and the
+            # standard deviation by magnitudes.mean_sd, whose squares cannot); a limit that still lies beyond
+            # the largest float is no limit and is left out.
+            k = magnitudes.shift_of(t)
+            u = np.ldexp(t, -k)
+            mean, sd = magnitudes.mean_sd(u) if len(u) > 1 else (float(u[0]), 0.0)
+            med = float(np.median(u))
+            mad = float(np.median(np.abs(u - med)))
+            q1, q3 = (float(v) for v in np.quantile(u, [0.25, 0.75]))
             lower = {"three_sigma": mean - SIGMAS * sd, "boxplot_fence": q1 - FENCE * (q3 - q1)}
             upper = {"three_sigma": mean + SIGMAS * sd, "boxplot_fence": q3 + FENCE * (q3 - q1)}
             if mad > 0:
@@ -51,6 +59,9 @@ class ColumnRules:
                 lower["modified_z"], upper["modified_z"] = med - half, med + half
             else:
                 self.skipped_.append(features.names[j])
+            lower, upper = _finite(lower, k), _finite(upper, k)
+            upper = {r: v for r, v in upper.items() if r in lower}
+            lower = {r: v for r, v in lower.items() if r in upper}
             self.limits_.append(ColumnLimits(int(j), lower, upper))
         return self
 
@@ -84,3 +95,10 @@ class ColumnRules:
             "modified_z": f"|0.6745 (x - median) / MAD| > {MODIFIED_Z:g}",
             "boxplot_fence": f"outside Q1 - {FENCE:g} IQR .. Q3 + {FENCE:g} IQR",
         }
+
+
+def _finite(limits: dict[str, float], k: int) -> dict[str, float]:
+    """Limits computed on t / 2^k back in t's units, without those beyond the largest float."""
+    with np.errstate(over="ignore"):
+        back = {rule: float(np.ldexp(v, k)) for rule, v in limits.items()}
+    return {rule: v for rule, v in back.items() if np.isfinite(v)}

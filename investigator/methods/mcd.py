@@ -282,9 +282,12 @@ class FastMCD:
         p = X.shape[1]
         d2 = sq_distances(X, mu, raw_S)
         # Consistency: scale so the median distance matches the chi-square median (as scikit-learn does).
-        # A median of 0 (over half the records at the raw centre itself) leaves the scale as it is.
+        # A median of 0 (over half the records at the raw centre itself) leaves the scale as it is; so does a
+        # median at the level of rounding (over half the records at the centre but for 1e-160 in a column
+        # whose spread is 1e200: dividing by it overflowed).
         med = float(np.median(d2))
-        factor = med / stats.chi2.ppf(0.5, p) if med > 0 else 1.0
+        chi2_median = stats.chi2.ppf(0.5, p)
+        factor = med / chi2_median if med > _RCOND * chi2_median else 1.0
         raw_corrected = raw_S * factor
         d2 = d2 / factor
         q = stats.chi2.ppf(0.975, p)
@@ -396,7 +399,13 @@ class FastMCD:
         mu, S = _mean_cov(X[subset])
         S = _regularised(S, ridge)
         if _is_singular(S):
-            raise _Singular
+            if not ridge:
+                raise _Singular
+            # Singular despite the ridge: the subset spans more than 12 orders of magnitude of variance
+            # (values compressed beyond the preparation's bound next to tied ones). The ridge is raised to
+            # the singularity threshold of this subset, so the step can go on (the search only compares
+            # determinants under one ridge, and this one is used for this step's distances only).
+            S = S + 2 * _RCOND * float(np.linalg.eigvalsh(S)[-1]) * np.eye(len(S))
         new = np.argpartition(sq_distances(X, mu, S), h - 1)[:h]
         return new, _logdet(_regularised(_mean_cov(X[new])[1], ridge))
 

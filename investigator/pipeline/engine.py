@@ -42,7 +42,7 @@ from investigator.pipeline.scoring import (
     reference_combined_fence,
 )
 from investigator.pipeline.stability import flag_stability
-from investigator.prepare.features import FeaturePreparer, Features, column_numbers
+from investigator.prepare.features import FeaturePreparer, Features, beyond_bound_notices, column_numbers
 from investigator.prepare.roles import assign_roles
 from investigator.progress import Progress, silent
 from investigator.review.matching import match_store
@@ -77,6 +77,9 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
         preparer = FeaturePreparer(log=log).fit(table, columns)
         features = ref_features = preparer.transform(table)
     notices += preparer.notices_
+    if reference is not None:
+        notices += [f"reference: {n}" for n in beyond_bound_notices(ref_features, reference.row_numbers)]
+    notices += beyond_bound_notices(features, table.row_numbers)
     n, p = ref_features.values.shape
     if n <= p:
         raise InputError(

@@ -11,7 +11,9 @@ Fitted on reference records, applied to any records (a plain scan fits and appli
   deviations on a numeric feature, and levels at least as common as the typical one all count 0;
 * missing values take the column median (in transformed units) and every imputed cell is kept in a mask;
 * every numeric feature is robustly scaled: centred on its median and divided by the first non-zero spread
-  of the chain in :func:`robust_scale` (1.4826 x MAD, IQR / 1.349, sqrt(pi/2) x mean absolute deviation).
+  of the chain in :func:`robust_scale` (1.4826 x MAD, IQR / 1.349, sqrt(pi/2) x mean absolute deviation);
+  a value more than 10,000 robust standard deviations out is compressed logarithmically beyond that bound
+  (:mod:`investigator.prepare.magnitudes`), so every method gets finite input whatever magnitude a file holds.
 
 Constant and duplicate columns are dropped with a notice.
 """
@@ -25,6 +27,7 @@ import pandas as pd
 
 from investigator.errors import InputError
 from investigator.io.tables import Table
+from investigator.prepare import magnitudes
 from investigator.prepare.roles import CATEGORICAL, DATE, NUMERIC, ColumnInfo, parse_numeric
 
 MISSING_LEVEL = "(missing)"
@@ -51,6 +54,8 @@ class FeatureSpec:
     missing: int = 0
     decision: str = ""
     levels: dict[str, float] = field(default_factory=dict)  # categorical: level -> rarity
+    bound: float = magnitudes.BOUND  # numbers: robust z beyond which values are compressed logarithmically
+    beyond_bound: int = 0  # numbers: records of the fit beyond the bound
 
     def as_dict(self) -> dict:
         out = asdict(self)
@@ -58,12 +63,25 @@ class FeatureSpec:
             out.pop("levels")
         else:
             out["levels"] = len(self.levels)
+            out.pop("bound")
+            out.pop("beyond_bound")
         return out
 
     def to_original(self, transformed):
-        """Transformed units back to the column's own units (numbers only)."""
+        """Transformed units back to the column's own units (numbers only), within the finite floats."""
         t = np.asarray(transformed, dtype=float)
-        return np.exp(t) - self.offset if self.transform == "log" else t
+        if self.transform != "log":
+            return t
+        with np.errstate(over="ignore"):
+            return np.minimum(np.exp(t) - self.offset, magnitudes.FLOAT_MAX)
+
+    def scaled(self, transformed):
+        """Transformed units to the scaled units the methods see (numbers; compressed beyond the bound)."""
+        return magnitudes.standardise(transformed, self.center, self.scale, self.bound)
+
+    def unscaled(self, scaled):
+        """The inverse of :meth:`scaled`."""
+        return magnitudes.unstandardise(scaled, self.center, self.scale, self.bound)
 
 
 @dataclass
@@ -95,11 +113,12 @@ class Features:
 def quartile_skewness(x: np.ndarray) -> float:
     """Bowley's quartile skewness (Q3 + Q1 - 2 Q2) / (Q3 - Q1), in [-1, 1]; outliers beyond the
     quartiles do not move it, so it measures the bulk's shape, not the tails the scan is looking for."""
-    q1, q2, q3 = np.quantile(x, [0.25, 0.5, 0.75])
+    u = np.ldexp(np.asarray(x, dtype=float), -magnitudes.shift_of(x))  # the ratio is the same; no overflow
+    q1, q2, q3 = np.quantile(u, [0.25, 0.5, 0.75])
     return 0.0 if q3 == q1 else float((q3 + q1 - 2 * q2) / (q3 - q1))
 
 
-def robust_scale(t: np.ndarray) -> tuple[float, float, str]:
+def robust_scale(t: np.ndarray, magnitude: float | None = None) -> tuple[float, float, str]:
     """Median and a robust spread that is never zero for values that vary: the first of
 
     1. 1.4826 x MAD (the median absolute deviation, consistent for the standard deviation of a normal);
@@ -111,13 +130,17 @@ def robust_scale(t: np.ndarray) -> tuple[float, float, str]:
     that is above zero. The rule used is returned beside the spread ("MAD", "IQR", "mean absolute
     deviation", "unit"). Ties and integer codes make 1 and 2 zero whenever over half (or three quarters)
     of the values are one value; 3 is zero only when every value is.
+
+    A spread below 1e-12 of ``magnitude`` (default: the largest |value|) is rounding, not spread.
     """
     t = np.asarray(t, dtype=float)
     center = float(np.median(t))
     dev = np.abs(t - center)
     # A spread at the level of floating-point rounding of the values is no spread (a projection of tied
     # values carries noise of 1e-16).
-    tiny = ROUNDING * float(np.max(np.abs(t))) if len(t) else 0.0
+    if magnitude is None:
+        magnitude = float(np.max(np.abs(t))) if len(t) else 0.0
+    tiny = ROUNDING * magnitude
     mad = float(np.median(dev)) * MAD_TO_SD
     if mad > tiny:
         return center, mad, "MAD"
@@ -128,6 +151,24 @@ def robust_scale(t: np.ndarray) -> tuple[float, float, str]:
     if mean_ad > tiny:
         return center, mean_ad, "mean absolute deviation"
     return center, 1.0, "unit"
+
+
+def column_scale(t: np.ndarray) -> tuple[float, float, str]:
+    """:func:`robust_scale` of a column's finite values as read (or logged), for any finite doubles.
+
+    Two differences from the plain chain, both for values near the float limits. The values are first
+    brought below 2^1000 by a power of two (exact) so that no deviation overflows, and the result is scaled
+    back (a spread that would exceed the largest float is capped there). And rounding is judged against the
+    magnitude of the bulk, the larger |quartile|, not the largest |value|: values read from a file are
+    exact, and one value of 1e40 must not turn the spread of every other record (2.97 hours, say) into
+    'rounding' and the column's scale into 1e36, which would hide every other outlier of the column.
+    """
+    k = magnitudes.shift_of(t)
+    u = np.ldexp(np.asarray(t, dtype=float), -k)
+    q1, q3 = np.quantile(u, [0.25, 0.75])
+    center, spread, rule = robust_scale(u, magnitude=max(abs(float(q1)), abs(float(q3))))
+    with np.errstate(over="ignore"):  # a spread beyond the largest float is capped there
+        return float(np.ldexp(center, k)), min(float(np.ldexp(spread, k)), magnitudes.FLOAT_MAX), rule
 
 
 def column_numbers(values: pd.Series) -> np.ndarray:
@@ -222,8 +263,9 @@ class FeaturePreparer:
             self._choose_log(table, spec, good, info.name in log_cols)
             t = self._apply_numeric(spec, x)
         finite = t[np.isfinite(t)]
-        spec.fill = float(np.median(finite))
-        spec.center, spec.scale, spec.scale_method = robust_scale(finite)
+        spec.fill = magnitudes.median(finite)
+        spec.center, spec.scale, spec.scale_method = column_scale(finite)
+        spec.beyond_bound = int((np.abs(spec.scaled(finite)) > spec.bound).sum())
         if spec.missing:
             self.notices_.append(
                 f"column '{info.name}': {spec.missing} missing value{'s' if spec.missing > 1 else ''} "
@@ -308,11 +350,35 @@ class FeaturePreparer:
                 raw[:, j] = np.where(imputed[:, j], np.nan, numbers)
                 t = np.where(imputed[:, j], spec.fill, t)
             transformed[:, j] = t
-        centers = np.array([s.center for s in self.specs_])
-        scales = np.array([s.scale for s in self.specs_])
-        values = (transformed - centers) / scales
+        values = np.empty((n, p))
+        for j, spec in enumerate(self.specs_):
+            # Rarities are used as they are (center 0, scale 1, and never near the bound).
+            values[:, j] = spec.scaled(transformed[:, j]) if spec.role != CATEGORICAL else transformed[:, j]
+        values += 0.0  # -0.0 becomes 0.0: records equal in value are equal in content (hashes, copies)
         return Features([s.name for s in self.specs_], list(self.specs_), values, transformed, imputed, raw,
                         level_arrays)
 
 
-__all__ = ["DATE", "FeaturePreparer", "FeatureSpec", "Features", "robust_scale"]
+def beyond_bound_notices(features: Features, row_numbers) -> list[str]:
+    """One notice per numeric feature with values beyond the bound of robust standard deviations: how many,
+    the first record's row and value, and that they were compressed (so no method overflows)."""
+    out = []
+    for j, spec in enumerate(features.specs):
+        if spec.role == CATEGORICAL:
+            continue
+        beyond = np.flatnonzero(np.abs(features.values[:, j]) > spec.bound)
+        if not len(beyond):
+            continue
+        first = int(beyond[0])
+        value = features.raw[first, j]
+        many = len(beyond) > 1
+        out.append(
+            f"column '{spec.name}': {len(beyond)} value{'s' if many else ''} more than {spec.bound:,.0f} robust "
+            f"standard deviations from the median (first in row {int(row_numbers[first])}: {value:.6g}) "
+            f"{'are' if many else 'is'} compressed logarithmically beyond that bound, so every method gets "
+            f"finite input; {'they stay' if many else 'it stays'} the most extreme"
+        )
+    return out
+
+
+__all__ = ["DATE", "FeaturePreparer", "FeatureSpec", "Features", "beyond_bound_notices", "column_scale", "robust_scale"]

@@ -24,6 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from investigator.prepare import magnitudes
 from investigator.prepare.features import MISSING_LEVEL, Features
 from investigator.prepare.roles import CATEGORICAL
 
@@ -101,9 +102,9 @@ def _numbers(features: Features, j: int, mask: np.ndarray) -> dict:
     def typical(part: np.ndarray) -> float:
         known = raw[part][np.isfinite(raw[part])]
         if len(known):
-            return float(np.median(known))
+            return magnitudes.median(known)
         # Every cell was filled: go back from the transformed median.
-        return float(spec.to_original(np.median(features.transformed[part, j])))
+        return float(spec.to_original(magnitudes.median(features.transformed[part, j])))
 
     known = raw[mask][np.isfinite(raw[mask])]
     low, high = (float(known.min()), float(known.max())) if len(known) else (typical(mask), typical(mask))
