@@ -307,43 +307,88 @@ class CellModel:
         flags such rows rather than cells): its deviating cells come by |residual|, without the repair
         search, which would only pick among equally doubtful cells, and without hints (the second value
         returned says so)."""
-        z = z.copy()
-        pred, r1, r2 = (a[0] for a in self.residuals(z[None, :]))
+        out, as_a_whole, _ = self.resolve_many(z[None, :], whole, None if extra is None else [extra])[0]
+        return out, as_a_whole
+
+    def resolve_many(self, Z: np.ndarray, whole: np.ndarray,
+                     extras: list[Callable[[np.ndarray], int]] | None = None
+                     ) -> list[tuple[list[tuple[int, float, float]], bool, list[np.ndarray]]]:
+        """``resolve`` for every row of ``Z`` at once (``extras``: one per row, or None), plus, per reported
+        cell, the expected values of the whole record just before that cell was repaired (what the hints
+        test candidates against). The search runs in lock-step over the records: each round, one array pass
+        gives the flags of every record still open, and one more the trials of all their repairs, so the
+        Python left per record is the bookkeeping of its choice."""
+        z = Z.copy()
+        m, q = z.shape
+        results: list[tuple[list[tuple[int, float, float]], bool, list[np.ndarray]]] = [
+            ([], False, []) for _ in range(m)]
+        if m == 0:
+            return results
+        # Each record as a stack of its own: the array pass then multiplies it exactly as it would alone,
+        # so the findings do not depend on which other records are resolved with it (a matrix product over
+        # many rows may round differently in the last bit).
+        pred, r1, r2 = (a[:, 0] for a in self.residuals(z[:, None, :]))
         deviating = self.deviating(r1, r2) & np.isfinite(z)
-        judged = int(np.sum(np.isfinite(np.where(np.isnan(r2), r1, r2))))
-        if deviating.sum() > max(3, judged / 2):
-            r = np.where(np.isnan(r2), r1, r2)
-            return [(int(j), float(pred[j]), float(r[j])) for j in np.flatnonzero(deviating)[
-                np.argsort(-np.abs(r[deviating]), kind="stable")]], True
-        done = np.zeros(len(z), dtype=bool)
-        out = []
-        for _ in range(len(z)):
-            pred, r1, r2 = (a[0] for a in self.residuals(z[None, :]))
-            bad = np.flatnonzero(self.deviating(r1, r2) & ~done & np.isfinite(z))
-            if not len(bad):
+        r = np.where(np.isnan(r2), r1, r2)
+        judged = np.sum(np.isfinite(r), axis=1)
+        whole_row = deviating.sum(axis=1) > np.maximum(3, judged / 2)
+        for n in np.flatnonzero(whole_row).tolist():
+            cols = np.flatnonzero(deviating[n])
+            cols = cols[np.argsort(-np.abs(r[n, cols]), kind="stable")]
+            results[n] = ([(int(j), float(pred[n, j]), float(r[n, j])) for j in cols], True, [])
+        done = np.zeros((m, q), dtype=bool)
+        active = np.flatnonzero(~whole_row)
+        specs = [self.specs[c] for c in self.columns]
+        for _ in range(q):
+            if not len(active):
                 break
-            # Every repair tried at once: one trial record per deviating cell.
-            trials = np.repeat(z[None, :], len(bad), axis=0)
-            trials[np.arange(len(bad)), bad] = pred[bad]
-            _, t1, t2 = self.residuals(trials)
-            left = self.deviating(t1, t2) & ~done
-            left[np.arange(len(bad)), bad] = False
-            best, best_key = -1, None
-            for n, j in enumerate(bad):
-                value = _in_units(self.specs[self.columns[j]], float(pred[j]))
-                implausible = int(abs(pred[j]) > CUTOFF or (whole[j] and abs(value - round(value)) > 0.05))
-                if extra is not None:
-                    implausible += extra(trials[n])  # levels left rare given the repaired numbers
-                # Fewest flags left, then the most consistent record: the smallest sum of squared pairwise
-                # residuals after the repair.
-                key = (int(left[n].sum()) + implausible, float(np.nansum(t1[n] ** 2)))
-                if best_key is None or key < best_key:
-                    best, best_key = int(j), key
-            residual = r2[best] if np.isfinite(r2[best]) else r1[best]
-            out.append((best, float(pred[best]), float(residual)))
-            z[best] = pred[best]
-            done[best] = True
-        return out, False
+            za = z[active]
+            pred, r1, r2 = (a[:, 0] for a in self.residuals(za[:, None, :]))
+            bad = self.deviating(r1, r2) & ~done[active] & np.isfinite(za)
+            open_ = bad.any(axis=1)
+            active, za, pred, r1, r2, bad = (a[open_] for a in (active, za, pred, r1, r2, bad))
+            if not len(active):
+                break
+            # Every repair of every open record tried at once: one trial record per (record, deviating cell),
+            # in the record's column order.
+            rec, col = np.nonzero(bad)
+            trial = np.arange(len(rec))
+            trials = za[rec]
+            trials[trial, col] = pred[rec, col]
+            # The trials of the records with the same number of deviating cells as one stack: each record's
+            # trials are multiplied as one block, as they would be alone.
+            t1, t2 = np.empty_like(trials), np.empty_like(trials)
+            counts = bad.sum(axis=1)
+            per_trial = counts[rec]
+            for c in np.unique(counts).tolist():
+                at = np.flatnonzero(per_trial == c)
+                _, g1, g2 = self.residuals(trials[at].reshape(-1, c, q))
+                t1[at], t2[at] = g1.reshape(-1, q), g2.reshape(-1, q)
+            left = self.deviating(t1, t2) & ~done[active][rec]
+            left[trial, col] = False
+            fixed = pred[rec, col]
+            implausible = (np.abs(fixed) > CUTOFF).astype(int)
+            for j in np.unique(col[whole[col]]).tolist():
+                at = np.flatnonzero(col == j)
+                value = np.array([_in_units(specs[j], float(v)) for v in fixed[at]])
+                implausible[at] |= np.abs(value - np.round(value)) > 0.05
+            if extras is not None:
+                implausible += np.array([extras[active[a]](trials[k]) for k, a in enumerate(rec.tolist())],
+                                        dtype=int)
+            # Fewest flags left, then the most consistent record: the smallest sum of squared pairwise
+            # residuals after the repair; ties to the first such cell (the sorts are stable).
+            consistency = np.array([np.nansum(row ** 2) for row in t1]) if len(t1) else np.zeros(0)
+            order = np.lexsort((consistency, left.sum(axis=1) + implausible, rec))
+            first = order[np.r_[True, rec[order][1:] != rec[order][:-1]]]
+            for k in first.tolist():
+                a, j = int(rec[k]), int(col[k])
+                n = int(active[a])
+                residual = r2[a, j] if np.isfinite(r2[a, j]) else r1[a, j]
+                results[n][0].append((j, float(pred[a, j]), float(residual)))
+                results[n][2].append(pred[a])
+                z[n, j] = pred[a, j]
+                done[n, j] = True
+        return results
 
     def expectation(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Per column of the record ``z``: the expected value and the scale its residual is measured in
@@ -351,6 +396,10 @@ class CellModel:
         column j when |c - expected_j| <= scale_j x the cutoff."""
         pred, _, _ = (a[0] for a in self.residuals(z[None, :]))
         return pred, np.where(np.isfinite(self.rel_scale), self.rel_scale, self.scale)
+
+    @property
+    def hint_scale(self) -> np.ndarray:
+        return np.where(np.isfinite(self.rel_scale), self.rel_scale, self.scale)
 
     def predicts(self, j: int) -> bool:
         return bool(np.isfinite(self.rel_scale[j]) or np.isfinite(self.scale[j]))
@@ -483,10 +532,12 @@ class CategoryRule:
         return out
 
 
-def _hints(model: CellModel, z: np.ndarray, j: int, value: float, expected: float, raw_row: np.ndarray,
+def _hints(model: CellModel, pred: np.ndarray, j: int, value: float, expected: float, raw_row: np.ndarray,
            limits: list[dict]) -> tuple[str, str]:
+    """The hint of cell ``j`` (words, tags); ``pred``: the record's expected values (standardised units) as
+    ``CellModel.expectation`` gives them, which the repair search has at hand."""
     words, tags = [], []
-    pred, scale = model.expectation(z)
+    scale = model.hint_scale
 
     def fits(h: int, values, within: float = CUTOFF) -> np.ndarray:
         cand = _to_z(model.specs[model.columns[h]], np.atleast_1d(np.asarray(values, dtype=float)))
@@ -582,25 +633,30 @@ class CellFinder:
             suspect = np.asarray(np.any(model.deviating(r1, r2), axis=1), dtype=bool)
         whole = model.whole_numbers(features)
         counted = self._counted
+        levels = bool(rule.columns)  # without level columns the level rule finds nothing: skip it per record
+        rows = np.flatnonzero(suspect)
+        codes = {n: rule.record_codes(features, positions[n]) for n in rows.tolist()} if levels else {}
+        extras = [partial(rule.count, codes[n], counted=counted) for n in rows.tolist()] if levels else None
+        resolved = dict(zip(rows.tolist(), model.resolve_many(Z[rows], whole, extras), strict=True))
         out = []
         for n, i in enumerate(positions.tolist()):
             cells: list[CellFinding] = []
             blamed: set[int] = set()
             repaired = Z[n].copy()
-            if suspect[n]:
+            if n in resolved:
                 raw = features.raw[i, model.columns]
                 limits = self.result.out_of_spec[i] if self.result.out_of_spec is not None else []
-                codes = rule.record_codes(features, i)
-                extra = partial(rule.count, codes, counted=counted)
-                resolved, as_a_whole = model.resolve(Z[n], whole, extra)
-                for j, expected_z, residual in resolved:
+                found, as_a_whole, before = resolved[n]
+                for step, (j, expected_z, residual) in enumerate(found):
                     spec = model.specs[model.columns[j]]
                     value, expected = float(raw[j]), _in_units(spec, expected_z)
-                    hint, tag = ("", "") if as_a_whole else _hints(model, repaired, j, value, expected, raw, limits)
+                    hint, tag = ("", "") if as_a_whole else _hints(model, before[step], j, value, expected, raw,
+                                                                   limits)
                     cells.append(CellFinding(model.names[j], value, expected, residual, hint or None, tag))
                     repaired[j] = expected_z
                     blamed.add(int(model.columns[j]))
-            cells += rule.findings(features, i, repaired, model, blamed, counted)
+            if levels:
+                cells += rule.findings(features, i, repaired, model, blamed, counted)
             out.append(tuple(cells))
         return out
 
