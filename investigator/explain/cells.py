@@ -143,7 +143,10 @@ def _to_z(spec: FeatureSpec, values: np.ndarray) -> np.ndarray:
 def _power_hint(value: float, expected: float) -> tuple[int, str, str] | None:
     if value <= 0 or expected <= 0:
         return None
-    e = math.log10(value / expected)
+    ratio = value / expected
+    if not math.isfinite(ratio) or ratio <= 0:  # under- or overflow at extreme magnitudes: no power of ten to tell
+        return None
+    e = math.log10(ratio)
     k = round(e)
     if k == 0 or abs(e - k) > POWER_SLACK:
         return None
