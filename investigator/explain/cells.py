@@ -639,7 +639,8 @@ class CellFinder:
         levels = bool(rule.columns)  # without level columns the level rule finds nothing: skip it per record
         rows = np.flatnonzero(suspect)
         codes = {n: rule.record_codes(features, positions[n]) for n in rows.tolist()} if levels else {}
-        extras = [partial(rule.count, codes[n], counted=counted) for n in rows.tolist()] if levels else None
+        extras: list[Callable[[np.ndarray], int]] | None = (
+            [partial(rule.count, codes[n], counted=counted) for n in rows.tolist()] if levels else None)
         resolved = dict(zip(rows.tolist(), model.resolve_many(Z[rows], whole, extras), strict=True))
         out = []
         for n, i in enumerate(positions.tolist()):

@@ -133,8 +133,9 @@ def _best_grouping(features: Features, keep: np.ndarray, j: int, categorical: li
     with hundreds of levels does not win by chance); None when none explains at least ``MIN_EFFECT``."""
     t = features.transformed[keep, j]
     n = len(t)
-    total = float(((t - t.mean()) ** 2).sum())
-    if total <= 0:
+    with np.errstate(over="ignore", invalid="ignore"):  # a column near the float limit has no finite spread
+        total = float(((t - t.mean()) ** 2).sum())
+    if not np.isfinite(total) or total <= 0:
         return None
     best, best_eta = None, MIN_EFFECT
     for g in categorical:
