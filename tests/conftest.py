@@ -30,6 +30,20 @@ def cli(capsys):
     return run
 
 
+@pytest.fixture
+def csv_of(tmp_path):
+    """``csv_of(kind)``: the invented table ``fixtures.tables.make_frame(kind)`` written as ``d.csv`` in the
+    test's own folder; its path."""
+    from fixtures.tables import make_frame
+
+    def write(kind: str):
+        path = tmp_path / "d.csv"
+        make_frame(kind).to_csv(path, index=False)
+        return path
+
+    return write
+
+
 @pytest.fixture(scope="session")
 def demo_scan(tmp_path_factory):
     """The built-in demo file and its scan with the key column, made once for the session. Read it only:

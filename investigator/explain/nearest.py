@@ -88,12 +88,13 @@ class _Search:
     # -- units ----------------------------------------------------------------------------------------
     def to_value(self, j: int, z: float) -> float:
         spec = self.features.specs[j]
-        return float(spec.to_original(z * spec.scale + spec.center))
+        # through the magnitude bound, so a scaled value beyond it maps back to the value it came from
+        return float(spec.to_original(spec.unscaled(np.array([z]))[0]))
 
     def to_scaled(self, j: int, value: float) -> float:
         spec = self.features.specs[j]
         t = np.log(value + spec.offset) if spec.transform == "log" else value
-        return float((t - spec.center) / spec.scale)
+        return float(spec.scaled(np.array([t], dtype=float))[0])
 
     def distance(self, features: list[int], deltas: np.ndarray) -> float:
         r = self.r.copy()

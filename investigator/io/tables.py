@@ -149,6 +149,15 @@ def load_table(data, *, sheet: str | None = None, id_column: str | None = None,
     return table
 
 
+def _given_header(path: Path, header_row: int, available: int, what: str) -> int:
+    """The 0-based position of the user's 1-based ``header_row``; a one-line error when the file (``what``
+    says its unit, with {} for the count) has fewer rows."""
+    if header_row > available:
+        raise InputError(f"{path}: header_row={header_row}, but {what.format(available)}",
+                         parameters=("header_row",))
+    return header_row - 1
+
+
 def check_reading_options(decimal: str | None, header_row: int | None) -> None:
     """``decimal`` and ``header_row`` as the loader takes them; a one-line error naming the parameter."""
     if decimal is not None and decimal not in DECIMALS:
@@ -342,10 +351,7 @@ def _read_text(path: Path, raw: bytes, digest: str, id_column: str | None, decim
     delimiter = _sniff_delimiter(text, path.suffix.lower())
     lines = list(io.StringIO(text))  # split on LF only, as the csv module reads
     if header_row is not None:
-        if header_row > len(lines):
-            raise InputError(f"{path}: header_row={header_row}, but the file has {len(lines)} lines",
-                             parameters=("header_row",))
-        start = header_row - 1
+        start = _given_header(path, header_row, len(lines), "the file has {} lines")
     else:
         head = []
         for item in _records(lines, delimiter, path):
@@ -564,10 +570,7 @@ def _read_excel(path: Path, raw: bytes, sheet: str | None,
         if not any(any(v is not None for v in r) for r in rows):
             raise InputError(f"{path}: sheet '{sheet}' is empty; it needs a header row and data rows")
         if header_row is not None:
-            if header_row > len(rows):
-                raise InputError(f"{path}: header_row={header_row}, but sheet '{sheet}' has {len(rows)} rows",
-                                 parameters=("header_row",))
-            at = header_row - 1
+            at = _given_header(path, header_row, len(rows), f"sheet '{sheet}' has {{}} rows")
         else:
             at = find_header([list(r) for r in rows[: MAX_TITLE_ROWS + 21]])
             if at:

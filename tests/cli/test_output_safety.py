@@ -22,6 +22,7 @@ import pytest
 import investigator.pipeline.engine
 from fixtures.cli import assert_one_line_error
 from fixtures.tables import make_frame
+from investigator.review.store import default_store_path
 
 
 def digest(path: Path) -> str:
@@ -29,10 +30,8 @@ def digest(path: Path) -> str:
 
 
 @pytest.fixture
-def data(tmp_path):
-    path = tmp_path / "d.csv"
-    make_frame("deliveries").to_csv(path, index=False)
-    return path
+def data(csv_of):
+    return csv_of("deliveries")
 
 
 @pytest.fixture
@@ -126,7 +125,7 @@ def test_the_default_store_beside_the_data_is_never_an_output(cli, data, no_work
     # default store is checked by file identity (a hard link named .csv).
     code, _, err = cli("verdict", data, "--row", "1", "--set", "benign")
     assert code == 0, err
-    store = data.with_name(data.name + ".investigation.sqlite")
+    store = default_store_path(data)
     alias = data.with_name("alias.csv")
     os.link(store, alias)
     code, _, err = cli("report", data, "--out", alias)

@@ -10,7 +10,6 @@ import pytest
 
 import investigator
 from fixtures.cli import assert_one_line_error
-from fixtures.tables import make_frame
 from investigator.errors import InputError
 from investigator.pipeline.options import SEED_MAX, ScanOptions
 
@@ -24,10 +23,8 @@ def test_the_bound_is_numpys():
 
 
 @pytest.fixture
-def data(tmp_path):
-    path = tmp_path / "d.csv"
-    make_frame("parts").to_csv(path, index=False)
-    return path
+def data(csv_of):
+    return csv_of("parts")
 
 
 @pytest.mark.parametrize("seed", ["99999999999999999999", str(SEED_MAX + 1), "-1", "-99999999999999999999"])

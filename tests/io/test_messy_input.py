@@ -330,6 +330,8 @@ def test_xlsx_title_rows_above_the_header(tmp_path):
     given = load_table(tmp_path / "titled.xlsx", id_column="part_id", header_row=3)
     assert not any(n.startswith("header found") for n in given.notices)
     pd.testing.assert_frame_equal(given.frame, table.frame)
+    with pytest.raises(InputError, match=r"titled\.xlsx: header_row=999, but sheet '.+' has \d+ rows"):
+        load_table(tmp_path / "titled.xlsx", id_column="part_id", header_row=999)
 
 
 def test_csv_title_rows_and_the_header_row_option(tmp_path, capsys):

@@ -20,6 +20,7 @@ from scipy import stats
 
 import investigator
 from fixtures import messy
+from investigator.explain.nearest import nearest_ordinary
 from investigator.io.demo import DEMO_ID
 from investigator.prepare.magnitudes import BOUND
 
@@ -38,16 +39,23 @@ def small_table(n: int = 300, seed: int = 3) -> pd.DataFrame:
                          "y": rng.normal(20, 3, n), "q": rng.integers(1, 6, n).astype(float)})
 
 
-@pytest.mark.parametrize("huge", HUGE)
-def test_one_huge_value_is_flagged_first_and_finite(cli, tmp_path, huge):
-    frame = small_table()
-    frame.loc[10, "x"] = huge
+def scanned(cli, tmp_path, frame: pd.DataFrame) -> dict:
+    """Scan ``frame`` through the command line (written as CSV, key column ``id``); the JSON document, its
+    records checked finite."""
     data = tmp_path / "table.csv"
     frame.to_csv(data, index=False)
     code, _, err = cli("scan", data, "--id", "id", "--map", "none", "--quiet", "--out", tmp_path / "out.json")
     assert code == 0, err
     document = json.loads((tmp_path / "out.json").read_text(encoding="utf-8"))
     finite_records(document)
+    return document
+
+
+@pytest.mark.parametrize("huge", HUGE)
+def test_one_huge_value_is_flagged_first_and_finite(cli, tmp_path, huge):
+    frame = small_table()
+    frame.loc[10, "x"] = huge
+    document = scanned(cli, tmp_path, frame)
     top = min(document["records"], key=lambda r: r["rank"])
     assert top["key"] == "K0010" and top["flagged"]
     notice = next(n for n in document["run"]["notices"] if "compressed" in n)
@@ -60,16 +68,30 @@ def test_one_huge_value_is_flagged_first_and_finite(cli, tmp_path, huge):
     assert x_spec["beyond_bound"] == 1 and x_spec["bound"] == BOUND
 
 
+@pytest.mark.parametrize("huge", [1e6, 1e9, 1e300])
+def test_the_smallest_change_of_a_value_beyond_the_bound_is_an_ordinary_value(huge):
+    """A value far beyond the magnitude bound is stored compressed; the smallest change must map back
+    through the compression, so the value it proposes lies within the ordinary range of the column (the
+    other records' min-max), not at a compressed-unit artefact."""
+    frame = small_table()
+    frame.loc[10, "x"] = huge
+    result = investigator.scan(frame, id="id")
+    x = result.features.names.index("x")
+    spec = result.features.specs[x]
+    assert abs(result.features.values[10, x]) > spec.bound  # stored beyond the bound, compressed
+    change = nearest_ordinary(result, 10, result.explainer.typical.bounds)
+    assert change is not None and change.reaches_cutoff
+    moved = {c.feature: c for c in change.changes}
+    assert moved["x"].before == huge
+    others = frame["x"].drop(index=10)
+    assert others.min() <= moved["x"].after <= others.max()
+
+
 def test_several_huge_values_in_two_columns(cli, tmp_path):
     frame = small_table()
     frame.loc[[10, 20, 30], "x"] = [1e300, 1.7976931348623157e308, -1e250]
     frame.loc[[10, 40], "y"] = [1e200, -1.7e308]
-    data = tmp_path / "table.csv"
-    frame.to_csv(data, index=False)
-    code, _, err = cli("scan", data, "--id", "id", "--map", "none", "--quiet", "--out", tmp_path / "out.json")
-    assert code == 0, err
-    document = json.loads((tmp_path / "out.json").read_text(encoding="utf-8"))
-    finite_records(document)
+    document = scanned(cli, tmp_path, frame)
     first = {r["key"] for r in sorted(document["records"], key=lambda r: r["rank"])[:4]}
     assert first == {"K0010", "K0020", "K0030", "K0040"}
 

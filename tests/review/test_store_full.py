@@ -10,24 +10,23 @@ size) needs a new page. "PRAGMA integrity_check" returns the single row 'ok' on 
 from __future__ import annotations
 
 import sqlite3
+from contextlib import closing
 from pathlib import Path
 
 import pytest
 
 from fixtures.cli import assert_one_line_error
-from fixtures.tables import make_frame
 from investigator.errors import InputError
 from investigator.review import Case, ReviewStore
 from investigator.review import store as store_module
+from investigator.review.store import default_store_path
 
 BIG_NOTE = "n" * 6000  # more than one 4096-byte page
 
 
 @pytest.fixture
-def data(tmp_path):
-    path = tmp_path / "d.csv"
-    make_frame("invoices").to_csv(path, index=False)
-    return path
+def data(csv_of):
+    return csv_of("invoices")
 
 
 @pytest.fixture
@@ -58,7 +57,7 @@ def test_verdict_on_a_full_disk_is_one_line_and_keeps_the_store(cli, data, full_
     for row, state, note in (("1", "confirmed", "first note"), ("2", "benign", "second note")):
         code, _, err = cli("verdict", data, "--row", row, "--set", state, "--note", note)
         assert code == 0, err
-    store = data.with_name(data.name + ".investigation.sqlite")
+    store = default_store_path(data)
     before, ok = read(store)
     assert ok == "ok" and len(before) == 2
     full_disk()
@@ -84,14 +83,15 @@ def test_store_set_on_a_full_disk_raises_input_error(tmp_path, full_disk):
     assert read(path) == ([("group:1", "benign", "kept")], "ok")
 
 
-def test_a_store_that_cannot_be_created_on_a_full_disk(tmp_path, monkeypatch):
+@pytest.mark.parametrize("pages", [1, 2, 3])  # room for none, one or two of the tables it needs
+def test_a_store_that_cannot_be_created_on_a_full_disk(tmp_path, monkeypatch, pages):
     # A new store on a disk with room for one page only: creating the schema fails as a whole (one
     # transaction), so once there is room the same file opens as a new, empty store.
     real = sqlite3.connect
 
     def connect(*args, **kwargs):
         db = real(*args, **kwargs)
-        db.execute("PRAGMA max_page_count = 1")
+        db.execute(f"PRAGMA max_page_count = {pages}")
         return db
 
     path = tmp_path / "new.sqlite"
@@ -100,6 +100,10 @@ def test_a_store_that_cannot_be_created_on_a_full_disk(tmp_path, monkeypatch):
         ReviewStore(path)
     assert "rollback" not in str(caught.value)
     monkeypatch.setattr(store_module.sqlite3, "connect", real)
+    # All or nothing: the failed creation left no half-made schema (no table, no index) in the file.
+    if path.exists():
+        with closing(real(path)) as db:
+            assert db.execute("SELECT name FROM sqlite_master").fetchall() == []
     with ReviewStore(path) as store:
         assert store.history() == []
         store.set(Case(case_id="group:1", kind="group"), "open")
