@@ -188,7 +188,7 @@ def _peers(result, pool, i, peer_pos, peer_dist) -> Peers:
     rows = tuple(Peer(int(pool.rows[p]), pool.keys[p], float(d),
                       {names[j]: raw_value(F, int(p), j) for j in range(len(names))})
                  for p, d in zip(peer_pos, peer_dist, strict=True))
-    differences = []
+    differences: list[PeerDifference] = []
     if len(peer_pos):
         gap = result.features.values[i] - np.median(F.values[peer_pos], axis=0)
         for j in np.argsort(-np.abs(gap), kind="stable"):
