@@ -52,6 +52,18 @@ def add_scan_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--digits", metavar="COL", help="Benford's law first-digit tests on these amount columns")
     p.add_argument("--duplicates", metavar="A,B",
                    help="report groups of records with the same values on these columns")
+    p.add_argument("--dates", metavar="A,B|none",
+                   help="date columns to use through their calendar parts (weekday, period end, hour, holiday); "
+                   "default: the columns found to hold dates; none: leave dates out")
+    p.add_argument("--hours", metavar="H1-H2",
+                   help="working hours for the outside-hours rule: from H1:00 up to H2:00 (default 8-18)")
+    p.add_argument("--holidays", metavar="CC[-SUB]",
+                   help="public holidays of this country (US, DE-BY, ...) as a calendar part and rule")
+    p.add_argument("--durations", metavar="START:END",
+                   help="days from START to END (two date columns; several separated by commas) as features")
+    p.add_argument("--dayfirst", action="store_const", const=True, default=None,
+                   help="read dates such as 03/04/2025 as day/month (default: told from the values, else "
+                   "month/day)")
     p.add_argument("--map", metavar="auto|umap|pca|none", default=None,
                    help="add 2-D map coordinates (auto: UMAP, or PCA for tiny data); the map command defaults "
                    "to auto, every other command to none (give it to report to include the map)")
@@ -90,6 +102,9 @@ def scan_parameters(args: argparse.Namespace) -> dict:
         "decimal": getattr(args, "decimal", None), "header_row": getattr(args, "header_row", None),
         "resamples": args.resamples, "limits": args.limits, "digits": args.digits, "map": args.map,
         "duplicates": args.duplicates, "cells": getattr(args, "cells", None),
+        "dates": getattr(args, "dates", None), "hours": getattr(args, "hours", None),
+        "holidays": getattr(args, "holidays", None), "durations": getattr(args, "durations", None),
+        "dayfirst": getattr(args, "dayfirst", None),
         "keep_reference_outliers": getattr(args, "keep_reference_outliers", False),
     }
     return {k: v for k, v in given.items() if v is not None}

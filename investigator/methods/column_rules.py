@@ -36,10 +36,14 @@ class ColumnLimits:
 class ColumnRules:
     """Fit the three rules' limits per numeric feature; ``hits`` lists the cells outside them."""
 
-    def fit(self, features: Features) -> ColumnRules:
+    def fit(self, features: Features, skip: frozenset[str] = frozenset()) -> ColumnRules:
+        """``skip``: numeric features judged by a rule of their own (the hour of a date column: the
+        outside-hours rule), left out here."""
         self.limits_: list[ColumnLimits] = []
         self.skipped_: list[str] = []
         for j in np.flatnonzero(features.numeric_mask()):
+            if features.names[j] in skip:
+                continue
             t = features.transformed[~features.imputed[:, j], j]
             if not len(t):  # every cell of the reference records was filled: nothing to set limits by
                 continue

@@ -142,6 +142,15 @@ def headline_text(e: Explanation) -> str:
     return printable(lead)
 
 
+def column_hit_text(h: dict) -> str:
+    """One column hit in words: "amount: three_sigma (270,268 is above 185,828)", or for a calendar rule
+    "posting_date: weekend (on Sunday 2025-03-09: 3 of 3,008 records fall on a weekend)"."""
+    if "text" in h:
+        return f"{h['column']}: {h['rule']} ({h['text']})"
+    side = "above" if h["side"] == "upper" else "below"
+    return f"{h['column']}: {h['rule']} ({shown_value(h['value'])} is {side} {shown_value(h['limit'])})"
+
+
 def cell_sentence(c: CellFinding) -> str:
     """One cell finding in words: "amount 3,855 where this record's other values predict about 38.55
     (residual 41.2): a factor of 100 too high: a misplaced decimal point?"."""
@@ -192,9 +201,7 @@ def explanation_text(e: Explanation) -> str:
     if e.column_hits:
         lines += ["", "Column hits"]
         for h in e.column_hits:
-            side = "above" if h["side"] == "upper" else "below"
-            lines.append(f"  {printable(h['column'])}: {h['rule']} ({shown_value(h['value'])} is {side} "
-                         f"{shown_value(h['limit'])})")
+            lines.append("  " + printable(column_hit_text(h)))
     peers = e.peers.records
     if peers:
         names = [t.feature for t in e.top_features[:4]] or list(peers[0].values)[:4]

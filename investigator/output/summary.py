@@ -37,7 +37,8 @@ def summary_text(result: ScanResult, top: int = 10) -> str:
         tag = {"log": " (log)", "rarity": " (category)"}.get(spec.transform, "")
         feats.append(printable(spec.name) + tag)
     lines.append(f"Features ({len(feats)}): " + ", ".join(feats))
-    left = [f"{printable(c.name)} ({c.role})" for c in result.columns if not c.is_feature]
+    used = {s for c in result.columns if c.source for s in c.source.split(", ")}  # dates used by their parts
+    left = [f"{printable(c.name)} ({c.role})" for c in result.columns if not c.is_feature and c.name not in used]
     if left:
         lines.append("Left out: " + ", ".join(left))
     lines += _how_scored(run, list(result.method_results), "Notices:")
@@ -84,7 +85,9 @@ def summary_text(result: ScanResult, top: int = 10) -> str:
         m = sum(1 for r in results.values() if r.method.votes)  # hotelling does not vote
         for i in order:
             strongest = sorted((k for k, r in results.items() if r.flags[i]), key=lambda k: -results[k].z[i])
-            cols = sorted({printable(h["column"]) for h in result.column_hits[i]})
+            # A calendar hit names its timing ("posted_at weekend"); the rules of numbers, the column.
+            cols = sorted({printable(h["column"] + (f" {h['rule']}" if "text" in h else ""))
+                           for h in result.column_hits[i]})
             detail = f"{result.flag_reason[i]} | " + ", ".join(strongest) + (f" | {', '.join(cols)}" if cols else "")
             stable = ""
             if result.stability is not None:

@@ -42,6 +42,7 @@ from investigator.pipeline.scoring import (
     reference_combined_fence,
 )
 from investigator.pipeline.stability import flag_stability
+from investigator.prepare.calendar import calendar_columns
 from investigator.prepare.features import FeaturePreparer, Features, beyond_bound_notices, column_numbers
 from investigator.prepare.roles import assign_roles
 from investigator.progress import Progress, silent
@@ -62,19 +63,21 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     progress("preparing features", 0.02)
     fit_table = reference if reference is not None else table
     columns = assign_roles(fit_table, options.features, options.exclude)
+    calendar, columns = calendar_columns(fit_table, columns, options)
+    notices += calendar.notices_
     log = options.log if isinstance(options.log, str) else list(options.log)
     ref_info: dict = {}  # reference mode: the reference's columns, phase I cleaning and unseen levels
     if reference is not None:
         notices += [f"reference: {n}" for n in reference.notices]
         ref_info = check_columns(table, reference, columns, notices)
-        preparer = FeaturePreparer(log=log).fit(reference, columns)
+        preparer = FeaturePreparer(log=log, calendar=calendar).fit(reference, columns)
         reference, ref_info["phase_i"] = clean_reference(reference, preparer, options, notices)
-        preparer = FeaturePreparer(log=log).fit(reference, columns)
+        preparer = FeaturePreparer(log=log, calendar=calendar).fit(reference, columns)
         ref_features = preparer.transform(reference)
         features = preparer.transform(table)
         ref_info["unseen_levels"] = _unseen_levels(preparer, table, notices)
     else:
-        preparer = FeaturePreparer(log=log).fit(table, columns)
+        preparer = FeaturePreparer(log=log, calendar=calendar).fit(table, columns)
         features = ref_features = preparer.transform(table)
     notices += preparer.notices_
     if reference is not None:
@@ -126,10 +129,11 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     stability = None
     if options.resamples:
         stability = flag_stability(features, options, progress, X_ref=X_ref, kinds=kinds)
-    rules = ColumnRules().fit(ref_features)
+    rules = ColumnRules().fit(ref_features, skip=calendar.judged_by_own_rule())
     for name in rules.skipped_:
         notices.append(f"column '{name}': MAD is zero, so the modified z-score rule is skipped there")
-    hits = rules.hits(features)
+    hits = [numeric + timing for numeric, timing in zip(rules.hits(features), preparer.calendar_hits(table),
+                                                        strict=True)]
     extras = _extras(table, options, notices)
     n_ordinary = n if reference is not None else int((~combination.flagged).sum())
     run = RunRecord(
@@ -144,6 +148,7 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
         neighbors=NeighborRecord(**search.describe()) if search is not None else None,
         method_fits={k: MethodFit(**r.method.describe()) for k, r in results.items()},
         column_rules=rules.describe(),
+        calendar=calendar.describe() if calendar.columns_ or calendar.duration_pairs_ else None,
         rule=combination.rule,
         flagged=int(combination.flagged.sum()),
         notices=tuple(notices),
@@ -208,7 +213,7 @@ def _unseen_levels(preparer: FeaturePreparer, table: Table, notices: list[str]) 
     for spec in preparer.specs_:
         if spec.role != "categorical":
             continue
-        levels = table.frame[spec.name].astype("string").fillna("(missing)")
+        levels = preparer.column_values(table, spec.name).astype("string").fillna("(missing)")
         unseen = levels[~levels.isin(list(spec.levels))]
         if len(unseen):
             counts = unseen.value_counts()

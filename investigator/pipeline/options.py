@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
+import re
 from dataclasses import asdict, dataclass
 
 from investigator.errors import InputError
 from investigator.io.tables import check_reading_options
 from investigator.methods import METHOD_KEYS
+from investigator.prepare.calendar import DEFAULT_HOURS, parse_durations, parse_hours
 
 MAP_METHODS = ("none", "auto", "umap", "pca")
 # The seed reaches NumPy's legacy RandomState (scikit-learn's and UMAP's random_state), whose seeds are the
@@ -51,6 +53,11 @@ class ScanOptions:
     keep_reference_outliers: bool = False
     map: str = "none"
     cells: str = "flagged"  # which records get cell findings: "flagged" or "all"
+    dates: str | tuple[str, ...] | None = None  # date columns for calendar parts: None = detected, "none" = off
+    hours: tuple[int, int] = DEFAULT_HOURS  # working hours, from the first up to the second
+    holidays: str | None = None  # public holidays of this country (CC or CC-SUBDIV)
+    durations: tuple[tuple[str, str], ...] = ()  # (start, end) date columns: end - start in days
+    dayfirst: bool | None = None  # day/month dates whose order the values cannot tell
 
     def __post_init__(self) -> None:
         set_ = object.__setattr__
@@ -121,6 +128,21 @@ class ScanOptions:
             set_(self, "header_row", int(self.header_row))
         check_reading_options(self.decimal, self.header_row)
 
+        if isinstance(self.dates, str) and self.dates.strip().lower() == "none":
+            set_(self, "dates", "none")
+        else:
+            set_(self, "dates", _names(self.dates, "dates"))
+        set_(self, "hours", parse_hours(self.hours))
+        if self.holidays is not None:
+            code = str(self.holidays).strip()
+            if not re.fullmatch(r"[A-Za-z]{2,3}(-[A-Za-z0-9]{1,4})?", code):
+                raise InputError(f"`holidays` must be a country code such as US, or a country and subdivision such "
+                                 f"as DE-BY, not '{self.holidays}'", parameters=("holidays",))
+            set_(self, "holidays", code.upper())
+        set_(self, "durations", parse_durations(self.durations))
+        if self.dayfirst is not None:
+            set_(self, "dayfirst", bool(self.dayfirst))
+
         if self.cells not in CELL_SCOPES:
             raise InputError(f"`cells` must be one of {', '.join(CELL_SCOPES)}, not '{self.cells}'",
                              parameters=("cells",))
@@ -131,5 +153,5 @@ class ScanOptions:
         out = asdict(self)
         for k, v in out.items():
             if isinstance(v, tuple):
-                out[k] = list(v)
+                out[k] = [list(x) if isinstance(x, tuple) else x for x in v]
         return out

@@ -24,8 +24,11 @@ def check_columns(table: Table, reference: Table, columns: list[ColumnInfo], not
     """Refuse new records that lack a reference feature or hold text where the reference has numbers."""
     new_cols = set(table.frame.columns)
     ref_cols = list(reference.frame.columns)
-    features = [c for c in columns if c.is_feature]
-    missing = [c.name for c in features if c.name not in new_cols]
+    # A calendar part or duration is computed from its date columns: those must be there.
+    features = [c for c in columns if c.is_feature and not c.source]
+    needed = [c.name for c in features] + [s for c in columns if c.is_feature and c.source
+                                           for s in c.source.split(", ")]
+    missing = list(dict.fromkeys(name for name in needed if name not in new_cols))
     if missing:
         raise InputError(
             f"{table.name}: lacks column '{missing[0]}', a feature of the reference {reference.name}"

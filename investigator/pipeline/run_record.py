@@ -194,6 +194,7 @@ class RunRecord:
     structure: dict | None = None  # the group rules' parameters, every group and large cluster, notices
     map: MapRecord | None = None
     review_store: str | None = None
+    calendar: dict | None = None  # the date columns' calendar parts, durations, working hours, holidays
 
     def __post_init__(self) -> None:
         # Copies: the scan's own objects could otherwise change the record after the fact.
@@ -222,6 +223,8 @@ class RunRecord:
             "flagged": self.flagged,
             "notices": list(self.notices),
         }
+        if self.calendar is not None:
+            out["calendar"] = self.calendar
         if self.kinds is not None:
             out["kinds"] = self.kinds.to_dict()
         if self.reference is not None:

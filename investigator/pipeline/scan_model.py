@@ -131,11 +131,15 @@ class ScanModel:
             out_of_spec = spec_hits(table, self.limits)
         # The block's run record is the fit's: everything that decided its scores was fitted there.
         result = ScanResult(table, self.options, self.columns, features, self.preparer, self.search, graph,
-                            results, combination, self.rules, self.rules.hits(features), self.run,
+                            results, combination, self.rules, self._hits(table, features), self.run,
                             out_of_spec=out_of_spec, kinds=kinds)
         result.explainer = Explainer(result, pool=self.pool, typical=self.typical)  # peers among the fit's
         result.cells = CellFinder(result, fitted=self.cells)  # cells judged by the fit's statistics
         return result
+
+    def _hits(self, table: Table, features) -> list[list[dict]]:
+        return [numeric + timing for numeric, timing in zip(self.rules.hits(features),
+                                                            self.preparer.calendar_hits(table), strict=True)]
 
     def score_frame(self, frame: pd.DataFrame, first_row: int) -> pd.DataFrame:
         """One output row per record (the columns of :meth:`ScanResult.to_frame`; ``rank`` is left out, since

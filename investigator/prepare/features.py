@@ -28,6 +28,7 @@ import pandas as pd
 from investigator.errors import InputError
 from investigator.io.tables import Table
 from investigator.prepare import magnitudes
+from investigator.prepare.calendar import Calendar, CalendarView
 from investigator.prepare.roles import CATEGORICAL, DATE, NUMERIC, ColumnInfo, parse_numeric
 
 MISSING_LEVEL = "(missing)"
@@ -194,14 +195,29 @@ class FeaturePreparer:
     log : "auto", "none" or a list of column names to log-transform.
     """
 
-    def __init__(self, log: str | list[str] = "auto") -> None:
+    def __init__(self, log: str | list[str] = "auto", calendar: Calendar | None = None) -> None:
         self.log = log
+        self.calendar = calendar  # the calendar parts of date columns, when the scan has any
+
+    def column_values(self, table: Table, name: str, view: CalendarView | None = None) -> pd.Series:
+        """The values of feature column ``name`` for the records of ``table``: the column as read, or a
+        calendar part or duration computed from its date columns (``view``: the table as the calendar read
+        it, to parse its dates once for several parts)."""
+        if self.calendar is not None and name in self.calendar.derived_names():
+            return (view if view is not None else self.calendar.read(table)).values(name)
+        return table.frame[name]
+
+    def _view(self, table: Table) -> CalendarView | None:
+        return self.calendar.read(table) if self.calendar is not None else None
+
+    def calendar_hits(self, table: Table) -> list[list[dict]]:
+        """The calendar column hits of the records of ``table`` (none without date columns)."""
+        return self.calendar.hits(table) if self.calendar is not None else [[] for _ in range(table.n_rows)]
 
     def fit(self, table: Table, columns: list[ColumnInfo]) -> FeaturePreparer:
         self.notices_: list[str] = []
         self.specs_: list[FeatureSpec] = []
         self.n_fit_ = table.n_rows
-        frame = table.frame
         chosen = [c for c in columns if c.is_feature]
         log_cols = self.log if isinstance(self.log, list) else []
         names = {c.name: c for c in chosen}
@@ -212,12 +228,14 @@ class FeaturePreparer:
                     "numeric feature columns only", parameters=("log",)
                 )
         seen: dict[int, str] = {}
+        view = self._view(table)
         for info in chosen:
-            spec = self._fit_column(table, info, log_cols)
+            spec = self._fit_column(table, info, log_cols, view)
             if spec is None:
                 continue
-            digest = int(pd.util.hash_pandas_object(frame[info.name], index=False).sum())
-            if digest in seen and frame[info.name].equals(frame[seen[digest]]):
+            column = self.column_values(table, info.name, view)
+            digest = int(pd.util.hash_pandas_object(column, index=False).sum())
+            if digest in seen and column.equals(self.column_values(table, seen[digest], view)):
                 self.notices_.append(
                     f"column '{info.name}' repeats column '{seen[digest]}' value for value; it is dropped"
                 )
@@ -231,8 +249,9 @@ class FeaturePreparer:
             )
         return self
 
-    def _fit_column(self, table: Table, info: ColumnInfo, log_cols: list[str]) -> FeatureSpec | None:
-        values = table.frame[info.name]
+    def _fit_column(self, table: Table, info: ColumnInfo, log_cols: list[str],
+                    view: CalendarView | None) -> FeatureSpec | None:
+        values = self.column_values(table, info.name, view)
         if info.role == CATEGORICAL:
             levels = values.astype("string").fillna(MISSING_LEVEL)
             share = levels.value_counts(normalize=True, sort=False)
@@ -334,8 +353,9 @@ class FeaturePreparer:
         imputed = np.zeros((n, p), dtype=bool)
         raw = np.full((n, p), np.nan)
         level_arrays: dict[int, np.ndarray] = {}
+        view = self._view(table)
         for j, spec in enumerate(self.specs_):
-            values = frame[spec.name]
+            values = self.column_values(table, spec.name, view)
             if spec.role == CATEGORICAL:
                 levels = values.astype("string").fillna(MISSING_LEVEL)
                 level_arrays[j] = levels.to_numpy(dtype=object)

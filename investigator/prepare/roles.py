@@ -43,13 +43,17 @@ class ColumnInfo:
     missing: int
     distinct: int
     reason: str
+    source: str = ""  # a calendar part or duration: the date column(s) it comes from
 
     @property
     def is_feature(self) -> bool:
         return self.role in FEATURE_ROLES
 
     def as_dict(self) -> dict:
-        return asdict(self)
+        out = asdict(self)
+        if not self.source:
+            out.pop("source")
+        return out
 
 
 def parse_numeric(values: pd.Series) -> pd.Series:
@@ -74,8 +78,11 @@ def infer_column(name: str, values: pd.Series) -> ColumnInfo:
     info = ColumnInfo(name, NUMERIC, dtype, missing, distinct, "")
     if pd.api.types.is_bool_dtype(values):
         info.role, info.reason = CATEGORICAL, "true/false values"
-    elif pd.api.types.is_datetime64_any_dtype(values) or pd.api.types.is_timedelta64_dtype(values):
-        info.role, info.reason = DATE, "dates are left out by default"
+    elif pd.api.types.is_datetime64_any_dtype(values):
+        info.role, info.reason = DATE, "dates"
+    elif pd.api.types.is_timedelta64_dtype(values):
+        info.role, info.reason = TEXT, "time spans (left out; a duration between two date columns is a feature "\
+            "with --durations)"
     elif pd.api.types.is_numeric_dtype(values):
         _numeric_role(info, present)
     else:
@@ -112,7 +119,7 @@ def _text_role(info: ColumnInfo, present: pd.Series) -> None:
     if sample.str.match(_DATE_LIKE).mean() >= PARSE_SHARE:
         parsed = pd.to_datetime(sample, errors="coerce", format="mixed")
         if parsed.notna().mean() >= PARSE_SHARE:
-            info.role, info.reason = DATE, "dates are left out by default"
+            info.role, info.reason = DATE, "dates"
             return
     m = len(present)
     words = sample.str.split().str.len().median()
@@ -170,7 +177,7 @@ def _force_feature(info: ColumnInfo, table: Table) -> None:
         return
     values = table.frame[info.name]
     if info.role == DATE:
-        info.role, info.reason = NUMERIC, "date used as a number (days since 1970); named in --features"
+        info.reason = "dates (named in --features)"
     elif parse_numeric(values.dropna()).notna().mean() >= PARSE_SHARE:
         info.role, info.reason = NUMERIC, "numbers; named in --features"
     else:

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 from investigator.explain.explanation import Explanation, NearestOrdinary
 from investigator.explain.view import top_features_text
-from investigator.output.explanation import cell_sentence, format_value
+from investigator.output.explanation import cell_sentence, column_hit_text, format_value
 
 
 @dataclass
@@ -48,9 +48,8 @@ def build_cases(result, review, limit: int | None = None) -> list[Case]:
 
 
 def column_hits_text(hits: list[dict]) -> str:
-    """E.g. "amount: boxplot_fence (2,403 above 180.5)"."""
-    return "; ".join(f"{h['column']}: {h['rule']} ({format_value(h['value'])} "
-                     f"{'above' if h['side'] == 'upper' else 'below'} {format_value(h['limit'])})" for h in hits)
+    """E.g. "amount: boxplot_fence (2,403 is above 180.5)"."""
+    return "; ".join(column_hit_text(h) for h in hits)
 
 
 def nearest_text(nearest: NearestOrdinary | None) -> str:

@@ -249,7 +249,8 @@ def _scanned(result) -> Safe:
         [[f.name, f.role, f.transform, f.decision, f.missing, format_value(f.fill), format_value(f.center),
           f"{format_value(f.scale)} ({f.scale_method})"]
          for f in run.features], numeric=(4, 5, 6)))
-    left = [c for c in run.columns if c.name not in set(result.features.names)]
+    used = {s for c in run.columns if c.source for s in c.source.split(", ")}  # dates used by their parts
+    left = [c for c in run.columns if c.name not in set(result.features.names) and c.name not in used]
     if left:
         parts.append(tag("h3", "Columns left out"))
         parts.append(table(["column", "role", "why"], [[c.name, c.role, c.reason] for c in left]))

@@ -88,6 +88,24 @@ def test_dask_equals_in_memory_with_a_key_categories_gaps_and_contamination(tmp_
     assert int(memory.flagged.sum()) == 60
 
 
+def test_dask_equals_in_memory_with_a_date_column(tmp_path, client):
+    # Calendar parts are computed per partition from the fitted calendar: the same features, flags and
+    # calendar column hits (a Sunday and a late posting planted) as the in-memory scan.
+    frame, _ = planted_outliers(2_000, 4, seed=14)
+    rng = np.random.default_rng(14)
+    days = pd.bdate_range("2025-01-02", "2025-12-30")
+    when = pd.to_datetime(rng.choice(days, 2_000)) + pd.to_timedelta(rng.integers(480, 1080, 2_000), unit="m")
+    frame["posted_at"] = when.strftime("%Y-%m-%d %H:%M")
+    frame.loc[[7, 1500], "posted_at"] = ["2025-03-09 10:00", "2025-05-20 23:10"]
+    data = _write_parts(tmp_path / "ds", frame, 4)
+    scan_dataset(data, ScanOptions(), out=tmp_path / "out", client=client)
+    memory = investigator.scan(data)
+    expected, got = memory.to_frame(), _read(tmp_path / "out")
+    _assert_same_records(expected, got, memory.method_results)
+    assert list(got["column_hits"]) == list(expected["column_hits"])
+    assert "posted_at: weekend" in got["column_hits"][7] and "posted_at: outside hours" in got["column_hits"][1500]
+
+
 def test_with_a_smaller_fit_sample_scores_equal_the_same_model_applied_in_memory(tmp_path, client):
     frame, _ = planted_outliers(30_000, 5, seed=14)
     data = _write_parts(tmp_path / "ds", frame, 6)

@@ -13,7 +13,13 @@ from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
 from investigator.explain.explanation import Explanation
-from investigator.output.explanation import cell_sentence, format_value, nearest_sentence, typical_text
+from investigator.output.explanation import (
+    cell_sentence,
+    column_hit_text,
+    format_value,
+    nearest_sentence,
+    typical_text,
+)
 from investigator.tui.models.record import RecordView
 from investigator.tui.plain import plain
 from investigator.tui.widgets.contribution_bars import ContributionBars
@@ -131,8 +137,7 @@ class RecordScreen(Screen):
         self.query_one("#record-values", Static).update(_values(view))
         hits = e.column_hits
         self.query_one("#record-hits", Static).update(plain(
-            "\n".join(f"{h['column']}: {h['rule']} ({format_value(h['value'])} is "
-                      f"{'above' if h['side'] == 'upper' else 'below'} {format_value(h['limit'])})" for h in hits)
+            "\n".join(column_hit_text(h) for h in hits)
             or "none: no single column is out of the ordinary by the per-column rules"))
         self.query_one("#record-peers", Static).update(_peers(view))
 
