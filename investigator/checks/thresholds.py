@@ -7,16 +7,21 @@ auditing; the screen and its band are ours). For a threshold T and a band width 
     below:  T - w <= x < T          above:  T <= x < T + w
 
 An amount equal to T counts above (an approval "from T on"). Values are compared as they are, signed: a refund of
--4,900 is not just below 5,000. The default width is 10% of |T| (our choice, not a published constant); a
-threshold of 0 needs a width.
+-4,900 is not just below 5,000. The default width is 5% of |T| (our choice, not a published constant); a
+threshold of 0 needs a width. Why 5% and not 10%: amounts are mostly skewed to the right, so their density
+falls across a threshold, and a wider band lets that slope pass for an excess. Measured on 300 invented
+columns of 2,000 clean lognormal claims each (median 800, 2,000 or 5,000, sigma 1) with T = 5,000, the share
+of columns with p < 0.05 was 5.3%, 5.0% and 5.3% with the 5% band, and 18.7%, 23.3% and 15.0% with a 10% band;
+30 claims planted at 4,900-4,999.99 among them were found at p < 0.001 in 99.5% of 200 columns with the 5% band
+(96% with 10%).
 
 Test: if the amounts have a smooth density that is about flat across the two bands, a record in either band is
 as likely to fall below as above, so the count below, of the n records in both bands, is binomial(n, 1/2). The
 excess below is tested with an exact one-sided binomial test (scipy.stats.binomtest, ``p=0.5``,
-``alternative="greater"``). Most amount columns are skewed to the right, so their density falls across a
-threshold and the band below holds a little more than half even without an excess; the next band out on each
-side (T - 2w .. T - w and T + w .. T + 2w) is counted too, so a reader can see the slope (a narrower band
-lessens it). The records in the band below are listed.
+``alternative="greater"``). Where the density falls steeply across the threshold the band below holds more
+than half even without an excess; the next band out on each side (T - 2w .. T - w and T + w .. T + 2w) is
+counted too, so a reader can see the slope (a narrower band lessens it). The records in the band below are
+listed.
 """
 
 from __future__ import annotations
@@ -30,7 +35,7 @@ from scipy import stats
 from investigator.checks.amounts import as_floats, check_keys, listed_records, num
 from investigator.errors import InputError
 
-DEFAULT_WIDTH = 0.10  # share of |T|; our choice
+DEFAULT_WIDTH = 0.05  # share of |T|; our choice (module notes: why not 10%)
 # Our choice: with fewer records in the two bands only a large excess can show (at n = 10, all 10 below gives
 # p = 0.001, 8 of 10 p = 0.055).
 MIN_IN_BANDS = 10
@@ -43,7 +48,7 @@ CAUTION = (
 
 
 def band_width(threshold: float, width: float | None = None) -> float:
-    """The band width: ``width`` when given (positive), else 10% of |threshold|."""
+    """The band width: ``width`` when given (positive), else 5% of |threshold|."""
     if width is None:
         if threshold == 0:
             raise InputError("a threshold of 0 needs a band width, e.g. threshold=amount=0:100",
@@ -87,7 +92,7 @@ class ThresholdResult:
             "screen": "just below a threshold",
             "threshold": num(self.threshold),
             "width": num(self.width),
-            "width_from": "given" if self.width_given else "10% of the threshold",
+            "width_from": "given" if self.width_given else f"{DEFAULT_WIDTH:.0%} of the threshold",
             "band_below": [num(self.threshold - self.width), num(self.threshold)],
             "band_above": [num(self.threshold), num(self.threshold + self.width)],
             "values": self.n_values,
@@ -115,7 +120,7 @@ def threshold_test(values, threshold: float, width: float | None = None, *, name
     ----------
     values : array-like of amounts (text that does not parse counts as missing).
     threshold : the approval threshold T (finite).
-    width : the band width w (positive); default 10% of |T|.
+    width : the band width w (positive); default 5% of |T|.
     name, keys, rows : as for :func:`investigator.checks.round_amounts.round_amounts`.
 
     Returns a :class:`ThresholdResult`; no record in either band gives a warning and no p-value.
@@ -202,7 +207,7 @@ def _entry(item, entry: str) -> tuple[str, float, float | None]:
         raise InputError(f"`threshold`: the band width in '{entry}' must be positive; e.g. "
                          "threshold=amount=5000:500", parameters=("threshold",))
     if width is None and value == 0:
-        raise InputError(f"`threshold`: '{entry}' needs a band width (10% of 0 is 0); e.g. "
+        raise InputError(f"`threshold`: '{entry}' needs a band width (5% of 0 is 0); e.g. "
                          f"threshold={col}=0:100", parameters=("threshold",))
     return (col, value, width)
 

@@ -54,7 +54,7 @@ def add_scan_options(p: argparse.ArgumentParser) -> None:
                    "Nigrini's last-two-digits test; the round-amount screen runs on them too")
     p.add_argument("--threshold", metavar="COL=VALUE[:WIDTH]", action="append",
                    help="approval threshold: records in the band just below VALUE against the band above "
-                   "(width WIDTH, default 10%% of VALUE), binomial test; repeat it or separate by commas; the "
+                   "(width WIDTH, default 5%% of VALUE), binomial test; repeat it or separate by commas; the "
                    "round-amount screen runs on the column too")
     p.add_argument("--round", metavar="COL", help="round-amount screen (amounts ending in 00 or 000 against "
                    "what the column's distribution implies) on these columns, besides those of --digits and "
