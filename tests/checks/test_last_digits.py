@@ -60,7 +60,7 @@ def test_planted_endings_are_found_and_clean_amounts_are_not():
 
 def test_clean_amounts_are_found_at_about_the_nominal_rate():
     # Over 100 clean columns the test rejects at 5% in about 5 (measured: 9 of 100 here, 6.8% over 500
-    # columns); a binomial(100, 0.05) exceeds 11 with probability 0.3% (scipy.stats.binom.sf(11, 100, 0.05)).
+    # columns); a binomial(100, 0.05) exceeds 11 with probability 0.4% (scipy.stats.binom.sf(11, 100, 0.05)).
     p = np.array([last_two_digits(claims(s)).p_value for s in range(100)])
     assert np.sum(p < 0.05) <= 11
 

@@ -86,7 +86,7 @@ def test_planted_round_claims_are_found_and_clean_claims_are_not():
 def test_clean_claims_are_flagged_at_about_the_nominal_rate():
     # The expected share is our construction; over 100 clean columns of 2,000 claims the test should reject at
     # 5% in about 5% of them (measured: 3% at 00, 4% at 000). A binomial(100, 0.05) exceeds 11 with
-    # probability 0.3% (scipy.stats.binom.sf(11, 100, 0.05)), so more than 11 means the expectation is off.
+    # probability 0.4% (scipy.stats.binom.sf(11, 100, 0.05)), so more than 11 means the expectation is off.
     p00 = np.array([round_amounts(claims(s)).level(100).p_value for s in range(100)])
     p000 = np.array([round_amounts(claims(s)).level(1000).p_value for s in range(100)])
     assert np.sum(p00 < 0.05) <= 11 and np.sum(p000 < 0.05) <= 11

@@ -57,7 +57,7 @@ def test_planted_claims_below_an_approval_limit_are_found():
 def test_clean_claims_are_found_at_about_the_nominal_rate():
     # The test assumes a flat density across the bands; on right-skewed claims that holds for a narrow band.
     # Over 100 clean columns the 5% band rejects at 5% in about 5 (measured 5 of 100); a binomial(100, 0.05)
-    # exceeds 11 with probability 0.3% (scipy.stats.binom.sf(11, 100, 0.05)).
+    # exceeds 11 with probability 0.4% (scipy.stats.binom.sf(11, 100, 0.05)).
     p = np.array([threshold_test(claims(s), 5000).p_value for s in range(100)])
     assert np.sum(p < 0.05) <= 11
 
