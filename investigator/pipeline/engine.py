@@ -240,9 +240,12 @@ def _amount_columns(table: Table, options: ScanOptions) -> dict[str, np.ndarray]
         if col not in table.frame.columns:
             raise InputError(f"{table.name}: `{parameter}` names column '{col}', which is not in the file; "
                              f"columns are: {name_list(table.frame.columns)}", parameters=(parameter,))
-        numbers[col] = column_numbers(table.frame[col])
-        if not np.isfinite(numbers[col]).any():
-            raise InputError(f"{table.name}: `{parameter}` names column '{col}', which holds no numbers; name a "
+        numbers[col] = values = column_numbers(table.frame[col])
+        # Benford's law needs a nonzero amount (it reads leading digits); the other screens any number.
+        usable = np.isfinite(values) & ((values != 0) if col in (options.digits or ()) else True)
+        if not usable.any():
+            what = "no nonzero numbers" if np.isfinite(values).any() else "no numbers"
+            raise InputError(f"{table.name}: `{parameter}` names column '{col}', which holds {what}; name a "
                              "column of amounts", parameters=(parameter,))
     return numbers
 
@@ -292,9 +295,9 @@ def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanRes
 
     Options are those of ``investigator scan``: ``id``, ``features``, ``exclude``, ``methods``, ``log``,
     ``cutoff``, ``contamination``, ``seed``, ``sheet``, ``decimal``, ``header_row``, ``exact``, ``resamples``,
-    ``digits``, ``duplicates``, ``limits``. When a review store exists (``store``, or ``<data>.investigation.sqlite``
-    beside a data file), each record also gets its current verdict and note. Raises :class:`InputError` on
-    bad input.
+    ``digits``, ``threshold``, ``round``, ``duplicates``, ``limits``. When a review store exists (``store``, or
+    ``<data>.investigation.sqlite`` beside a data file), each record also gets its current verdict and note.
+    Raises :class:`InputError` on bad input.
     """
     opts = options.pop("options", None)
     if opts is None:

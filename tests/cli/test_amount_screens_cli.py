@@ -140,3 +140,14 @@ def test_the_dask_path_refuses_the_amount_screens(cli, claims_file, tmp_path):
                        "amount=5000")
     assert code == 2
     assert_one_line_error(err, "--threshold is not available with --engine dask")
+
+
+def test_columns_the_screens_cannot_read_stop_the_scan_before_it_starts():
+    frame = expense_claims()
+    frame["refund"] = 0.0
+    with pytest.raises(investigator.InputError, match="`digits` names column 'refund', which holds no nonzero "):
+        investigator.scan(frame, id="claim", digits="refund")
+    # A column of zeros is a column of numbers for the other screens: their results say what is missing.
+    frame = frame.iloc[:200]
+    result = investigator.scan(frame, id="claim", round="refund", methods="isolation")
+    assert "only 0 whole-unit amounts" in result.run.screens["round_amounts"]["refund"]["warnings"][0]
