@@ -29,6 +29,7 @@ import numpy as np
 from scipy import stats
 
 from investigator.checks.amounts import as_floats, check_keys, listed_records, num, read_cents
+from investigator.errors import InputError
 
 MIN_AMOUNT = 10            # Nigrini (2012), from memory: the test is for amounts of 10 or more
 MIN_VALUES = 500           # an expected count of 5 in each of the 100 cells (chi-square rule of thumb, common practice)
@@ -104,7 +105,7 @@ def last_two_digits(values, *, name: str | None = None, keys: Sequence | None = 
     Returns a :class:`LastDigitsResult`; a column with no amount of 10 or more gives a warning and no test.
     """
     if top < 1:
-        raise ValueError(f"top must be at least 1, not {top}")
+        raise InputError(f"top must be at least 1, not {top}")
     x = as_floats(values)
     n_values = int(x.shape[0])
     check_keys(keys, rows, n_values)
