@@ -49,7 +49,16 @@ def add_scan_options(p: argparse.ArgumentParser) -> None:
                    "other values predict): flagged records (default) or all")
     p.add_argument("--limits", metavar="FILE",
                    help="CSV of specification limits (column, lower, upper): out-of-spec hits per record")
-    p.add_argument("--digits", metavar="COL", help="Benford's law first-digit tests on these amount columns")
+    p.add_argument("--digits", metavar="COL",
+                   help="digit tests on these amount columns: Benford's law (first digit, first two digits) and "
+                   "Nigrini's last-two-digits test; the round-amount screen runs on them too")
+    p.add_argument("--threshold", metavar="COL=VALUE[:WIDTH]", action="append",
+                   help="approval threshold: records in the band just below VALUE against the band above "
+                   "(width WIDTH, default 5%% of VALUE), binomial test; repeat it or separate by commas; the "
+                   "round-amount screen runs on the column too")
+    p.add_argument("--round", metavar="COL", help="round-amount screen (amounts ending in 00 or 000 against "
+                   "what the column's distribution implies) on these columns, besides those of --digits and "
+                   "--threshold")
     p.add_argument("--duplicates", metavar="A,B",
                    help="report groups of records with the same values on these columns")
     p.add_argument("--dates", metavar="A,B|none",
@@ -105,6 +114,7 @@ def scan_parameters(args: argparse.Namespace) -> dict:
         "dates": getattr(args, "dates", None), "hours": getattr(args, "hours", None),
         "holidays": getattr(args, "holidays", None), "durations": getattr(args, "durations", None),
         "dayfirst": getattr(args, "dayfirst", None),
+        "round": getattr(args, "round", None), "threshold": getattr(args, "threshold", None),
         "keep_reference_outliers": getattr(args, "keep_reference_outliers", False),
     }
     return {k: v for k, v in given.items() if v is not None}

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
+from investigator.output.screens import BENFORD_TESTS, amount_lines, benford_text, cautions, records_text
 from investigator.printable import printable
 
 if TYPE_CHECKING:  # this layer reads the result it is given; it never imports the pipeline
@@ -57,13 +58,18 @@ def summary_text(result: ScanResult, top: int = 10) -> str:
     screens = run.screens or {}  # each check's own report (checks/)
     benford = screens.get("benford", {})
     for col, tests in benford.items():
-        for label, key in (("first digit", "first_digit"), ("first two digits", "first_two_digits")):
+        for label, key in BENFORD_TESTS:
             t = tests[key]
             warn = ("; " + "; ".join(map(printable, t["warnings"]))) if t["warnings"] else ""
-            lines.append(f"Benford {label}, {printable(col)}: MAD {t['mad']:.4f} ({t['conformity']}), {t['used']:,} "
-                         f"values; most over-represented: {', '.join(map(str, t['excess_digits']))}{warn}")
+            lines.append(printable(benford_text(col, label, t)) + warn)
     if benford:
         lines.append("  " + next(iter(benford.values()))["first_digit"]["caution"])
+    amounts = amount_lines(screens)  # round amounts, thresholds, last two digits
+    for line in amounts:
+        lines.append(printable(line.with_warnings))
+        if line.records and line.kind != "last_two_digits":
+            lines.append("  listed: " + printable(records_text(line)) + f" (run.screens.{line.kind})")
+    lines += ["  " + text for text in cautions(amounts)]
     dup = screens.get("duplicates")
     if dup:
         lines.append(f"Same values on {', '.join(map(printable, dup['columns']))}: {dup['n_groups']:,} groups, "

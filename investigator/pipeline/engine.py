@@ -14,9 +14,12 @@ import sklearn
 
 from investigator.checks.benford import benford_test
 from investigator.checks.duplicates import duplicates_on, exact_duplicates
+from investigator.checks.last_digits import last_two_digits
 from investigator.checks.limits import load_limits, spec_hits
+from investigator.checks.round_amounts import round_amounts
+from investigator.checks.thresholds import threshold_test
 from investigator.errors import InputError
-from investigator.io.tables import Table, load_table
+from investigator.io.tables import Table, load_table, name_list
 from investigator.methods.column_rules import ColumnRules
 from investigator.methods.hotelling import Hotelling
 from investigator.pipeline.approximations import approximations
@@ -61,6 +64,7 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     started = datetime.now(UTC).replace(microsecond=0).isoformat()
     notices = list(table.notices)
     progress("preparing features", 0.02)
+    amount_numbers = _amount_columns(table, options)  # a wrong amount column stops the scan before it starts
     fit_table = reference if reference is not None else table
     columns = assign_roles(fit_table, options.features, options.exclude)
     calendar, columns = calendar_columns(fit_table, columns, options)
@@ -134,7 +138,7 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
         notices.append(f"column '{name}': MAD is zero, so the modified z-score rule is skipped there")
     hits = [numeric + timing for numeric, timing in zip(rules.hits(features), preparer.calendar_hits(table),
                                                         strict=True)]
-    extras = _extras(table, options, notices)
+    extras = _extras(table, options, notices, amount_numbers)
     n_ordinary = n if reference is not None else int((~combination.flagged).sum())
     run = RunRecord(
         started=started,
@@ -227,20 +231,51 @@ def _unseen_levels(preparer: FeaturePreparer, table: Table, notices: list[str]) 
     return out
 
 
-def _extras(table: Table, options: ScanOptions, notices: list[str]) -> dict:
-    """The trade's own screens (Benford, duplicates) and specification limits, on the scanned records."""
+def _amount_columns(table: Table, options: ScanOptions) -> dict[str, np.ndarray]:
+    """The numbers of the columns the amount screens read (`digits`, `threshold`, `round`, once each in that
+    order), checked before the scan starts: a missing column or one without numbers is an error."""
+    named: dict[str, str] = {}  # column -> the option that names it first, for the message
+    for parameter, columns in (("digits", options.digits or ()),
+                               ("threshold", [t[0] for t in options.threshold or ()]),
+                               ("round", options.round or ())):
+        for col in columns:
+            named.setdefault(col, parameter)
+    numbers = {}
+    for col, parameter in named.items():
+        if col not in table.frame.columns:
+            raise InputError(f"{table.name}: `{parameter}` names column '{col}', which is not in the file; "
+                             f"columns are: {name_list(table.frame.columns)}", parameters=(parameter,))
+        numbers[col] = values = column_numbers(table.frame[col])
+        # Benford's law needs a nonzero amount (it reads leading digits); the other screens any number.
+        usable = np.isfinite(values) & ((values != 0) if col in (options.digits or ()) else True)
+        if not usable.any():
+            what = "no nonzero numbers" if np.isfinite(values).any() else "no numbers"
+            raise InputError(f"{table.name}: `{parameter}` names column '{col}', which holds {what}; name a "
+                             "column of amounts", parameters=(parameter,))
+    return numbers
+
+
+def _extras(table: Table, options: ScanOptions, notices: list[str], numbers: dict[str, np.ndarray]) -> dict:
+    """The trade's own screens (Benford, last two digits, round amounts, thresholds, duplicates) and
+    specification limits, on the scanned records; ``numbers``: the amount columns (:func:`_amount_columns`)."""
     screens: dict = {}
+    keys, rows = table.keys, table.row_numbers
     if options.digits:
         screens["benford"] = {}
+        screens["last_two_digits"] = {}
         for col in options.digits:
-            if col not in table.frame.columns:
-                raise InputError(f"{table.name}: `digits` names column '{col}', which is not in the file",
-                                 parameters=("digits",))
-            values = column_numbers(table.frame[col])
+            values = numbers[col]
             screens["benford"][col] = {
                 "first_digit": benford_test(values, 1, name=col).as_dict(),
                 "first_two_digits": benford_test(values, 2, name=col).as_dict(),
             }
+            screens["last_two_digits"][col] = last_two_digits(values, name=col, keys=keys, rows=rows).as_dict()
+    if numbers:  # every amount column: those of the digit tests, the thresholds and `round`
+        screens["round_amounts"] = {col: round_amounts(values, name=col, keys=keys, rows=rows).as_dict()
+                                    for col, values in numbers.items()}
+    if options.threshold:
+        screens["thresholds"] = [threshold_test(numbers[col], value, width, name=col, keys=keys, rows=rows).as_dict()
+                                 for col, value, width in options.threshold]
     exclude = [table.key_column] if table.key_column else []
     exact = exact_duplicates(table.frame, exclude=exclude)
     if exact.n_groups:
@@ -265,9 +300,9 @@ def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanRes
 
     Options are those of ``investigator scan``: ``id``, ``features``, ``exclude``, ``methods``, ``log``,
     ``cutoff``, ``contamination``, ``seed``, ``sheet``, ``decimal``, ``header_row``, ``exact``, ``resamples``,
-    ``digits``, ``duplicates``, ``limits``. When a review store exists (``store``, or ``<data>.investigation.sqlite``
-    beside a data file), each record also gets its current verdict and note. Raises :class:`InputError` on
-    bad input.
+    ``digits``, ``threshold``, ``round``, ``duplicates``, ``limits``. When a review store exists (``store``, or
+    ``<data>.investigation.sqlite`` beside a data file), each record also gets its current verdict and note.
+    Raises :class:`InputError` on bad input.
     """
     opts = options.pop("options", None)
     if opts is None:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import re
 from dataclasses import asdict, dataclass
 
+from investigator.checks.thresholds import parse_thresholds
 from investigator.errors import InputError
 from investigator.io.tables import check_reading_options
 from investigator.methods import METHOD_KEYS
@@ -49,6 +50,9 @@ class ScanOptions:
     resamples: int = 0
     digits: tuple[str, ...] | None = None
     duplicates: tuple[str, ...] | None = None
+    round: tuple[str, ...] | None = None  # round-amount screen on these columns (besides digits, threshold)
+    # approval thresholds: (column, threshold, band width or None for 10%), from "amount=5000[:500]" texts
+    threshold: tuple[tuple[str, float, float | None], ...] | None = None
     limits: str | None = None
     keep_reference_outliers: bool = False
     map: str = "none"
@@ -64,6 +68,8 @@ class ScanOptions:
         set_(self, "features", _names(self.features, "features"))
         set_(self, "digits", _names(self.digits, "digits"))
         set_(self, "duplicates", _names(self.duplicates, "duplicates"))
+        set_(self, "round", _names(self.round, "round"))
+        set_(self, "threshold", parse_thresholds(self.threshold))
         if self.limits is not None:
             set_(self, "limits", str(self.limits))
         set_(self, "exclude", _names(self.exclude, "exclude"))

@@ -23,6 +23,8 @@ from investigator.output.explanation import (
     pulling_text,
     typical_text,
 )
+from investigator.output.screens import ScreenLine, amount_lines
+from investigator.output.screens import number as screen_number
 from investigator.output.summary import CAUTION
 from investigator.report import plots
 from investigator.report.cases import Case, build_cases, column_hits_text, top_text
@@ -34,6 +36,7 @@ from investigator.structure.profile import FeatureProfile
 TOP_SUMMARY = 10   # cases listed in the summary
 TOP_PLOTTED = 10   # cases in the contributions chart
 MEMBERS_SHOWN = 20  # members listed per group
+SCREEN_RECORDS = 20  # records listed per amount screen (all of them are in the JSON run record)
 
 CAUTIONS = (
     "A flag is a lead for a person to review, not proof of error or fraud. An outlier is a record unlike "
@@ -366,6 +369,10 @@ def _extras(result) -> Safe:
                                   f"{t['used']:,} values; most over-represented: "
                                   f"{', '.join(map(str, t['excess_digits']))}."
                                   + (" " + "; ".join(t["warnings"]) if t.get("warnings") else "")))
+    for line in amount_lines(screens):  # round amounts, thresholds, last two digits
+        parts.append(tag("p", line.with_warnings + "."))
+        if line.records:
+            parts.append(_screen_records(line))
     for key, label in (("exact_duplicates", "Exact copies"), ("duplicates", "Same values")):
         d = screens.get(key)
         if d:
@@ -374,6 +381,18 @@ def _extras(result) -> Safe:
     if not parts:
         return join([])
     return join([tag("h3", "Other screens"), *parts])
+
+
+def _screen_records(line: ScreenLine, shown: int = SCREEN_RECORDS) -> Safe:
+    """The first records an amount screen lists: key, data row, value and the screen's own field."""
+    own = {"round_amounts": ("ending", "ending"), "last_two_digits": ("pair", "last two digits")}.get(line.kind)
+    headers = ["key", "row", "value", *([own[1]] if own else [])]
+    rows = [[r["key"], f"{r['row']:,}", screen_number(r["value"]), *([r[own[0]]] if own else [])]
+            for r in line.records[:shown]]
+    more = len(line.records) - shown
+    note = tag("p", f"... and {more:,} more records (all in the JSON run record, run.screens.{line.kind}).") \
+        if more > 0 else join([])
+    return join([table(headers, rows, numeric=(1, 2)), note])
 
 
 # -- groups and map (present when the result has them) -------------------------------------------------------

@@ -27,6 +27,7 @@ from investigator.tui.screens.group import GroupScreen
 from investigator.tui.screens.help import HelpScreen
 from investigator.tui.screens.map import MapScreen
 from investigator.tui.screens.record import RecordScreen
+from investigator.tui.screens.screening import ScreensScreen
 from investigator.tui.screens.verdict import VerdictScreen
 from investigator.tui.settings import hint_seen
 from investigator.tui.widgets.cases_table import CasesTable
@@ -286,5 +287,5 @@ class InvestigatorApp(App):
             "Everywhere": self.BINDINGS, "Columns": ColumnsScreen.BINDINGS,
             "Cases": CasesTable.BINDINGS + CasesScreen.BINDINGS, "Record": RecordScreen.BINDINGS,
             "Map": MapCanvas.BINDINGS + MapScreen.BINDINGS, "Group": GroupScreen.BINDINGS,
-            "Verdict": VerdictScreen.BINDINGS,
+            "Verdict": VerdictScreen.BINDINGS, "Screens": ScreensScreen.BINDINGS,
         }))

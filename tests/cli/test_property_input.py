@@ -74,7 +74,7 @@ class Shape:
     odd: tuple[tuple[int, int, str], ...]  # odd text in number columns, the same way
     key: bool
     seed: int
-    screens: bool  # also --digits, --duplicates and --limits on the first number column
+    screens: bool  # also --digits, --threshold, --round, --duplicates and --limits on the first number column
 
 
 @st.composite
@@ -155,14 +155,17 @@ def write(path: Path, header: list[str], rows: list[list[str]]) -> Path:
 
 
 def screen_args(shape: Shape, header: list[str], folder: Path) -> tuple:
-    """--digits (Benford), --duplicates and --limits (a lower and an upper limit) on the first number column."""
+    """--digits (Benford, last two digits), --threshold, --round, --duplicates and --limits (a lower and an upper
+    limit) on the first number column."""
     names = [h for h, k in zip(header[int(shape.key):], shape.kinds, strict=True) if k in NUMBER_KINDS]
     if not names:
         return ()
     limits = folder / "limits.csv"
     upper = abs(EXTREMES[shape.seed % len(EXTREMES)])  # at least the lower limit, or the file is refused
     limits.write_text(f"column,lower,upper\n{names[0]},-1e300,{upper!r}\n", encoding="utf-8")
-    return ("--digits", names[0], "--duplicates", names[0], "--limits", limits)
+    threshold = f"{names[0]}={upper!r}:{max(upper / 10, 1.0)!r}"  # an extreme threshold, a positive band
+    return ("--digits", names[0], "--threshold", threshold, "--round", names[0], "--duplicates", names[0],
+            "--limits", limits)
 
 
 def run(*args) -> tuple[int, str, str]:

@@ -10,6 +10,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from investigator.tui.models.map import group_labels
+from investigator.tui.models.screens import screen_marks
 
 # Verdict order when sorting by verdict: decided leads first, undecided last.
 VERDICT_RANK = {"confirmed": 0, "follow-up": 1, "benign": 2, "open": 3, "": 4}
@@ -54,6 +55,7 @@ class CasesData:
     reason: np.ndarray = field(default=None)  # why a flagged record is flagged ("votes", "far beyond ...")
     verdicts: np.ndarray = field(default=None)  # str, "" where there is none
     notes: np.ndarray = field(default=None)
+    screen_marks: dict[int, list[str]] = field(default_factory=dict)  # what the amount screens say of a record
     _lower_keys: np.ndarray | None = None
 
     @property
@@ -142,6 +144,7 @@ def cases_data(result) -> CasesData:
         flags={k: np.asarray(r.flags, dtype=bool) for k, r in result.method_results.items()},
         ranking=np.asarray(result.ranking()), pattern=pattern,
         rank=np.asarray(result.rank), reason=np.asarray(result.flag_reason, dtype=object),
+        screen_marks=screen_marks(result.run.screens),
     )
     data.set_verdicts(result.verdicts, result.notes)
     return data

@@ -9,6 +9,7 @@ from textual.widgets import Footer, Header, Input, Static
 
 from investigator.tui.models.cases import NO_VERDICT, CaseFilter
 from investigator.tui.plain import plain
+from investigator.tui.screens.screening import ScreensScreen
 from investigator.tui.settings import mark_hint_seen
 from investigator.tui.widgets.cases_table import CasesTable
 from investigator.tui.widgets.scan_progress import ScanProgress
@@ -35,6 +36,8 @@ class CasesScreen(Screen):
         Binding("x", "clear", "Clear filters"),
         Binding("v", "verdict", "Verdict"),
         Binding("o", "group", "Open group"),
+        # Not in the footer (it is full at 80 columns); the help lists it and the status line names it.
+        Binding("t", "screens", "Screens (Benford, round amounts, thresholds, ...)", show=False),
         Binding("i", "hint", "Hint", show=False),
         Binding("escape", "leave_search", show=False),
     ]
@@ -82,9 +85,10 @@ class CasesScreen(Screen):
             direction = "Z to A" if self.reverse else "A to Z"
         elif self.sort == "verdict":
             direction = "undecided first" if self.reverse else "decided first"
+        screens = " · t: screens" if self.app.result is not None and self.app.result.run.screens else ""
         self.query_one("#cases-status", Static).update(
             f"{int(data.flagged.sum()):,} flagged of {data.n:,} · showing {len(order):,} "
-            f"({self.filter.describe()}) · sorted by {self.sort}, {direction}")
+            f"({self.filter.describe()}) · sorted by {self.sort}, {direction}{screens}")
         if not self.query_one("#search", Input).has_focus:  # typing a search keeps the focus in the box
             table.focus()
 
@@ -100,9 +104,11 @@ class CasesScreen(Screen):
         verdict = data.verdicts[p] or "none"
         note = f" ({data.notes[p]})" if data.notes[p] else ""
         flag = f"FLAG ({data.reason[p]})" if data.flagged[p] else "not flagged"
+        marks = data.screen_marks.get(p)
+        screens = f" Screens: {'; '.join(marks)}." if marks else ""
         detail.update(plain(
             f"{data.keys[p]} (row {data.rows[p]}, rank {data.rank[p]:,}): {flag}, "
-            f"above the cutoff of {', '.join(which) or 'no method'}. Column hits: {hit_text}. "
+            f"above the cutoff of {', '.join(which) or 'no method'}. Column hits: {hit_text}.{screens} "
             f"Verdict: {verdict}{note}"))
 
     def on_cases_table_selected(self, event: CasesTable.Selected) -> None:
@@ -172,6 +178,12 @@ class CasesScreen(Screen):
     def action_verdict(self) -> None:
         if self.table.position is not None:
             self.app.ask_verdict(self.table.position)
+
+    def action_screens(self) -> None:
+        if self.app.result is None:
+            self.notify("No scan yet: press 1 for the columns, then s.", severity="warning")
+            return
+        self.app.push_screen(ScreensScreen(self.app.result.run.screens))
 
     def action_group(self) -> None:
         if self.table.position is not None:
