@@ -52,6 +52,9 @@ def add_scan_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--digits", metavar="COL", help="Benford's law first-digit tests on these amount columns")
     p.add_argument("--duplicates", metavar="A,B",
                    help="report groups of records with the same values on these columns")
+    p.add_argument("--within", metavar="COLUMN[,COLUMN]",
+                   help="peer groups: also score each record against the records of its own segment (the records "
+                   "sharing these columns' values: a vendor, a product line), every method fitted per segment")
     p.add_argument("--map", metavar="auto|umap|pca|none", default=None,
                    help="add 2-D map coordinates (auto: UMAP, or PCA for tiny data); the map command defaults "
                    "to auto, every other command to none (give it to report to include the map)")
@@ -89,7 +92,7 @@ def scan_parameters(args: argparse.Namespace) -> dict:
         "contamination": args.contamination, "seed": args.seed, "sheet": args.sheet, "exact": args.exact,
         "decimal": getattr(args, "decimal", None), "header_row": getattr(args, "header_row", None),
         "resamples": args.resamples, "limits": args.limits, "digits": args.digits, "map": args.map,
-        "duplicates": args.duplicates, "cells": getattr(args, "cells", None),
+        "duplicates": args.duplicates, "cells": getattr(args, "cells", None), "within": getattr(args, "within", None),
         "keep_reference_outliers": getattr(args, "keep_reference_outliers", False),
     }
     return {k: v for k, v in given.items() if v is not None}

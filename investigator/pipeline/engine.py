@@ -42,6 +42,7 @@ from investigator.pipeline.scoring import (
     reference_combined_fence,
 )
 from investigator.pipeline.stability import flag_stability
+from investigator.pipeline.within import check_within, peer_groups
 from investigator.prepare.features import FeaturePreparer, Features, beyond_bound_notices, column_numbers
 from investigator.prepare.roles import assign_roles
 from investigator.progress import Progress, silent
@@ -54,11 +55,16 @@ from investigator.version import __version__
 
 
 def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
-             reference: Table | None = None) -> ScanResult:
+             reference: Table | None = None, *, groups: bool = True) -> ScanResult:
     """Scan ``table``; with ``reference``, fit preparation and methods on the reference and score the table's
-    records against it (novelty scoring: no record of the table is part of the fit)."""
+    records against it (novelty scoring: no record of the table is part of the fit). ``groups=False`` leaves
+    out the small groups and their cases (a segment's own scan, whose groups nobody reads; its scores and flags
+    are the same)."""
     started = datetime.now(UTC).replace(microsecond=0).isoformat()
     notices = list(table.notices)
+    original_reference = reference  # a segment's check cleans its own reference records (phase I)
+    if options.within:
+        check_within(table, options, reference)  # before the work: a bad column is reported at once
     progress("preparing features", 0.02)
     fit_table = reference if reference is not None else table
     columns = assign_roles(fit_table, options.features, options.exclude)
@@ -115,9 +121,10 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     if reference is None:
         progress("groups", 0.93)
         kinds, results, combination = _kinds_of_normal(features, results, combination, options, notices)
-        grouping = find_groups(features.values, combination.flagged, seed=options.seed,
-                               kind_labels=None if kinds is None else kinds.labels)
-        notices += list(grouping.notices)
+        if groups:
+            grouping = find_groups(features.values, combination.flagged, seed=options.seed,
+                                   kind_labels=None if kinds is None else kinds.labels)
+            notices += list(grouping.notices)
         if options.map != "none":
             progress("map", 0.95)
             mapped = embed(features.values, options.map, seed=options.seed, keep=combination.flagged)
@@ -131,6 +138,12 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
         notices.append(f"column '{name}': MAD is zero, so the modified z-score rule is skipped there")
     hits = rules.hits(features)
     extras = _extras(table, options, notices)
+    within = None
+    if options.within:
+        within = peer_groups(table, options, _scan_segment, overall=results, combination=combination,
+                             features=features, reference=original_reference,
+                             reference_features=ref_features if reference is not None else None, notices=notices,
+                             progress=progress)
     n_ordinary = n if reference is not None else int((~combination.flagged).sum())
     run = RunRecord(
         started=started,
@@ -153,17 +166,23 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
         screens=extras["screens"] or None,
         structure=grouping.describe() if grouping is not None else None,
         map=MapRecord(mapped.method, dict(mapped.parameters), tuple(mapped.notices)) if mapped is not None else None,
+        within=within.describe() if within is not None else None,
     )
     progress("done", 1.0)
     result = ScanResult(table, options, columns, features, preparer, search, graph, results, combination,
                         rules, hits, run, stability, reference=reference,
                         reference_features=ref_features if reference is not None else None,
-                        out_of_spec=extras["out_of_spec"], groups=grouping, map=coords, kinds=kinds)
+                        out_of_spec=extras["out_of_spec"], groups=grouping, map=coords, kinds=kinds, within=within)
     if grouping is not None:
         from investigator.structure.cases import group_cases
 
         result.group_cases = group_cases(grouping, features, table.frame, combination.flagged, table.keys)
     return result
+
+
+def _scan_segment(table: Table, options: ScanOptions, reference: Table | None) -> ScanResult:
+    """One segment scanned as a table of its own (peer groups, pipeline/within.py)."""
+    return run_scan(table, options, reference=reference, groups=False)
 
 
 def _kinds_record(kinds: KindsOfNormal, results: dict[str, MethodResult]) -> KindsRecord:

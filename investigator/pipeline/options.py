@@ -51,12 +51,15 @@ class ScanOptions:
     keep_reference_outliers: bool = False
     map: str = "none"
     cells: str = "flagged"  # which records get cell findings: "flagged" or "all"
+    within: tuple[str, ...] | None = None  # peer groups: score each record within its segment of these columns
 
     def __post_init__(self) -> None:
         set_ = object.__setattr__
         set_(self, "features", _names(self.features, "features"))
         set_(self, "digits", _names(self.digits, "digits"))
         set_(self, "duplicates", _names(self.duplicates, "duplicates"))
+        within = _names(self.within, "within")
+        set_(self, "within", None if within is None else tuple(dict.fromkeys(within)))  # each column once
         if self.limits is not None:
             set_(self, "limits", str(self.limits))
         set_(self, "exclude", _names(self.exclude, "exclude"))
