@@ -54,6 +54,9 @@ class CasesData:
     reason: np.ndarray = field(default=None)  # why a flagged record is flagged ("votes", "far beyond ...")
     verdicts: np.ndarray = field(default=None)  # str, "" where there is none
     notes: np.ndarray = field(default=None)
+    within: np.ndarray | None = None  # with peer groups: each record's consensus within its segment
+    within_flagged: np.ndarray | None = None
+    segment: np.ndarray | None = None  # its segment ("category = stationery")
     _lower_keys: np.ndarray | None = None
 
     @property
@@ -65,8 +68,8 @@ class CasesData:
         return len(self.keys)
 
     def sorts(self) -> list[str]:
-        return ["consensus", "votes", *self.methods, *(["pattern"] if self.pattern is not None else []),
-                "verdict", "key"]
+        return ["consensus", *(["within"] if self.within is not None else []), "votes", *self.methods,
+                *(["pattern"] if self.pattern is not None else []), "verdict", "key"]
 
     def set_verdicts(self, verdicts, notes) -> None:
         self.verdicts = np.array([v or "" for v in verdicts], dtype=object) if verdicts is not None else \
@@ -91,6 +94,8 @@ class CasesData:
         rank[self.ranking] = np.arange(self.n)  # ties in any sort keep the consensus order
         if sort == "votes":
             primary = -self.votes
+        elif sort == "within" and self.within is not None:
+            primary = -self.within
         elif sort in self.scores:
             primary = -np.nan_to_num(self.scores[sort], nan=-np.inf)
         elif sort == "pattern" and self.pattern is not None:
@@ -143,5 +148,10 @@ def cases_data(result) -> CasesData:
         ranking=np.asarray(result.ranking()), pattern=pattern,
         rank=np.asarray(result.rank), reason=np.asarray(result.flag_reason, dtype=object),
     )
+    within = getattr(result, "within", None)
+    if within is not None:  # peer groups: the record as its own segment judges it
+        data.within = np.asarray(within.consensus, dtype=float)
+        data.within_flagged = np.asarray(within.flagged, dtype=bool)
+        data.segment = np.array([s.label for s in within.segments], dtype=object)[within.segment]
     data.set_verdicts(result.verdicts, result.notes)
     return data

@@ -100,9 +100,13 @@ class CasesScreen(Screen):
         verdict = data.verdicts[p] or "none"
         note = f" ({data.notes[p]})" if data.notes[p] else ""
         flag = f"FLAG ({data.reason[p]})" if data.flagged[p] else "not flagged"
+        within = ""
+        if data.within is not None and data.within_flagged is not None and data.segment is not None:
+            within = (f" Within {data.segment[p]}: {'FLAG' if data.within_flagged[p] else 'not flagged'}, "
+                      f"consensus {data.within[p]:.4f}.")
         detail.update(plain(
             f"{data.keys[p]} (row {data.rows[p]}, rank {data.rank[p]:,}): {flag}, "
-            f"above the cutoff of {', '.join(which) or 'no method'}. Column hits: {hit_text}. "
+            f"above the cutoff of {', '.join(which) or 'no method'}. Column hits: {hit_text}.{within} "
             f"Verdict: {verdict}{note}"))
 
     def on_cases_table_selected(self, event: CasesTable.Selected) -> None:
