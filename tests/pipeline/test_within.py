@@ -250,6 +250,25 @@ def test_the_explanation_says_what_is_unusual_for_the_segment(lines, within):
     assert "Within its segment (category = services, 2,020 records)" in explanation_text(ordinary_line)
 
 
+def test_the_report_and_the_workspace_show_the_within_view(lines, within, tmp_path):
+    from investigator.report import write_report
+    from investigator.tui.models.cases import cases_data
+
+    i = _position(lines, PLANTED)
+    html = write_report(within, tmp_path / "report.html", cases=5).read_text(encoding="utf-8")
+    section = html[html.index('<section id="within">'):]
+    section = section[:section.index("</section>")]
+    assert PLANTED in section and "unusual for category = stationery" in section
+    assert "category = catering" in section and "the whole table" in section
+    # The Cases list: the within consensus of every record, sorted by it (numpy's stable argsort, highest first,
+    # is the order records with equal values keep too).
+    data = cases_data(within)
+    np.testing.assert_array_equal(data.within, within.within.consensus)
+    assert data.within_flagged[i] and data.segment[i] == "category = stationery" and "within" in data.sorts()
+    order = data.order("within")
+    assert np.all(np.diff(data.within[order]) <= 0) and order[0] == np.argmax(within.within.consensus)
+
+
 # -- reproducible, whatever the order of the rows ------------------------------------------------------------
 
 
