@@ -143,7 +143,8 @@ def _within_lines(result: ScanResult, top: int) -> list[str]:
     only = w.within_only
     lines = [f"Within segments ({columns}): {len(w.segments):,} segments, {own:,} fitted on their own records "
              f"(at least {w.min_records:,} each)" + (f", {pooled:,} pooled (see the notices)" if pooled else ""),
-             f"  {int(only.sum()):,} records unusual within their segment ({columns}) but not overall; "
+             f"  {int(only.sum()):,} record{'' if int(only.sum()) == 1 else 's'} unusual within their segment "
+             f"({columns}) but not overall; "
              f"{int(w.flagged.sum()):,} flagged within their segment, "
              f"{int((w.overall_flagged & ~w.flagged).sum()):,} flagged overall but ordinary within it"]
     order = [int(i) for i in np.argsort(-w.consensus_z, kind="stable") if only[i]][:top]

@@ -31,13 +31,13 @@ the small segment's records, over the median distance of the segment's own recor
 taken when that ratio is at most 1 (the small segment's median record is as close as half the segment's own
 records). The whole table's robust scale would not do: it is set by the largest segment, and in it a segment of
 prices around 6 and one around 120 can look alike beside one around 800 (measured on the invented invoices of
-tests/pipeline/test_within.py). A notice names each, with its
-records, the line and where it was scored. A segment whose own scan cannot run (no feature varies in it) is
-pooled in the same way, and the notice says why.
+tests/pipeline/test_within.py). A notice names each, with its records, the line and where it was scored (the
+first five one by one, then a count). A segment whose own scan cannot run (no feature varies in it) is pooled in
+the same way, and the notice says why.
 
 In ``check`` (a reference), segments are the reference's: a new record is scored against its segment's reference
 records (phase I cleaning included, as ``check`` of that segment alone would do), and a value the reference lacks
-is scored against the whole reference.
+or has too few records of is pooled in the same way, against the nearest segment or the whole reference.
 """
 
 from __future__ import annotations
@@ -251,7 +251,12 @@ def peer_groups(table: Table, options: ScanOptions, scan: SegmentScan, *, overal
         segments.append(Segment(label, tuple(str(v) for v in levels[s]), int(counts[s]), int(fit_counts[s]),
                                 against, why, seg_notices, int(view.flagged[where].sum()),
                                 int((view.flagged[where] & ~combination.flagged[where]).sum())))
-    if notices is not None:
+    if notices is not None and not fits:
+        largest = int(max(fit_counts[present], default=0))
+        notices.append(f"within {', '.join(columns)}: none of the {len(present):,} segments could be fitted on its "
+                       f"own (a fit needs {line:,} records; the largest segment has {largest:,}), so every record is "
+                       "judged against the whole table and the within view is the overall one")
+    elif notices is not None:
         notices += pooled[:NOTICES_LISTED]
         if len(pooled) > NOTICES_LISTED:
             notices.append(f"{len(pooled) - NOTICES_LISTED:,} more segments are below the line of {line:,} records or "
