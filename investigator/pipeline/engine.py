@@ -279,7 +279,8 @@ def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanRes
 
     Options are those of ``investigator scan``: ``id``, ``features``, ``exclude``, ``methods``, ``log``,
     ``cutoff``, ``contamination``, ``seed``, ``sheet``, ``decimal``, ``header_row``, ``exact``, ``resamples``,
-    ``digits``, ``duplicates``, ``limits``. When a review store exists (``store``, or ``<data>.investigation.sqlite``
+    ``digits``, ``duplicates``, ``limits``, ``within`` (peer groups: also score every record against its
+    segment, pipeline/within.py). When a review store exists (``store``, or ``<data>.investigation.sqlite``
     beside a data file), each record also gets its current verdict and note. Raises :class:`InputError` on
     bad input.
     """

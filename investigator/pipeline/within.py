@@ -155,20 +155,32 @@ class PeerGroups:
     def view(self, i: int) -> WithinSegment:
         """Record ``i`` (0-based) as its segment judges it; the features that stand out there come from the
         segment's own scan (none when it was scored against another fit)."""
-        s = int(self.segment[i])
-        seg = self.segments[s]
-        top: tuple = ()
-        fit = self.fits.get(s)
-        if fit is not None:
-            local = int(np.searchsorted(self.positions[s], i))
-            top = fit.explainer.explain([local], peers=0)[0].top_features
-        methods = {k: MethodScore(float(m.scores[i]), float(m.cutoffs[i]), bool(m.flags[i]), float(m.z[i]),
-                                  bool(m.far_beyond[i]), float(gaussian_scaling(m.z[i])))
-                   for k, m in self.methods.items() if np.isfinite(m.scores[i])}
-        return WithinSegment(segment=seg.label, records=seg.records, scored_against=seg.scored_against,
-                             reason=seg.reason, flagged=bool(self.flagged[i]), votes=int(self.votes[i]),
-                             methods_voting=int(self.n_methods[i]), consensus=float(self.consensus[i]),
-                             flag_reason=self.flag_reason[i] or None, method_scores=methods, top_features=top)
+        return self.views([i])[0]
+
+    def views(self, positions) -> list[WithinSegment]:
+        """:meth:`view` of the records at ``positions``, explained in one batch per segment."""
+        positions = [int(i) for i in positions]
+        top: dict[int, tuple] = {}
+        for s in sorted({int(self.segment[i]) for i in positions}):
+            fit = self.fits.get(s)
+            if fit is None:
+                continue
+            mine = [i for i in positions if self.segment[i] == s]
+            local = np.searchsorted(self.positions[s], mine)
+            for i, e in zip(mine, fit.explainer.explain(local, peers=0), strict=True):
+                top[i] = e.top_features
+        out = []
+        for i in positions:
+            seg = self.segments[int(self.segment[i])]
+            methods = {k: MethodScore(float(m.scores[i]), float(m.cutoffs[i]), bool(m.flags[i]), float(m.z[i]),
+                                      bool(m.far_beyond[i]), float(gaussian_scaling(m.z[i])))
+                       for k, m in self.methods.items() if np.isfinite(m.scores[i])}
+            out.append(WithinSegment(segment=seg.label, records=seg.records, scored_against=seg.scored_against,
+                                     reason=seg.reason, flagged=bool(self.flagged[i]), votes=int(self.votes[i]),
+                                     methods_voting=int(self.n_methods[i]), consensus=float(self.consensus[i]),
+                                     flag_reason=self.flag_reason[i] or None, method_scores=methods,
+                                     top_features=top.get(i, ())))
+        return out
 
 
 def peer_groups(table: Table, options: ScanOptions, scan: SegmentScan, *, overall: dict[str, MethodResult],

@@ -398,10 +398,9 @@ def _within(result, cases: int) -> Safe:
     order = [int(i) for i in np.argsort(-w.consensus_z, kind="stable") if only[i]][:cases]
     if order:
         parts.append(tag("h3", "Unusual within their segment, not overall"))
-        parts.append(table(["row", "key", "segment", "within", "overall", "why"],
-                           [[int(result.table.row_numbers[i]), result.keys[i], w.label(i), f"{w.consensus[i]:.3f}",
-                             f"{result.consensus[i]:.3f}", within_sentence(w.view(i))] for i in order],
-                           numeric=(0, 3, 4), nowrap=(1,)))
+        rows = [[int(result.table.row_numbers[i]), result.keys[i], w.label(i), f"{w.consensus[i]:.3f}",
+                 f"{result.consensus[i]:.3f}", within_sentence(v)] for i, v in zip(order, w.views(order), strict=True)]
+        parts.append(table(["row", "key", "segment", "within", "overall", "why"], rows, numeric=(0, 3, 4), nowrap=(1,)))
         if int(only.sum()) > len(order):
             parts.append(tag("p", f"{int(only.sum()) - len(order):,} more are left out (--cases {cases}); the JSON "
                                   "and CSV outputs hold within_flagged for every record.", class_="muted"))
