@@ -28,7 +28,7 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
 
 def run_demo(args: argparse.Namespace) -> int:
     # Deferred: the demo builder needs pandas (0.6 s), the engine 1.9 s (see investigator/cli/scan.py).
-    from investigator.io.demo import DEMO_FILE, DEMO_ID, write_demo
+    from investigator.io.demo import DEMO_FILE, DEMO_OPTIONS, write_demo
     from investigator.io.writers import check_out_path
     from investigator.pipeline.engine import scan
 
@@ -39,9 +39,9 @@ def run_demo(args: argparse.Namespace) -> int:
     folder.mkdir(parents=True, exist_ok=True)
     path = write_demo(folder)
     if sys.stdin.isatty() and sys.stdout.isatty() and not args.out:  # a person at a terminal: the workspace
-        return open_demo(path, args.seed, DEMO_ID)
+        return open_demo(path, {**DEMO_OPTIONS, "seed": args.seed})
     echo(f"Demo data written to {path}")
-    result = scan(path, id=DEMO_ID, seed=args.seed, progress=StderrBar())
+    result = scan(path, **DEMO_OPTIONS, seed=args.seed, progress=StderrBar())
     if args.out:
         result.write(args.out)
     echo(result.summary())

@@ -32,9 +32,9 @@ def run_open(args: argparse.Namespace) -> int:
     return 0
 
 
-def open_demo(path: Path, seed: int, id_column: str) -> int:
-    """The interactive ``investigator demo``: the demo data, scanned at once, in the workspace."""
+def open_demo(path: Path, options: dict) -> int:
+    """The interactive ``investigator demo``: the demo data, scanned at once with ``options``, in the workspace."""
     from investigator.tui.app import InvestigatorApp  # deferred, as in run_open
 
-    InvestigatorApp(path, {"id": id_column, "seed": seed}, autoscan=True, error_text=flag_message).run()
+    InvestigatorApp(path, options, autoscan=True, error_text=flag_message).run()
     return 0

@@ -73,6 +73,9 @@ def add_scan_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--dayfirst", action="store_const", const=True, default=None,
                    help="read dates such as 03/04/2025 as day/month (default: told from the values, else "
                    "month/day)")
+    p.add_argument("--within", metavar="COLUMN[,COLUMN]",
+                   help="peer groups: also score each record against the records of its own segment (the records "
+                   "sharing these columns' values: a vendor, a product line), every method fitted per segment")
     p.add_argument("--map", metavar="auto|umap|pca|none", default=None,
                    help="add 2-D map coordinates (auto: UMAP, or PCA for tiny data); the map command defaults "
                    "to auto, every other command to none (give it to report to include the map)")
@@ -115,6 +118,7 @@ def scan_parameters(args: argparse.Namespace) -> dict:
         "holidays": getattr(args, "holidays", None), "durations": getattr(args, "durations", None),
         "dayfirst": getattr(args, "dayfirst", None),
         "round": getattr(args, "round", None), "threshold": getattr(args, "threshold", None),
+        "within": getattr(args, "within", None),
         "keep_reference_outliers": getattr(args, "keep_reference_outliers", False),
     }
     return {k: v for k, v in given.items() if v is not None}

@@ -182,6 +182,37 @@ class NearestOrdinary:
                 "reaches_cutoff": self.reaches_cutoff}
 
 
+WHOLE_TABLE = "the whole table"  # where a segment too small for a fit of its own is judged when none is near
+
+
+@dataclass(frozen=True, slots=True)
+class WithinSegment:
+    """The record as its own segment judges it (peer groups, ``within``): the segment ("category = stationery")
+    and its records, where it was scored (None: on its segment's own fit; another segment's label, or "the
+    whole table", with the ``reason``), the combination there (flagged, votes of ``methods_voting``, consensus,
+    flag reason), each method's view there, and the features that stand out among the segment's ordinary
+    records (none when the segment was scored against another fit)."""
+
+    segment: str
+    records: int
+    scored_against: str | None
+    reason: str | None
+    flagged: bool
+    votes: int
+    methods_voting: int
+    consensus: float
+    flag_reason: str | None
+    method_scores: dict[str, MethodScore]
+    top_features: tuple[TopFeature, ...]
+
+    def to_dict(self) -> dict:
+        return {"segment": self.segment, "records": self.records, "scored_against": self.scored_against,
+                "reason": self.reason, "flagged": self.flagged, "votes": self.votes,
+                "methods_voting": self.methods_voting, "consensus": self.consensus, "flag_reason": self.flag_reason,
+                "methods": {k: m.to_dict() for k, m in self.method_scores.items()},
+                "top_features": [t.to_dict() for t in self.top_features]}
+
+
 @dataclass(frozen=True, slots=True)
 class Explanation:
     """Why one record stands out (or does not): the combination's verdict, each method's view and
@@ -204,9 +235,10 @@ class Explanation:
     stability: float | None
     resamples: int | None
     cells: tuple[CellFinding, ...] = ()  # the cells that deviate from what the other values predict
+    within: WithinSegment | None = None  # with ``within``: the record as its own segment judges it
 
     def to_dict(self) -> dict:
-        return {
+        out = {
             "row": self.row,
             "key": self.key,
             "flagged": self.flagged,
@@ -225,6 +257,9 @@ class Explanation:
             "resamples": self.resamples,
             "cells": [c.to_dict() for c in self.cells],
         }
+        if self.within is not None:  # only with peer groups: every other explanation keeps its keys
+            out["within"] = self.within.to_dict()
+        return out
 
     def contributions_dict(self) -> dict[str, list[dict]]:
         """``contributions`` as in the JSON records."""

@@ -9,7 +9,14 @@ fixed seed, and three kinds of cases are planted:
 * a pattern: seven near-identical supply-run claims by one employee on one evening, each just under the
   500.00 approval limit (a split purchase);
 * combinations: trips where each value is ordinary on its own but the amount does not fit the distance and
-  nights (a long trip repaid as if it were a short one, and the other way round).
+  nights (a long trip repaid as if it were a short one, and the other way round);
+* timing: the company works Monday to Friday, except public holidays in England, yet three trips are dated on
+  a weekend and one on Good Friday;
+* a peer case: Finance staff only make short day trips (customer visits and training), but one Finance claim
+  is a long installation trip with a hotel night, ordinary for the company, unusual for its department.
+
+``DEMO_OPTIONS`` are the options the ``demo`` command scans with (the holidays of England and the 500.00
+approval limit); ``--within department`` finds the peer case.
 
 Every value here is invented; any likeness to a real company or person is chance.
 """
@@ -23,6 +30,11 @@ import pandas as pd
 
 DEMO_FILE = "brindlemoor_expense_claims.csv"
 DEMO_ID = "claim_id"
+DEMO_OPTIONS = {"id": DEMO_ID, "holidays": "GB-ENG", "threshold": "amount=500"}
+# Public holidays of England in 2025 (the `holidays` package, GB-ENG), written out so that making the demo
+# needs no package: the test of the demo checks them against it.
+HOLIDAYS_2025 = ("2025-01-01", "2025-04-18", "2025-04-21", "2025-05-05", "2025-05-26", "2025-08-25",
+                 "2025-12-25", "2025-12-26")
 N_CLAIMS = 2400
 PURPOSES = {"customer visit": 0.34, "installation": 0.30, "training": 0.14, "trade fair": 0.08,
             "supply run": 0.14}
@@ -52,6 +64,9 @@ def make_demo(seed: int = 2024) -> tuple[pd.DataFrame, dict[str, list[str]]]:
     weights /= weights.sum()
     dept_of = {e: DEPARTMENTS[rng.choice(5, p=[0.35, 0.25, 0.2, 0.12, 0.08])] for e in employees}
     dates = pd.Timestamp("2025-01-02") + pd.to_timedelta(rng.integers(0, 360, N_CLAIMS), unit="D")
+    # Claims are dated on working days: a weekend or holiday date moves to the next working day.
+    dates = pd.to_datetime(np.busday_offset(dates.to_numpy(dtype="datetime64[D]"), 0, roll="forward",
+                                            holidays=list(HOLIDAYS_2025)))
     rows = []
     for i in range(N_CLAIMS):
         purpose = rng.choice(list(PURPOSES), p=list(PURPOSES.values()))
@@ -109,6 +124,25 @@ def make_demo(seed: int = 2024) -> tuple[pd.DataFrame, dict[str, list[str]]]:
         i = pick(trip & (frame["nights"] == 0))
         frame.loc[i, ["distance_km", "nights", "amount"]] = [km, nights, amount]
         planted["combination"].append(frame.loc[i, "claim_id"])
+    # Finance staff make short day trips only (customer visits and training, no hotel): their claims (none
+    # planted above) become such trips.
+    finance = np.flatnonzero((frame["department"] == "Finance").to_numpy() & ~frame.index.isin(used))
+    for i in finance.tolist():
+        purpose = str(rng.choice(["customer visit", "training"], p=[0.6, 0.4]))
+        km = round(float(rng.lognormal(np.log(45), 0.35)), 1)
+        frame.loc[i, ["purpose", "distance_km", "nights", "amount", "note"]] = [
+            purpose, km, 0, _claim_amount(rng, km, 0, purpose), NOTES[purpose]]
+    planted["timing"], planted["peer"] = [], []
+    # Timing: three trips dated on a weekend, one on Good Friday.
+    for day in ("2025-03-15", "2025-06-29", "2025-10-12", "2025-04-18"):
+        i = pick(trip & (frame["department"] != "Finance"))
+        frame.loc[i, "claim_date"] = day
+        planted["timing"].append(frame.loc[i, "claim_id"])
+    # A peer case: a long installation trip with a hotel night, claimed by a Finance employee.
+    i = pick((frame["department"] == "Finance").to_numpy())
+    frame.loc[i, ["purpose", "distance_km", "nights", "amount", "note"]] = [
+        "installation", 380.0, 1, _claim_amount(rng, 380.0, 1, "installation"), NOTES["installation"]]
+    planted["peer"].append(frame.loc[i, "claim_id"])
     return frame, planted
 
 

@@ -8,7 +8,15 @@ for the report and the cases table, which escape for their own formats.
 from __future__ import annotations
 
 from investigator.explain.cells import CellFinding
-from investigator.explain.explanation import Explanation, NearestOrdinary, TopFeature, Typical, TypicalLevel
+from investigator.explain.explanation import (
+    WHOLE_TABLE,
+    Explanation,
+    NearestOrdinary,
+    TopFeature,
+    Typical,
+    TypicalLevel,
+    WithinSegment,
+)
 from investigator.printable import printable
 
 # How often a flag recurs over resampled runs (--resamples) for it to be called stable or unstable.
@@ -151,6 +159,42 @@ def column_hit_text(h: dict) -> str:
     return f"{h['column']}: {h['rule']} ({shown_value(h['value'])} is {side} {shown_value(h['limit'])})"
 
 
+def _within_reason(t: TopFeature, segment: str) -> str | None:
+    """One feature that stands out within the record's segment, in words."""
+    value = format_value(t.value)
+    if t.direction in ("higher", "lower"):
+        return (f"{t.feature} is {t.direction} than is typical for {segment} ({value}; typical there: "
+                f"{typical_text(t.typical)})")
+    if t.direction == "rarer":
+        return f"{t.feature} has a value rare for {segment} ({value}; typical there: {typical_text(t.typical)})"
+    if t.direction == "combination":
+        partner = f" with {t.with_feature}" if t.with_feature else ""
+        return f"{t.feature} is unusual in combination{partner} for {segment} ({value})"
+    return None
+
+
+def within_sentence(w: WithinSegment) -> str:
+    """The record as its own segment judges it (peer groups): "Within its segment (category = stationery, 300
+    records): unusual for category = stationery, 4 of 4 methods put it above their cutoff there (consensus
+    0.912); mainly unit_price is higher than is typical for category = stationery (900; typical there: ...)".
+    A segment too small for a fit of its own says so, and where it was judged instead."""
+    where = f"{w.segment}: {w.reason}" if w.reason else f"{w.segment}, {w.records:,} records"
+    if w.scored_against == WHOLE_TABLE:
+        return printable(f"Within its segment ({where}): judged as in the whole table.")
+    beside = w.segment if w.scored_against is None else w.scored_against
+    word = "for" if w.scored_against is None else "beside"
+    counted = (f"{w.votes} of {w.methods_voting} methods put it above their cutoff there (consensus "
+               f"{w.consensus:.3f})")
+    if not w.flagged:
+        return printable(f"Within its segment ({where}): not unusual {word} {beside}; {counted}.")
+    how = f", flagged as {w.flag_reason}" if w.flag_reason and w.flag_reason != "votes" else ""
+    text = f"Within its segment ({where}): unusual {word} {beside}, {counted}{how}"
+    reasons = [r for r in (_within_reason(t, w.segment) for t in w.top_features[:2]) if r]
+    if reasons:
+        text += "; mainly " + " and ".join(reasons)
+    return printable(text + ".")
+
+
 def cell_sentence(c: CellFinding) -> str:
     """One cell finding in words: "amount 3,855 where this record's other values predict about 38.55
     (residual 41.2): a factor of 100 too high: a misplaced decimal point?"."""
@@ -170,6 +214,8 @@ def cell_lines(e: Explanation) -> list[str]:
 
 def explanation_text(e: Explanation) -> str:
     lines = [headline_text(e)]
+    if e.within is not None:
+        lines.append(within_sentence(e.within))
     lines += cell_lines(e)
     if e.stability is not None and e.resamples is not None:
         runs = e.resamples

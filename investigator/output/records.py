@@ -52,6 +52,11 @@ def record(result: ScanResult, i: int, explained: Explanation | None = None) -> 
         extra["map"] = [float(result.map[i, 0]), float(result.map[i, 1])]
     if result.kinds is not None:
         extra["kind"] = int(result.kinds.labels[i]) + 1
+    if result.within is not None:  # peer groups: the record as its own segment judges it
+        w = result.within
+        extra.update(segment=w.label(i), within_consensus=_num(w.consensus[i]), within_flagged=bool(w.flagged[i]),
+                     within_scores={k: _num(m.scores[i]) for k, m in w.methods.items()},
+                     within_scored_against=w.scored_against(i))
     return {
         "row": int(result.table.row_numbers[i]),
         "key": result.keys[i],
@@ -115,6 +120,13 @@ def to_frame(result: ScanResult) -> pd.DataFrame:
     if result.groups is not None:
         out["pattern"] = list(result.groups.pattern)
         out["group"] = [int(g) if g > 0 else None for g in result.groups.group]
+    if result.within is not None:
+        w = result.within
+        out["segment"] = np.array([s.label for s in w.segments], dtype=object)[w.segment]
+        out["within_consensus"], out["within_flagged"] = w.consensus, w.flagged
+        for k, m in w.methods.items():
+            out[f"within_score_{k}"] = m.scores
+        out["within_scored_against"] = np.array([s.scored_against for s in w.segments], dtype=object)[w.segment]
     return pd.DataFrame(out)
 
 

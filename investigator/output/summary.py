@@ -8,6 +8,8 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
+import numpy as np
+
 from investigator.output.screens import BENFORD_TESTS, amount_lines, benford_text, cautions, records_text
 from investigator.printable import printable
 
@@ -79,6 +81,8 @@ def summary_text(result: ScanResult, top: int = 10) -> str:
     lines.append(
         f"Flagged: {flagged:,} of {n:,} records ({flagged / max(n, 1):.1%}); {with_hits:,} records have column hits"
     )
+    if result.within is not None:
+        lines += _within_lines(result, top)
     order = [i for i in result.ranking() if result.flagged[i]][:top]
     if order:
         lines.append("")
@@ -135,6 +139,30 @@ def dataset_summary_text(scan: DatasetScan) -> str:
 
 
 __all__ = ["CAUTION", "dataset_summary_text", "summary_text"]
+
+
+def _within_lines(result: ScanResult, top: int) -> list[str]:
+    """Peer groups (--within): the segments, how many were fitted on their own, and the records unusual within
+    their segment but not overall, the most unusual there first."""
+    w = result.within
+    assert w is not None
+    columns = ", ".join(map(printable, w.columns))
+    own = sum(1 for s in w.segments if s.scored_against is None)
+    pooled = len(w.segments) - own
+    only = w.within_only
+    lines = [f"Within segments ({columns}): {len(w.segments):,} segments, {own:,} fitted on their own records "
+             f"(at least {w.min_records:,} each)" + (f", {pooled:,} pooled (see the notices)" if pooled else ""),
+             f"  {int(only.sum()):,} record{'' if int(only.sum()) == 1 else 's'} unusual within their segment "
+             f"({columns}) but not overall; "
+             f"{int(w.flagged.sum()):,} flagged within their segment, "
+             f"{int((w.overall_flagged & ~w.flagged).sum()):,} flagged overall but ordinary within it"]
+    order = [int(i) for i in np.argsort(-w.consensus_z, kind="stable") if only[i]][:top]
+    if order:
+        lines.append(f"  {'row':>6}  {'key':<14} {'within':>7} {'overall':>7}  segment")
+        for i in order:
+            lines.append(f"  {int(result.table.row_numbers[i]):>6}  {_short(result.keys[i]):<14} "
+                         f"{w.consensus[i]:>7.3f} {result.consensus[i]:>7.3f}  {printable(w.label(i))}")
+    return lines
 
 
 def _how_scored(run, methods: list[str], heading: str) -> list[str]:

@@ -46,7 +46,7 @@ from investigator.progress import Progress, silent
 FIT_SAMPLE = 200_000
 RUN_FILE = "_run.json"  # the leading underscore makes Parquet readers skip it
 SCORES_FILE = "scores-{:05d}.parquet"  # one per partition, in partition order; our name, not the writer's default
-UNSUPPORTED = ("resamples", "digits", "round", "threshold", "duplicates", "map")
+UNSUPPORTED = ("resamples", "digits", "round", "threshold", "duplicates", "map", "within")
 
 
 @dataclass

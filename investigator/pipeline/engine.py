@@ -45,6 +45,7 @@ from investigator.pipeline.scoring import (
     reference_combined_fence,
 )
 from investigator.pipeline.stability import flag_stability
+from investigator.pipeline.within import check_within, peer_groups
 from investigator.prepare.calendar import calendar_columns
 from investigator.prepare.features import FeaturePreparer, Features, beyond_bound_notices, column_numbers
 from investigator.prepare.roles import assign_roles
@@ -58,11 +59,16 @@ from investigator.version import __version__
 
 
 def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
-             reference: Table | None = None) -> ScanResult:
+             reference: Table | None = None, *, groups: bool = True) -> ScanResult:
     """Scan ``table``; with ``reference``, fit preparation and methods on the reference and score the table's
-    records against it (novelty scoring: no record of the table is part of the fit)."""
+    records against it (novelty scoring: no record of the table is part of the fit). ``groups=False`` leaves
+    out the small groups and their cases (a segment's own scan, whose groups nobody reads; its scores and flags
+    are the same)."""
     started = datetime.now(UTC).replace(microsecond=0).isoformat()
     notices = list(table.notices)
+    original_reference = reference  # a segment's check cleans its own reference records (phase I)
+    if options.within:
+        check_within(table, options, reference)  # before the work: a bad column is reported at once
     progress("preparing features", 0.02)
     amount_numbers = _amount_columns(table, options)  # a wrong amount column stops the scan before it starts
     fit_table = reference if reference is not None else table
@@ -93,6 +99,16 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
             f"{fit_table.name}: {n} rows but {p} features; a scan needs more rows than features "
             "(leave some out with `exclude`, or add rows)", parameters=("exclude",)
         )
+    X_fit = ref_features.values
+    if not (X_fit != X_fit[0]).any():
+        # Only possible where the fit records are copies of one another on every feature (a reference whose
+        # phase I cleaning left copies): no method can rank records without two different ones.
+        raise InputError(
+            f"{fit_table.name}: every record {'left after phase I cleaning ' if reference is not None else ''}"
+            f"is alike on the features as prepared ({', '.join(ref_features.names[:5])}; a category counts by how "
+            "rare each level is, so equally common levels are alike); a scan needs at least two records that "
+            "differ" + (" (keep the others with `keep_reference_outliers`)" if reference is not None else ""),
+            parameters=("keep_reference_outliers",) if reference is not None else ())
     methods = build_methods(options, ref_features, notices)
     if reference is not None:
         methods += _reference_only_methods(options, methods)
@@ -122,9 +138,10 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     if reference is None:
         progress("groups", 0.93)
         kinds, results, combination = _kinds_of_normal(features, results, combination, options, notices)
-        grouping = find_groups(features.values, combination.flagged, seed=options.seed,
-                               kind_labels=None if kinds is None else kinds.labels)
-        notices += list(grouping.notices)
+        if groups:
+            grouping = find_groups(features.values, combination.flagged, seed=options.seed,
+                                   kind_labels=None if kinds is None else kinds.labels)
+            notices += list(grouping.notices)
         if options.map != "none":
             progress("map", 0.95)
             mapped = embed(features.values, options.map, seed=options.seed, keep=combination.flagged)
@@ -139,6 +156,12 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     hits = [numeric + timing for numeric, timing in zip(rules.hits(features), preparer.calendar_hits(table),
                                                         strict=True)]
     extras = _extras(table, options, notices, amount_numbers)
+    within = None
+    if options.within:
+        within = peer_groups(table, options, _scan_segment, overall=results, combination=combination,
+                             features=features, reference=original_reference,
+                             reference_features=ref_features if reference is not None else None, notices=notices,
+                             progress=progress)
     n_ordinary = n if reference is not None else int((~combination.flagged).sum())
     run = RunRecord(
         started=started,
@@ -162,17 +185,23 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
         screens=extras["screens"] or None,
         structure=grouping.describe() if grouping is not None else None,
         map=MapRecord(mapped.method, dict(mapped.parameters), tuple(mapped.notices)) if mapped is not None else None,
+        within=within.describe() if within is not None else None,
     )
     progress("done", 1.0)
     result = ScanResult(table, options, columns, features, preparer, search, graph, results, combination,
                         rules, hits, run, stability, reference=reference,
                         reference_features=ref_features if reference is not None else None,
-                        out_of_spec=extras["out_of_spec"], groups=grouping, map=coords, kinds=kinds)
+                        out_of_spec=extras["out_of_spec"], groups=grouping, map=coords, kinds=kinds, within=within)
     if grouping is not None:
         from investigator.structure.cases import group_cases
 
         result.group_cases = group_cases(grouping, features, table.frame, combination.flagged, table.keys)
     return result
+
+
+def _scan_segment(table: Table, options: ScanOptions, reference: Table | None) -> ScanResult:
+    """One segment scanned as a table of its own (peer groups, pipeline/within.py)."""
+    return run_scan(table, options, reference=reference, groups=False)
 
 
 def _kinds_record(kinds: KindsOfNormal, results: dict[str, MethodResult]) -> KindsRecord:
@@ -300,7 +329,8 @@ def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanRes
 
     Options are those of ``investigator scan``: ``id``, ``features``, ``exclude``, ``methods``, ``log``,
     ``cutoff``, ``contamination``, ``seed``, ``sheet``, ``decimal``, ``header_row``, ``exact``, ``resamples``,
-    ``digits``, ``threshold``, ``round``, ``duplicates``, ``limits``. When a review store exists (``store``, or
+    ``digits``, ``threshold``, ``round``, ``duplicates``, ``limits``, ``within`` (peer
+    groups: also score every record against its segment, pipeline/within.py). When a review store exists (``store``, or
     ``<data>.investigation.sqlite`` beside a data file), each record also gets its current verdict and note.
     Raises :class:`InputError` on bad input.
     """

@@ -62,6 +62,7 @@ class ScanOptions:
     holidays: str | None = None  # public holidays of this country (CC or CC-SUBDIV)
     durations: tuple[tuple[str, str], ...] = ()  # (start, end) date columns: end - start in days
     dayfirst: bool | None = None  # day/month dates whose order the values cannot tell
+    within: tuple[str, ...] | None = None  # peer groups: score each record within its segment of these columns
 
     def __post_init__(self) -> None:
         set_ = object.__setattr__
@@ -70,6 +71,8 @@ class ScanOptions:
         set_(self, "duplicates", _names(self.duplicates, "duplicates"))
         set_(self, "round", _names(self.round, "round"))
         set_(self, "threshold", parse_thresholds(self.threshold))
+        within = _names(self.within, "within")
+        set_(self, "within", None if within is None else tuple(dict.fromkeys(within)))  # each column once
         if self.limits is not None:
             set_(self, "limits", str(self.limits))
         set_(self, "exclude", _names(self.exclude, "exclude"))

@@ -8,7 +8,7 @@ JSON, writing files) from :mod:`investigator.output.records`; the methods here t
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -35,6 +35,8 @@ from investigator.structure.kinds import KindCalibration, KindsOfNormal
 
 if TYPE_CHECKING:
     import pandas as pd
+
+    from investigator.pipeline.within import PeerGroups
 
 if TYPE_CHECKING:
     from investigator.structure.groups import Grouping
@@ -85,7 +87,8 @@ class ScanResult:
     ``combination`` (votes, consensus, flagged), ``rules`` and ``column_hits``, ``run`` (the run record),
     ``stability`` (with ``resamples``: the share of resampled runs that flag each record),
     ``explainer`` (explanations, built on first use) and ``cells`` (cell findings: which values of a record
-    deviate from what its other values predict; fitted on first use).
+    deviate from what its other values predict; fitted on first use); with ``within``, ``within`` (each
+    record judged within its segment: :class:`investigator.pipeline.within.PeerGroups`).
     """
 
     table: Table
@@ -110,6 +113,7 @@ class ScanResult:
     map: np.ndarray | None = None  # n x 2 map coordinates (with --map)
     group_cases: list[GroupCase] | None = None  # each small group as one case, with its profile
     kinds: KindsOfNormal | None = None  # the large clusters, each with its own fit
+    within: PeerGroups | None = None  # with ``within``: every record judged within its segment too
     explainer: Explainer = field(init=False, repr=False)
     cells: CellFinder = field(init=False, repr=False)
 
@@ -184,7 +188,11 @@ class ScanResult:
             if row_or_key is None:
                 raise TypeError("explain() needs a row or a key")
             key = row_or_key
-        return self.explainer.explain([self.position(row=row, key=key)], peers=peers)[0]
+        i = self.position(row=row, key=key)
+        explained = self.explainer.explain([i], peers=peers)[0]
+        if self.within is not None:  # peer groups: the record as its own segment judges it, too
+            explained = replace(explained, within=self.within.view(i))
+        return explained
 
     # -- serialisation (investigator.output.records) -------------------------------------------------
     def record(self, i: int) -> dict:

@@ -193,6 +193,7 @@ class RunRecord:
     reference: ReferenceRecord | None = None
     structure: dict | None = None  # the group rules' parameters, every group and large cluster, notices
     map: MapRecord | None = None
+    within: dict | None = None  # peer groups (--within): the columns, the line, every segment and where it was scored
     review_store: str | None = None
     calendar: dict | None = None  # the date columns' calendar parts, durations, working hours, holidays
 
@@ -235,6 +236,8 @@ class RunRecord:
             out["structure"] = self.structure
         if self.map is not None:
             out["map"] = self.map.to_dict()
+        if self.within is not None:
+            out["within"] = self.within
         if self.review_store is not None:
             out["review_store"] = self.review_store
         return out

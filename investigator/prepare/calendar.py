@@ -172,10 +172,10 @@ def parse_dates(values: pd.Series, column: str, table_name: str, dayfirst: bool 
                                "day/month or month/day; read as month/day (give `dayfirst` if they are day/month)")
     offsets = text.str.contains(_OFFSET, na=False)
     wall_text = text.str.replace(_OFFSET, "", regex=True)
-    wall = pd.to_datetime(wall_text, errors="coerce", format="mixed", dayfirst=dayfirst)
+    wall = _mixed(wall_text, dayfirst)
     instant = wall
     if offsets.any():
-        aware = pd.to_datetime(text.where(offsets), errors="coerce", format="mixed", dayfirst=dayfirst, utc=True)
+        aware = _mixed(text.where(offsets), dayfirst, utc=True)
         instant = aware.dt.tz_localize(None).where(offsets, wall)
         if not offsets[present].all():
             notices.append(f"column '{column}': {int(offsets.sum()):,} date-times carry a UTC offset and "
@@ -186,6 +186,18 @@ def parse_dates(values: pd.Series, column: str, table_name: str, dayfirst: bool 
         notices.append(f"column '{column}': {len(bad):,} cell{'s' if len(bad) > 1 else ''} that are not dates "
                        f"(first in row {bad[0] + 1}: '{text.iloc[bad[0]]}') treated as missing")
     return ParsedDates(wall, instant, _has_time(wall), notices)
+
+
+def _mixed(text: pd.Series, dayfirst: bool, utc: bool = False) -> pd.Series:
+    """Each value parsed by its own format; the day-first order applies to day/month dates only (the parser
+    would read an ISO 2025-03-09 as 3 September with it)."""
+    iso = text.str.match(r"^\s*\d{4}-", na=False)
+    out = pd.to_datetime(text.where(iso), errors="coerce", format="mixed", utc=utc)
+    if dayfirst and (~iso & text.notna()).any():
+        out = out.where(iso, pd.to_datetime(text.where(~iso), errors="coerce", format="mixed", dayfirst=True, utc=utc))
+    elif (~iso & text.notna()).any():
+        out = pd.to_datetime(text, errors="coerce", format="mixed", utc=utc)
+    return out
 
 
 def _has_time(wall: pd.Series) -> bool:

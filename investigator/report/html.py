@@ -22,6 +22,7 @@ from investigator.output.explanation import (
     nearest_sentence,
     pulling_text,
     typical_text,
+    within_sentence,
 )
 from investigator.output.screens import ScreenLine, amount_lines
 from investigator.output.screens import number as screen_number
@@ -90,6 +91,8 @@ def render_html(result, review: Review, *, cases: int = 50, generated: str) -> s
         ("method", "How it was scanned", _how(result)),
         ("found", "What was found", _found(result, flagged, counts)),
     ]
+    if result.within is not None:
+        sections.append(("within", "Within segments", _within(result, cases)))
     if result.group_cases:
         sections.append(("groups", "Groups", _groups(result.group_cases, review)))
     coords = _map_coordinates(result)
@@ -393,6 +396,35 @@ def _screen_records(line: ScreenLine, shown: int = SCREEN_RECORDS) -> Safe:
     note = tag("p", f"... and {more:,} more records (all in the JSON run record, run.screens.{line.kind}).") \
         if more > 0 else join([])
     return join([table(headers, rows, numeric=(1, 2)), note])
+
+
+# -- within segments (peer groups, --within) -----------------------------------------------------------------
+
+
+def _within(result, cases: int) -> Safe:
+    """The segments, where each was scored, and the records unusual within their segment but not overall, each
+    with its sentence (at most ``cases`` of them, the most unusual within their segment first)."""
+    w = result.within
+    columns = ", ".join(w.columns)
+    only = w.within_only
+    parts = [tag("p", f"Every record is also scored against the records of its own segment ({columns}): every "
+                      f"method and cutoff fitted on the segment alone (peer group analysis). A segment needs "
+                      f"{w.min_records:,} records for a fit of its own; smaller ones are judged against the nearest "
+                      f"segment or the whole table. {int(w.flagged.sum()):,} records are flagged within their "
+                      f"segment, {int(only.sum()):,} of them not overall."),
+             table(["segment", "records", "scored against", "flagged within", "within only"],
+                   [[s.label, f"{s.records:,}", s.scored_against or "its own records", f"{s.flagged:,}",
+                     f"{s.flagged_within_only:,}"] for s in w.segments], numeric=(1, 3, 4))]
+    order = [int(i) for i in np.argsort(-w.consensus_z, kind="stable") if only[i]][:cases]
+    if order:
+        parts.append(tag("h3", "Unusual within their segment, not overall"))
+        rows = [[int(result.table.row_numbers[i]), result.keys[i], w.label(i), f"{w.consensus[i]:.3f}",
+                 f"{result.consensus[i]:.3f}", within_sentence(v)] for i, v in zip(order, w.views(order), strict=True)]
+        parts.append(table(["row", "key", "segment", "within", "overall", "why"], rows, numeric=(0, 3, 4), nowrap=(1,)))
+        if int(only.sum()) > len(order):
+            parts.append(tag("p", f"{int(only.sum()) - len(order):,} more are left out (--cases {cases}); the JSON "
+                                  "and CSV outputs hold within_flagged for every record.", class_="muted"))
+    return join(parts)
 
 
 # -- groups and map (present when the result has them) -------------------------------------------------------

@@ -640,3 +640,13 @@ def test_error_naming_a_column_with_a_line_break_stays_on_one_line(tmp_path, cap
     assert main(["scan", str(path), "--log", "a\nb"]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "Traceback" not in err
+
+
+def test_records_alike_once_prepared_are_one_line(tmp_path, capsys):
+    # Two categories whose levels are equally common: every level's rarity is 0, so every record is the same
+    # point to the methods (found by the property test; it was an internal error, exit 1).
+    path = tmp_path / "alike.csv"
+    path.write_text("c,d\n" + "a,x\nb,y\n" * 10)
+    assert main(["scan", str(path), "--quiet"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "every record is alike on the features as prepared (c, d;" in err and "\n" not in err

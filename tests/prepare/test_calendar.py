@@ -110,6 +110,8 @@ def test_month_end_is_a_hit_where_postings_come_early_in_the_month():
     result = investigator.scan(frame, options=investigator.ScanOptions(id="entry"))
     hit = {i for i in range(len(frame)) if any(h["rule"] == "month end" for h in result.column_hits[i])}
     assert hit == set(planted)
+    text = explanation_text(result.explain(row=6))
+    assert "posted_at: month end (on Friday 2025-01-31, the last working day of the month: 3 records on" in text
     # A ledger posted on every working day has no month-end hits.
     plain = investigator.scan(ledger(), options=investigator.ScanOptions(id="entry"))
     assert not [h for hits in plain.column_hits for h in hits if h["rule"] == "month end"]
@@ -249,3 +251,11 @@ def test_the_summary_names_the_timing(planted_ledger):
     _, result = planted_ledger
     lines = [line for line in result.summary().splitlines() if "JE-00010" in line]
     assert lines and lines[0].endswith("| posted_at weekend")
+
+
+def test_mixed_date_formats_in_one_column_are_read():
+    # ISO dates beside day/month dates with a day above 12 (so their order is known) and dotted ones.
+    parsed = parse_dates(pd.Series(["2025-03-09", "13/03/2025", "14.03.2025", "2025-03-15 08:30"]), "d", "t.csv")
+    assert [str(x) for x in parsed.wall] == ["2025-03-09 00:00:00", "2025-03-13 00:00:00", "2025-03-14 00:00:00",
+                                             "2025-03-15 08:30:00"]
+    assert parsed.notices == [] and parsed.has_time

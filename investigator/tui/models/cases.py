@@ -56,6 +56,9 @@ class CasesData:
     verdicts: np.ndarray = field(default=None)  # str, "" where there is none
     notes: np.ndarray = field(default=None)
     screen_marks: dict[int, list[str]] = field(default_factory=dict)  # what the amount screens say of a record
+    within: np.ndarray | None = None  # with peer groups: each record's consensus within its segment
+    within_flagged: np.ndarray | None = None
+    segment: np.ndarray | None = None  # its segment ("category = stationery")
     _lower_keys: np.ndarray | None = None
 
     @property
@@ -67,8 +70,8 @@ class CasesData:
         return len(self.keys)
 
     def sorts(self) -> list[str]:
-        return ["consensus", "votes", *self.methods, *(["pattern"] if self.pattern is not None else []),
-                "verdict", "key"]
+        return ["consensus", *(["within"] if self.within is not None else []), "votes", *self.methods,
+                *(["pattern"] if self.pattern is not None else []), "verdict", "key"]
 
     def set_verdicts(self, verdicts, notes) -> None:
         self.verdicts = np.array([v or "" for v in verdicts], dtype=object) if verdicts is not None else \
@@ -93,6 +96,8 @@ class CasesData:
         rank[self.ranking] = np.arange(self.n)  # ties in any sort keep the consensus order
         if sort == "votes":
             primary = -self.votes
+        elif sort == "within" and self.within is not None:
+            primary = -self.within
         elif sort in self.scores:
             primary = -np.nan_to_num(self.scores[sort], nan=-np.inf)
         elif sort == "pattern" and self.pattern is not None:
@@ -146,5 +151,10 @@ def cases_data(result) -> CasesData:
         rank=np.asarray(result.rank), reason=np.asarray(result.flag_reason, dtype=object),
         screen_marks=screen_marks(result.run.screens),
     )
+    within = getattr(result, "within", None)
+    if within is not None:  # peer groups: the record as its own segment judges it
+        data.within = np.asarray(within.consensus, dtype=float)
+        data.within_flagged = np.asarray(within.flagged, dtype=bool)
+        data.segment = np.array([s.label for s in within.segments], dtype=object)[within.segment]
     data.set_verdicts(result.verdicts, result.notes)
     return data

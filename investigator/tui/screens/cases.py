@@ -106,9 +106,13 @@ class CasesScreen(Screen):
         flag = f"FLAG ({data.reason[p]})" if data.flagged[p] else "not flagged"
         marks = data.screen_marks.get(p)
         screens = f" Screens: {'; '.join(marks)}." if marks else ""
+        within = ""
+        if data.within is not None and data.within_flagged is not None and data.segment is not None:
+            within = (f" Within {data.segment[p]}: {'FLAG' if data.within_flagged[p] else 'not flagged'}, "
+                      f"consensus {data.within[p]:.4f}.")
         detail.update(plain(
             f"{data.keys[p]} (row {data.rows[p]}, rank {data.rank[p]:,}): {flag}, "
-            f"above the cutoff of {', '.join(which) or 'no method'}. Column hits: {hit_text}.{screens} "
+            f"above the cutoff of {', '.join(which) or 'no method'}. Column hits: {hit_text}.{within}{screens} "
             f"Verdict: {verdict}{note}"))
 
     def on_cases_table_selected(self, event: CasesTable.Selected) -> None:

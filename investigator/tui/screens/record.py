@@ -19,6 +19,7 @@ from investigator.output.explanation import (
     format_value,
     nearest_sentence,
     typical_text,
+    within_sentence,
 )
 from investigator.tui.models.record import RecordView
 from investigator.tui.plain import plain
@@ -52,6 +53,7 @@ class RecordScreen(Screen):
         yield Static("", id="record-head")
         with VerticalScroll(id="record-body", can_focus=False):
             yield Static("", id="record-headline")
+            yield Static("", id="record-within", classes="hidden")  # shown with peer groups (--within)
             yield Static("", id="record-change")
             yield Static("Why each method flags it or not", classes="section")
             yield Static("", id="record-methods")
@@ -131,6 +133,9 @@ class RecordScreen(Screen):
         self.view = view
         e = view.explanation
         self.query_one("#record-headline", Static).update(plain(view.headline))
+        within = self.query_one("#record-within", Static)
+        within.set_class(e.within is None, "hidden")
+        within.update(plain(within_sentence(e.within)) if e.within is not None else "")
         self.query_one("#record-change", Static).update(plain(_change(e)))
         self.query_one("#record-methods", Static).update(_methods(e))
         self.query_one(ContributionBars).show(e)

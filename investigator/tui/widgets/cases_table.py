@@ -133,8 +133,10 @@ class CasesTable(Widget, can_focus=True):
         d = self.data
         key_w = min(max(3, max((len(k) for k in d.keys[self.order[:200]]), default=3)), 16)
         rank_w = max(4, len(f"{len(d.keys):,}"))
-        cols = [("rank", "rank", rank_w), ("key", "key", key_w), ("flag", "flag", 4), ("consensus", "consensus", 9),
-                ("votes", "votes", 5)]
+        cols = [("rank", "rank", rank_w), ("key", "key", key_w), ("flag", "flag", 4), ("consensus", "consensus", 9)]
+        if d.within is not None:  # peer groups: consensus within the record's segment, * when flagged there
+            cols.append(("within", "within", 9))
+        cols.append(("votes", "votes", 5))
         if d.pattern is not None:
             cols.append(("pattern", "pattern", 9))
         cols.append(("verdict", "verdict", 9))
@@ -160,6 +162,8 @@ class CasesTable(Widget, can_focus=True):
             return f"{d.consensus[p]:.4f}"
         if col == "votes":
             return f"{d.votes[p]}/{len(d.methods)}"
+        if col == "within" and d.within is not None and d.within_flagged is not None:
+            return f"{d.within[p]:.4f}" + ("*" if d.within_flagged[p] else " ")
         if col == "pattern":
             return str(d.pattern[p])
         if col == "verdict":
@@ -181,7 +185,7 @@ class CasesTable(Widget, can_focus=True):
         for cid, label, w in cols:
             mark = ("▲" if self.reverse else "▼") if cid == self.sort else ""
             text = (label + mark)[:w]
-            head += (text.rjust(w) if cid in self.data.scores or cid in ("rank", "consensus", "votes")
+            head += (text.rjust(w) if cid in self.data.scores or cid in ("rank", "consensus", "within", "votes")
                      else text.ljust(w)) + " "
         out.append(head[:width].ljust(width) + "\n", style="bold underline")
         h = self._body_height()
@@ -191,7 +195,7 @@ class CasesTable(Widget, can_focus=True):
             line = "› " if here else "  "  # the cursor has a symbol too, not only reverse video
             for cid, _, w in cols:
                 text = printable(self._cell(cid, p))[:w]  # keys can hold control codes
-                line += (text.rjust(w) if cid in self.data.scores or cid in ("rank", "consensus", "votes")
+                line += (text.rjust(w) if cid in self.data.scores or cid in ("rank", "consensus", "within", "votes")
                          else text.ljust(w)) + " "
             style = "reverse" if here and self.has_focus else "bold" if here else ""
             if self.data.flagged[p] and not here:

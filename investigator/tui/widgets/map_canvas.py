@@ -49,6 +49,7 @@ class MapCanvas(Widget, can_focus=True):
         self.labels: np.ndarray | None = None
         self.flag_order: np.ndarray = np.zeros(0, dtype=int)
         self._flag_i = -1
+        self._stepped: int | None = None  # the record the last step to a flagged record chose
         self._cells: np.ndarray | None = None  # per record: (cell x, cell y, dot x, dot y)
         self._drawn_size = (0, 0)
 
@@ -74,9 +75,12 @@ class MapCanvas(Widget, can_focus=True):
         return self._cells
 
     def selected(self) -> int | None:
-        """The record nearest to the cursor cell (flagged records win ties)."""
+        """The record nearest to the cursor cell (flagged records win ties); after a step to the next flagged
+        record, that record while the cursor stays on its cell (a cell can hold several records)."""
         if self.coords is None or not len(self.coords):
             return None
+        if self._stepped is not None and self.cell_of(self._stepped) == tuple(self.cursor):
+            return self._stepped
         cells = self.cells()
         cx, cy = self.cursor
         d = (cells[:, 0] - cx) ** 2 + (2 * (cells[:, 1] - cy)) ** 2  # a cell is about twice as tall as wide
@@ -100,7 +104,11 @@ class MapCanvas(Widget, can_focus=True):
         if not len(self.flag_order):
             return
         self._flag_i = (self._flag_i + step) % len(self.flag_order)
-        self.cursor = self.cell_of(int(self.flag_order[self._flag_i]))
+        self._stepped = int(self.flag_order[self._flag_i])
+        cell = self.cell_of(self._stepped)
+        if cell == tuple(self.cursor):  # the same cell as before: no cursor change to announce the record
+            self.watch_cursor()
+        self.cursor = cell
 
     def action_open(self) -> None:
         position = self.selected()
