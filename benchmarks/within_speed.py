@@ -1,6 +1,6 @@
 """Time a scan with peer groups (``within``) beside the plain scan of the same table.
 
-    python benchmarks/within_speed.py [--sizes 50000] [--features 20] [--levels 40] [--repeat 1]
+    python benchmarks/within_speed.py [--sizes 50000] [--features 20] [--levels 40] [--repeat 1] [--date-columns 2]
 
 Data: the records of benchmarks/scan_speed.py (n x p standard normal, 1% shifted by N(0, 4^2) per feature, seed 0)
 with one more column, ``segment``, of ``levels`` values (S01, S02, ...) drawn with unequal shares (a Zipf-like
@@ -9,7 +9,9 @@ with one more column, ``segment``, of ``levels`` values (S01, S02, ...) drawn wi
 within scan is ``investigator.scan(frame, within="segment")``: the same overall scan plus one scan per segment
 above the line (pipeline/within.py) and the small segments scored against the nearest fit. Prints seconds of
 each (the median of ``--repeat`` runs), the ratio, the segments fitted on their own and pooled, and the records
-flagged overall, within their segment and within only. Figures, not a test.
+flagged overall, within their segment and within only. With ``--date-columns K``, also the within scan of the
+table with K text date-time columns added (benchmarks/scan_speed.py ``with_dates``: their calendar parts are
+features), the issue's case of two date columns and a 40-level segment column. Figures, not a test.
 """
 
 from __future__ import annotations
@@ -23,7 +25,7 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from scan_speed import make_data  # noqa: E402  (the benchmark's own data, shared)
+from scan_speed import make_data, with_dates  # noqa: E402  (the benchmark's own data, shared)
 
 
 def make_segmented(n: int, p: int, levels: int, seed: int = 0):
@@ -43,6 +45,7 @@ def main() -> None:
     parser.add_argument("--features", type=int, default=20)
     parser.add_argument("--levels", type=int, default=40)
     parser.add_argument("--repeat", type=int, default=1)
+    parser.add_argument("--date-columns", type=int, default=0)
     args = parser.parse_args()
 
     import investigator
@@ -69,6 +72,12 @@ def main() -> None:
               f"{len(w.segments) - own} pooled")
         print(f"  flagged within their segment {int(w.flagged.sum()):,}; within only {int(w.within_only.sum()):,}; "
               f"overall {int(result.flagged.sum()):,}")
+        if args.date_columns:
+            dated = with_dates(frame, args.date_columns)
+            t = time.perf_counter()
+            investigator.scan(dated, within="segment")
+            c = time.perf_counter() - t
+            print(f"  --within and {args.date_columns} date-time columns {c:7.1f} s ({c / a:.2f}x the plain scan)")
 
 
 if __name__ == "__main__":
