@@ -215,6 +215,22 @@ async def test_a_verdict_typed_in_the_ui_is_in_the_store(demo):
 
 
 @run_async
+async def test_enter_alone_records_no_verdict_on_an_unreviewed_record(demo):
+    app = demo_app(demo)
+    async with app.run_test(size=(120, 40)) as pilot:
+        await settle(app, pilot)
+        position = app.screen.query_one(CasesTable).position
+        await pilot.press("v", "enter")  # no state chosen: the dialog stays and says so
+        await settle(app, pilot)
+        assert type(app.screen).__name__ == "VerdictScreen"
+        assert "choose a state first" in screen_text(app)
+        assert not default_store_path(demo).exists() or app.cases.verdicts[position] is None
+        await pilot.press("b", "enter")
+        await settle(app, pilot)
+        assert type(app.screen).__name__ != "VerdictScreen" and app.cases.verdicts[position] == "benign"
+
+
+@run_async
 async def test_verdicts_in_the_store_show_after_a_rescan(demo):
     app = demo_app(demo)
     async with app.run_test(size=(120, 40)) as pilot:

@@ -1,4 +1,7 @@
-"""The verdict modal: a letter picks the state, then type the note; enter saves at once."""
+"""The verdict modal: a letter picks the state, then type the note; enter saves once a state is chosen.
+
+An unreviewed record starts with no state chosen, so enter alone never records a verdict nobody picked; a
+record with a verdict starts at it (enter then keeps it, with the note as edited)."""
 
 from __future__ import annotations
 
@@ -20,9 +23,9 @@ class StatePicker(Widget, can_focus=True):
 
     DEFAULT_CSS = "StatePicker { height: 1; }"
 
-    def __init__(self, state: str, **kwargs) -> None:
+    def __init__(self, state: str | None, **kwargs) -> None:
         super().__init__(**kwargs)
-        self.state = state
+        self.state = state  # None: none chosen yet
 
     def render(self) -> str:
         return "   ".join(f"{'(x)' if s == self.state else '( )'} [{k}] {s}" for k, s in LETTERS.items())
@@ -36,7 +39,9 @@ class StatePicker(Widget, can_focus=True):
             self.screen.query_one("#verdict-note", Input).focus()
         elif event.key in ("left", "right"):
             states = list(LETTERS.values())
-            self.state = states[(states.index(self.state) + (1 if event.key == "right" else -1)) % len(states)]
+            step = 1 if event.key == "right" else -1
+            at = states.index(self.state) if self.state is not None else (-1 if step == 1 else 0)
+            self.state = states[(at + step) % len(states)]
             self.refresh()
             event.stop()
         elif event.key == "enter":
@@ -55,9 +60,10 @@ class VerdictScreen(ModalScreen[tuple[str, str] | None]):
         with Vertical(id="verdict-box"):
             what = f"record {self.key} (row {self.row})" if self.row is not None else self.key
             yield Label(plain(f"Verdict on {what}; now: {self.verdict or 'none'}"))
-            yield StatePicker(self.verdict or "confirmed", id="verdict-state")
+            yield StatePicker(self.verdict, id="verdict-state")
             yield Input(value=self.note or "", placeholder="note (optional)", id="verdict-note")
-            yield Static("letter: state · type the note · enter saves · esc cancels", classes="dim")
+            yield Static("letter: state · type the note · enter saves · esc cancels", classes="dim",
+                         id="verdict-hint")
 
     def on_mount(self) -> None:
         self.query_one(StatePicker).focus()
@@ -68,7 +74,13 @@ class VerdictScreen(ModalScreen[tuple[str, str] | None]):
 
     def save(self) -> None:
         # The note box starts with the current note, so saving without touching it keeps the note.
-        self.dismiss((self.query_one(StatePicker).state, self.query_one("#verdict-note", Input).value))
+        picker = self.query_one(StatePicker)
+        if picker.state is None:
+            self.query_one("#verdict-hint", Static).update("choose a state first: o open, c confirmed, b benign, "
+                                                           "f follow-up (esc cancels)")
+            picker.focus()
+            return
+        self.dismiss((picker.state, self.query_one("#verdict-note", Input).value))
 
     def action_cancel(self) -> None:
         self.dismiss(None)
