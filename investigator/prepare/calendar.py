@@ -37,6 +37,7 @@ and the factor of 2% are our choices, not a published rule.
 from __future__ import annotations
 
 import re
+from collections import Counter
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -287,6 +288,7 @@ class Calendar:
         self.parts_ = {c: [p for p in PARTS if (p != "hour" or self.with_time_[c])
                            and (p != "holiday" or self.holiday_dates_ is not None)] for c in chosen}
         self.rules_ = {c: self._fit_rules(c, view.parts(c)) for c in chosen}
+        self.derived_names_ = frozenset(name for name, _, _ in self.derived())
         for c in chosen:
             used = ", ".join(self.parts_[c])
             self.notices_.append(f"column '{c}': dates; used through their calendar parts ({used}), not as a "
@@ -307,10 +309,8 @@ class Calendar:
         """The parts the per-column rules of numbers leave to the calendar's own rules (the hour)."""
         return frozenset(part_name(c, "hour") for c in self.columns_ if "hour" in self.parts_[c])
 
-    def derived_names(self) -> set[str]:
-        if not hasattr(self, "_names"):
-            self._names = {name for name, _, _ in self.derived()}
-        return self._names
+    def derived_names(self) -> frozenset[str]:
+        return self.derived_names_
 
     # -- values -------------------------------------------------------------------------------------------------
 
@@ -384,9 +384,10 @@ class Calendar:
             rules["weekend"] = (count, int(weekend.sum()))
         if hol is not None:
             rules["holiday"] = {}
+            on_holiday = Counter(h for h in parts.holiday if h)
             for name in sorted(set(names[names != ""])):
                 n_days = int((names == name).sum())
-                on = int(sum(1 for h in parts.holiday if h == name))
+                on = on_holiday[name]
                 if _rarely(on, n_days, per_working_day):
                     rules["holiday"][name] = (on, n_days)
         if self.with_time_[column]:
@@ -465,7 +466,12 @@ class CalendarView:
             parts = self.parts(c)
             rules = cal.rules_[c]
             per_day = rules.get("per working day", 0.0)
-            for i in np.flatnonzero(parts.weekday >= 0).tolist():
+            dated = parts.weekday >= 0
+            with np.errstate(invalid="ignore"):
+                maybe = dated & ((parts.weekday >= 5) | (parts.to_month_end == 0) | (parts.to_year_end == 0)
+                                 | (parts.hour < cal.hours[0]) | (parts.hour >= cal.hours[1])
+                                 | np.array([bool(h) for h in parts.holiday]))
+            for i in np.flatnonzero(maybe).tolist():  # only the records some rule could hit
                 day = str(parts.dates[i])
                 when = f"{WEEKDAYS[parts.weekday[i]]} {day}"
                 found = []
