@@ -6,7 +6,7 @@ import argparse
 from collections.abc import Callable
 from pathlib import Path
 
-from investigator.cli.options import add_scan_options, flag_message, scan_parameters
+from investigator.cli.options import add_column_options, add_scan_options, column_choice, flag_message, scan_parameters
 
 
 def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
@@ -18,6 +18,7 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
     add_scan_options(p)  # the same options as scan, so the same flags give the same result
     p.add_argument("--store", metavar="PATH", help="the review store (default: DATA.investigation.sqlite)")
     p.add_argument("--scan", action="store_true", help="start the scan at once instead of on the Columns screen")
+    add_column_options(p, "the Cases list shows", "the Cases list starts filtered by it (w changes it)")
     return {"open": run_open}
 
 
@@ -28,7 +29,7 @@ def run_open(args: argparse.Namespace) -> int:
     from investigator.tui.app import InvestigatorApp
 
     InvestigatorApp(args.data, scan_parameters(args), autoscan=args.scan, store=args.store,
-                    error_text=flag_message).run()
+                    error_text=flag_message, columns=column_choice(args), where=args.where).run()
     return 0
 
 

@@ -105,6 +105,58 @@ def add_output_options(p: argparse.ArgumentParser, data: str) -> None:
     p.add_argument("--quiet", action="store_true", help="no summary and no progress bar")
 
 
+WHERE_EXAMPLE = "\"amount > 5000 AND vendor = 'Q17'\""
+
+
+def add_column_options(p: argparse.ArgumentParser, what: str, where: str | None) -> None:
+    """``--columns`` / ``--no-columns``: the input columns ``what`` shows after the result columns; ``--where``
+    (unless ``where`` is None): an SQL WHERE condition on them, ``where`` saying what it filters."""
+    group = p.add_mutually_exclusive_group()
+    group.add_argument("--columns", metavar="A,B",
+                       help=f"the input columns {what} after the result columns, in this order (default: every "
+                       "input column, in file order; a column named like a result column is input.NAME)")
+    group.add_argument("--no-columns", action="store_true", help=f"leave the input columns out of {what}")
+    if where is not None:
+        p.add_argument("--where", metavar="CONDITION",
+                       help=f"{where}: an SQL WHERE condition on the result and input columns, e.g. {WHERE_EXAMPLE} "
+                       "(=, <>, <, >, AND, OR, NOT, IN, BETWEEN, LIKE, IS NULL; see docs/output.md)")
+
+
+def column_choice(args: argparse.Namespace) -> tuple[str, ...] | None:
+    """The input columns chosen with ``--columns`` (a tuple), none with ``--no-columns`` (empty), or None: all."""
+    if getattr(args, "no_columns", False):
+        return ()
+    given = getattr(args, "columns", None)
+    if given is None:
+        return None
+    names = tuple(c.strip() for c in given.split(",") if c.strip())
+    if not names:
+        raise InputError(f"--columns '{given}': give column names separated by commas, or --no-columns for none")
+    return names
+
+
+def check_where(args: argparse.Namespace) -> None:
+    """A bad ``--where`` condition is reported before any work (its columns are checked once the data is read)."""
+    if getattr(args, "where", None) is not None:
+        from investigator.output.where import parse_where  # pandas: 0.6 s, kept off `--help`
+
+        parse_where(args.where)
+
+
+def output_checks(where: str | None, columns: tuple[str, ...] | None):
+    """What to check once the data is read, before the scan: the ``--columns`` named and the columns of
+    ``--where`` are in the file (a result column of the WHERE condition is checked after the scan)."""
+    def loaded(table) -> None:
+        from investigator.output.columns import check_where_columns, choose_columns  # pandas, loaded by now
+        from investigator.output.where import parse_where
+
+        choose_columns(table, columns)
+        if where is not None:
+            check_where_columns(parse_where(where), table)
+
+    return loaded
+
+
 def scan_parameters(args: argparse.Namespace) -> dict:
     """The engine parameters (``ScanOptions`` fields) given on the command line; unset ones left out."""
     given = {

@@ -11,7 +11,15 @@ from collections.abc import Callable
 from pathlib import Path
 
 from investigator.cli.echo import echo
-from investigator.cli.options import add_scan_options, refuse_overwrite, scan_parameters
+from investigator.cli.options import (
+    add_column_options,
+    add_scan_options,
+    check_where,
+    column_choice,
+    output_checks,
+    refuse_overwrite,
+    scan_parameters,
+)
 from investigator.errors import InputError
 from investigator.progress import StderrBar
 from investigator.report import DEFAULT_CASES, check_report_path, write_report
@@ -34,6 +42,8 @@ def register(subparsers) -> dict[str, Callable[[argparse.Namespace], int]]:
                    "records with a verdict are always shown, and the cases table lists every case)")
     p.add_argument("--store", metavar="PATH",
                    help="review store to read verdicts from (default: DATA.investigation.sqlite, if it exists)")
+    add_column_options(p, "the cases table (.xlsx, .csv) shows", "the cases table (.xlsx, .csv) keeps only the "
+                       "cases for which it holds")
     return {"report": run_report}
 
 
@@ -50,10 +60,26 @@ def run_report(args: argparse.Namespace) -> int:
     if args.store is not None and not Path(args.store).is_file():
         raise InputError(f"--store {args.store}: no review store there; check the path, or leave --store out "
                          "to use the one beside the data file")
-    result = scan(args.data, options=ScanOptions(**scan_parameters(args)), progress=StderrBar(), store=args.store)
-    write_report(result, out, cases=args.cases, store=args.store)
+    columns = column_choice(args)
+    html = out.suffix.lower() in (".html", ".htm")
+    if html and (args.where is not None or columns is not None):
+        given = "--where" if args.where is not None else "--no-columns" if args.no_columns else "--columns"
+        raise InputError(f"{given} applies to the cases table (--out cases.xlsx or cases.csv); the HTML report "
+                         "shows every case")
+    check_where(args)
+    result = scan(args.data, options=ScanOptions(**scan_parameters(args)), progress=StderrBar(), store=args.store,
+                  on_load=output_checks(args.where, columns))
+    write_report(result, out, cases=args.cases, store=args.store, columns=columns, where=args.where)
     flagged = int(result.flagged.sum())
-    if out.suffix.lower() in (".html", ".htm"):
+    if args.where is not None:
+        from investigator.report.cases import build_cases, filter_cases  # loaded by write_report already
+        from investigator.report.reviews import read_review
+
+        kept = len(filter_cases(result, build_cases(result, read_review(result, args.store)), args.where))
+        echo(f"Cases table written to {out}: {kept:,} cases for which --where holds (of {flagged:,} flagged "
+             "records, plus any other record with a verdict).")
+        return 0
+    if html:
         shown = min(flagged, args.cases)
         left = f", {flagged - shown:,} left out (--cases)" if shown < flagged else ""
         echo(f"Report written to {out}: {flagged:,} flagged records, {shown:,} in detail{left}.")

@@ -9,7 +9,16 @@ from collections.abc import Callable
 from pathlib import Path
 
 from investigator.cli.echo import echo
-from investigator.cli.options import add_output_options, add_scan_options, refuse_overwrite, scan_parameters
+from investigator.cli.options import (
+    add_column_options,
+    add_output_options,
+    add_scan_options,
+    check_where,
+    column_choice,
+    output_checks,
+    refuse_overwrite,
+    scan_parameters,
+)
 from investigator.errors import InputError
 from investigator.progress import StderrBar, silent
 
@@ -23,6 +32,8 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
                       "(a folder or a quoted glob such as 'sales/*.parquet')")
     add_scan_options(scan)
     add_output_options(scan, "DATA")
+    add_column_options(scan, "a .csv or .parquet --out writes", "only the records for which it holds are written "
+                       "to --out")
     large = scan.add_argument_group("past one machine (see docs/large.md)")
     large.add_argument("--engine", choices=("memory", "dask"), default="memory",
                        help="memory (default): load everything; dask: fit on a random sample, score every "
@@ -49,6 +60,8 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
                        help="keep the reference records the robust fit flags (default: leave them out)")
     add_scan_options(check)
     add_output_options(check, "NEW")
+    add_column_options(check, "a .csv or .parquet --out writes", "only the records for which it holds are written "
+                       "to --out")
     return {"scan": run_scan, "check": run_scan}
 
 
@@ -59,39 +72,57 @@ def run_scan(args: argparse.Namespace) -> int:
     from investigator.pipeline.options import ScanOptions
 
     options = ScanOptions(**scan_parameters(args))
+    columns = column_choice(args)
     if getattr(args, "engine", "memory") == "dask":
+        if args.where is not None:
+            raise InputError("--where is not available with --engine dask; filter the results folder afterwards")
         refuse_overwrite(args, args.out, folder=True)
-        return _scan_on_dask(args, options)
+        return _scan_on_dask(args, options, columns)
     for flag in ("scheduler", "workers", "worker_memory"):
         if getattr(args, flag, None) is not None:
             raise InputError(f"--{flag.replace('_', '-')} applies to --engine dask only; add --engine dask")
+    given = "--where" if args.where is not None else "--no-columns" if args.no_columns else \
+        "--columns" if args.columns is not None else None
+    if given is not None and not args.out:
+        raise InputError(f"{given} applies to the records written with --out; add --out FILE (.csv, .parquet)")
     if args.out:
         from investigator.io.writers import check_out_path  # pandas and pyarrow: 0.6 s, see above
 
         check_out_path(Path(args.out))
+        if columns is not None and Path(args.out).suffix.lower() == ".json":
+            flag = "--no-columns" if args.no_columns else "--columns"
+            raise InputError(f"--out {args.out}: a .json result holds no input columns, so {flag} does not apply; "
+                             "write .csv or .parquet, or leave it out")
         refuse_overwrite(args, args.out)  # before any work: never over the data, the reference or the store
+    check_where(args)
     progress = silent if args.quiet else StderrBar()
+    loaded = output_checks(args.where, columns)
     if args.command == "check":
         result = check(args.data, reference=args.reference, reference_sheet=args.reference_sheet,
-                       options=options, progress=progress, store=args.store)
+                       options=options, progress=progress, store=args.store, on_load=loaded)
     else:
-        result = scan(args.data, options=options, progress=progress, store=args.store)
+        result = scan(args.data, options=options, progress=progress, store=args.store, on_load=loaded)
     if args.out:
-        result.write(args.out)
+        result.write(args.out, columns=columns, where=args.where)
     if not args.quiet:
         echo(result.summary(top=args.top))
-        if args.out:
+        if args.out and args.where is not None:
+            from investigator.output.records import where_positions  # loaded with the result already
+
+            kept = len(where_positions(result, args.where))
+            echo(f"Result written to {args.out}: {kept:,} of {result.n_records:,} records (those --where holds for)")
+        elif args.out:
             echo(f"Result written to {args.out}")
     return 0
 
 
-def _scan_on_dask(args: argparse.Namespace, options) -> int:
+def _scan_on_dask(args: argparse.Namespace, options, columns=None) -> int:
     from investigator.pipeline.dask_engine import scan_dataset  # Dask's import: deferred as the engine's
 
     if args.store:
         raise InputError("--store is not available with --engine dask; verdicts are recorded on in-memory scans")
     result = scan_dataset(args.data, options, out=args.out, scheduler=args.scheduler, fit_sample=args.fit_sample,
-                          workers=args.workers, worker_memory=args.worker_memory, top=args.top,
+                          workers=args.workers, worker_memory=args.worker_memory, top=args.top, columns=columns,
                           progress=silent if args.quiet else StderrBar())
     if not args.quiet:
         echo(result.summary())

@@ -13,8 +13,11 @@ Frozen, so an explanation computed once can be handed to any thread; numbers are
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
-from investigator.explain.cells import CellFinding
+if TYPE_CHECKING:  # for annotations only: the cell finder imports SciPy and pandas (1.8 s), which the
+    # workspace's first frame and `investigator --help` must not wait for
+    from investigator.explain.cells import CellFinding
 
 
 @dataclass(frozen=True, slots=True)

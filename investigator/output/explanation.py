@@ -7,7 +7,8 @@ for the report and the cases table, which escape for their own formats.
 
 from __future__ import annotations
 
-from investigator.explain.cells import CellFinding
+from typing import TYPE_CHECKING
+
 from investigator.explain.explanation import (
     WHOLE_TABLE,
     Explanation,
@@ -18,6 +19,10 @@ from investigator.explain.explanation import (
     WithinSegment,
 )
 from investigator.printable import printable
+
+if TYPE_CHECKING:  # for annotations only: the cell finder imports SciPy and pandas (1.8 s), which the
+    # workspace's first frame and `investigator --help` must not wait for
+    from investigator.explain.cells import CellFinding
 
 # How often a flag recurs over resampled runs (--resamples) for it to be called stable or unstable.
 STABLE = 0.9

@@ -7,16 +7,21 @@ This layer works on the result it is given (``ScanResult``, which hands its ``re
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
 
+from investigator.errors import InputError
 from investigator.explain.cells import cells_text
 from investigator.explain.explanation import Explanation
 from investigator.io.output_files import atomic_output, check_not_input
 from investigator.io.writers import check_out_path, safe_frame, to_json_text
+from investigator.output.columns import choose_columns, filter_frame, input_frame
+from investigator.output.where import Condition, parse_where, where_mask
+from investigator.prepare.roles import DATE
 
 if TYPE_CHECKING:
     from investigator.pipeline.result import ScanResult
@@ -79,9 +84,17 @@ def records(result: ScanResult) -> list[dict]:
     return [record(result, i, explained.get(i)) for i in range(result.n_records)]
 
 
-def to_frame(result: ScanResult) -> pd.DataFrame:
+def to_frame(result: ScanResult, columns: Sequence[str] | str | None = None) -> pd.DataFrame:
     """One row per record: row, key, rank, consensus, consensus_z, votes, flagged, flag_reason,
-    score_<method>, flag_<method>, ..."""
+    score_<method>, flag_<method>, ..., then the input columns (``columns``: all when None, none when empty,
+    or those named; see :mod:`investigator.output.columns`)."""
+    frame = result_frame(result)
+    inputs = input_frame(result.table, columns)
+    return pd.concat([frame, inputs], axis=1) if len(inputs.columns) else frame
+
+
+def result_frame(result: ScanResult) -> pd.DataFrame:
+    """The result columns of :func:`to_frame`, without the input columns."""
     results = result.method_results
     out = {
         "row": result.table.row_numbers,
@@ -138,19 +151,49 @@ def to_dict(result: ScanResult) -> dict:
     return out
 
 
-def write_result(result: ScanResult, path: Path) -> Path:
-    """Write ``result`` to ``path``; the format follows the extension (.json, .csv, .parquet)."""
+def write_result(result: ScanResult, path: Path, *, columns: Sequence[str] | str | None = None,
+                 where: str | None = None) -> Path:
+    """Write ``result`` to ``path``; the format follows the extension (.json, .csv, .parquet). ``columns``: the
+    input columns of a .csv or .parquet result (all by default; empty for none; a .json result holds none);
+    ``where``: an SQL WHERE condition on the CSV's columns (every input column included): only the records it
+    holds for are written (:mod:`investigator.output.where`)."""
     check_out_path(path)
     check_not_input(path, result_inputs(result), parameter="path")
     suffix = path.suffix.lower()
+    if suffix == ".json" and columns is not None:
+        raise InputError(f"path={path}: `columns` chooses the input columns of a .csv or .parquet result; a .json "
+                         "result holds none (leave `columns` out, or write .csv)", parameters=("path", "columns"))
+    condition = parse_where(where) if where is not None else None  # a bad condition stops before any work
+    if condition is not None:
+        choose_columns(result.table, columns)  # so does an unknown column
+    keep = where_positions(result, condition) if condition is not None else None
     with atomic_output(path, parameter="path") as tmp:  # never a half-written output under the real name
         if suffix == ".json":
-            tmp.write_text(to_json_text(to_dict(result)), encoding="utf-8")
-        elif suffix == ".csv":
-            safe_frame(_key_as_text(to_frame(result))).to_csv(tmp, index=False, lineterminator="\n")
+            document = to_dict(result)
+            if keep is not None:
+                document["records"] = [document["records"][i] for i in keep]
+            tmp.write_text(to_json_text(document), encoding="utf-8")
         else:
-            _key_as_text(to_frame(result)).to_parquet(tmp, index=False)
+            frame = to_frame(result, columns)
+            if keep is not None:
+                frame = frame.iloc[keep].reset_index(drop=True)
+            if suffix == ".csv":
+                safe_frame(_key_as_text(frame)).to_csv(tmp, index=False, lineterminator="\n")
+            else:
+                _key_as_text(frame).to_parquet(tmp, index=False)
     return path
+
+
+def where_positions(result: ScanResult, condition: str | Condition) -> np.ndarray:
+    """The 0-based positions of the records for which ``condition`` (an SQL WHERE condition on the CSV's
+    columns, every input column included; the scan's date columns compared as dates) holds."""
+    frame = filter_frame(to_frame(result), result.table, date_columns(result), result.options.dayfirst)
+    return np.flatnonzero(where_mask(frame, condition))
+
+
+def date_columns(result: ScanResult) -> list[str]:
+    """The input columns the scan found (or was told) to hold dates."""
+    return [c.name for c in result.columns if c.role == DATE and not c.source]
 
 
 def result_inputs(result: ScanResult) -> list[tuple[str, str | None]]:

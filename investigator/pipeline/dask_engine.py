@@ -37,6 +37,7 @@ from investigator.errors import InputError
 from investigator.io.datasets import PARQUET_SUFFIXES, is_dataset, parquet_files
 from investigator.io.output_files import check_not_input, part_path, remove, write_error
 from investigator.io.tables import MIN_ROWS, Source, Table, read_parquet_schema
+from investigator.output.columns import choose_columns
 from investigator.output.summary import dataset_summary_text
 from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.run_record import DatasetRunRecord, InputRecord, SampleFit
@@ -168,22 +169,24 @@ def _take(frame: pd.DataFrame, picks: list[np.ndarray], partition_info=None) -> 
     return frame.iloc[picks[partition_info["number"]]]
 
 
-def _score(frame: pd.DataFrame, model, offsets: list[int], meta: pd.DataFrame, partition_info=None):
+def _score(frame: pd.DataFrame, model, offsets: list[int], meta: pd.DataFrame, columns, partition_info=None):
     if len(frame) == 0:  # an empty file is a partition with nothing to score
         return meta.copy()
-    out = model.score_frame(frame, offsets[partition_info["number"]])
+    out = model.score_frame(frame, offsets[partition_info["number"]], columns)
     return out.astype(meta.dtypes.to_dict())
 
 
 def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: str | None = None,
                  fit_sample: int = FIT_SAMPLE, workers: int | None = None, worker_memory: str | None = None,
-                 top: int = 10, progress: Progress = silent, client=None, **option_values) -> DatasetScan:
+                 top: int = 10, progress: Progress = silent, client=None, columns=None,
+                 **option_values) -> DatasetScan:
     """Scan the Parquet dataset ``data`` (folder or glob) on Dask and write the results to the folder ``out``.
 
     Scan options come as ``options=ScanOptions(...)`` or as keywords (``id``, ``methods``, ``cutoff``, ...).
     ``scheduler``: address of an existing cluster (default: a LocalCluster for the run). ``client``: an
     existing ``distributed.Client`` to use instead (then ``scheduler``, ``workers`` and ``worker_memory`` are
-    ignored). Raises :class:`InputError` on bad input; nothing is written then.
+    ignored). ``columns``: the input columns written after the result columns (all by default, ``()`` for
+    none, or those named). Raises :class:`InputError` on bad input; nothing is written then.
     """
     if options is None:
         options = ScanOptions(**option_values)
@@ -204,6 +207,8 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
     if options.id is not None and options.id not in ddf.columns:
         raise InputError(f"{data}: `id` column '{options.id}' not found; columns are: "
                          f"{', '.join(map(str, ddf.columns[:12]))}", parameters=("id",))
+    if columns is not None:  # an unknown input column stops the run before the cluster starts
+        choose_columns(Table(ddf._meta, Source(str(data), "parquet dataset")), columns)
     own = client is None
     if own:
         client, cluster_info = connect(scheduler, workers, worker_memory)
@@ -229,10 +234,10 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
         progress("fitting on the sample", 0.1)
         model = ScanModel.fit(sample, options)
         # The output's columns and types, from a few sample records (their row numbers do not matter here).
-        meta = model.score_frame(frame.iloc[:50], int(rows[0]) - 1).iloc[:0]
+        meta = model.score_frame(frame.iloc[:50], int(rows[0]) - 1, columns).iloc[:0]
         progress("scoring the partitions", 0.4)
         shared = client.scatter(model, broadcast=True)
-        scored = ddf.map_partitions(_score, shared, offsets, meta, meta=meta).to_delayed()
+        scored = ddf.map_partitions(_score, shared, offsets, meta, columns, meta=meta).to_delayed()
         tmp = part_path(out)
         remove(tmp)  # left by a killed run
         try:
@@ -241,8 +246,8 @@ def scan_dataset(data, options: ScanOptions | None = None, *, out, scheduler: st
             raise write_error(out, exc, "out") from None
         # One task per partition scores it, writes its file and returns its counts and top records, so the
         # results are read once and progress can be shown partition by partition.
-        columns = ["row", "key", "consensus", "consensus_z", "votes", "top_features"]
-        writes = [delayed(_write_part)(part, str(tmp / SCORES_FILE.format(i)), list(model.fitted_methods), columns, top)
+        listed = ["row", "key", "consensus", "consensus_z", "votes", "top_features"]
+        writes = [delayed(_write_part)(part, str(tmp / SCORES_FILE.format(i)), list(model.fitted_methods), listed, top)
                   for i, part in enumerate(scored)]
         summaries = []
         try:

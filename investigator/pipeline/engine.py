@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 import platform
+from collections.abc import Callable
 from datetime import UTC, datetime
 from pathlib import Path
 
@@ -324,7 +325,8 @@ def _versions() -> dict:
             "pandas": pandas.__version__, "scipy": scipy.__version__, "scikit-learn": sklearn.__version__}
 
 
-def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanResult:
+def scan(data, *, progress: Progress = silent, store=None, on_load: Callable[[Table], None] | None = None,
+         **options) -> ScanResult:
     """Scan a table (a path to CSV/TSV/Parquet/XLSX, or a pandas DataFrame) and return a ScanResult.
 
     Options are those of ``investigator scan``: ``id``, ``features``, ``exclude``, ``methods``, ``log``,
@@ -332,7 +334,8 @@ def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanRes
     ``digits``, ``threshold``, ``round``, ``duplicates``, ``limits``, ``within`` (peer
     groups: also score every record against its segment, pipeline/within.py). When a review store exists (``store``, or
     ``<data>.investigation.sqlite`` beside a data file), each record also gets its current verdict and note.
-    Raises :class:`InputError` on bad input.
+    ``on_load``: called with the loaded table before any work on it (the commands check their output options
+    there, so that a wrong column name costs no scan). Raises :class:`InputError` on bad input.
     """
     opts = options.pop("options", None)
     if opts is None:
@@ -340,6 +343,8 @@ def scan(data, *, progress: Progress = silent, store=None, **options) -> ScanRes
     elif options:
         raise TypeError("give either options=ScanOptions(...) or keyword options, not both")
     table = load_table(data, sheet=opts.sheet, id_column=opts.id, decimal=opts.decimal, header_row=opts.header_row)
+    if on_load is not None:
+        on_load(table)
     return attach_verdicts(run_scan(table, opts, progress), data, store)
 
 
@@ -360,13 +365,13 @@ def attach_verdicts(result: ScanResult, data, store=None) -> ScanResult:
 
 
 def check(data, *, reference, progress: Progress = silent, reference_sheet: str | None = None,
-          store=None, **options) -> ScanResult:
+          store=None, on_load: Callable[[Table], None] | None = None, **options) -> ScanResult:
     """Score the records of ``data`` against a trusted ``reference`` table (paths or DataFrames).
 
     Preparation and every method are fitted on the reference only, after phase I cleaning (records the
     robust fit flags in the reference are excluded unless ``keep_reference_outliers=True``); the records of
     ``data`` are scored against it. Same options as :func:`scan`; the result has the same contract, with
-    ``run.reference`` describing the reference.
+    ``run.reference`` describing the reference; ``on_load`` is called with the loaded ``data`` as in :func:`scan`.
     """
     opts = options.pop("options", None)
     if opts is None:
@@ -377,4 +382,6 @@ def check(data, *, reference, progress: Progress = silent, reference_sheet: str 
     ref = load_table(reference, sheet=reference_sheet, id_column=opts.id, decimal=opts.decimal)
     table = load_table(data, sheet=opts.sheet, id_column=opts.id, min_rows=1, decimal=opts.decimal,
                        header_row=opts.header_row)
+    if on_load is not None:
+        on_load(table)
     return attach_verdicts(run_scan(table, opts, progress, reference=ref), data, store)

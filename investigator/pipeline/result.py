@@ -8,6 +8,7 @@ JSON, writing files) from :mod:`investigator.output.records`; the methods here t
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -206,11 +207,12 @@ class ScanResult:
 
         return records(self)
 
-    def to_frame(self) -> pd.DataFrame:
-        """One row per record, the CSV/Parquet columns (docs/output.md)."""
+    def to_frame(self, columns: Sequence[str] | str | None = None) -> pd.DataFrame:
+        """One row per record, the CSV/Parquet columns (docs/output.md): the result columns, then the input
+        columns (``columns``: all by default, ``()`` for none, or those named)."""
         from investigator.output.records import to_frame
 
-        return to_frame(self)
+        return to_frame(self, columns)
 
     def to_dict(self) -> dict:
         """The JSON output: run record, records and groups."""
@@ -218,9 +220,13 @@ class ScanResult:
 
         return to_dict(self)
 
-    def write(self, path: str | Path) -> Path:
-        """Write the result; the format follows the extension (.json, .csv, .parquet)."""
-        return write_result(self, Path(path))
+    def write(self, path: str | Path, *, columns: Sequence[str] | str | None = None,
+              where: str | None = None) -> Path:
+        """Write the result; the format follows the extension (.json, .csv, .parquet). ``columns``: the input
+        columns after the result columns of .csv and .parquet (all by default, ``()`` for none); ``where``: an
+        SQL WHERE condition on those columns, ``"amount > 5000 AND vendor = 'Q17'"``: only the records it
+        holds for are written."""
+        return write_result(self, Path(path), columns=columns, where=where)
 
     def summary(self, top: int = 10) -> str:
         return summary_text(self, top=top)

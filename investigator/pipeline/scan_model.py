@@ -141,11 +141,12 @@ class ScanModel:
         return [numeric + timing for numeric, timing in zip(self.rules.hits(features),
                                                             self.preparer.calendar_hits(table), strict=True)]
 
-    def score_frame(self, frame: pd.DataFrame, first_row: int) -> pd.DataFrame:
-        """One output row per record (the columns of :meth:`ScanResult.to_frame`; ``rank`` is left out, since
-        a partition cannot know the other partitions' records: order by ``consensus_z``)."""
+    def score_frame(self, frame: pd.DataFrame, first_row: int, columns=None) -> pd.DataFrame:
+        """One output row per record (the columns of :meth:`ScanResult.to_frame`, the input ``columns`` included;
+        ``rank`` is left out, since a partition cannot know the other partitions' records: order by
+        ``consensus_z``)."""
         result = self.score(frame, first_row)
-        out = result.to_frame().drop(columns=["rank"])
+        out = result.to_frame(columns).drop(columns=["rank"])
         if self.key_column is not None and not pd.api.types.is_integer_dtype(out["key"]):
             out["key"] = out["key"].astype(str)
         return out

@@ -30,14 +30,20 @@ def check_report_path(path: Path) -> None:
         raise InputError(f"out={path}: is a folder; give a file name such as report.html", parameters=("out",))
 
 
+def suffix_html(path: Path) -> bool:
+    return path.suffix.lower() in (".html", ".htm")
+
+
 def write_report(result, out: str | Path, *, cases: int = DEFAULT_CASES, store: str | Path | None = None,
-                 generated: str | None = None) -> Path:
+                 generated: str | None = None, columns=None, where: str | None = None) -> Path:
     """Write the report of ``result``; the format follows the extension of ``out``.
 
     ``cases``: flagged records explained in detail in HTML (the spreadsheet always has every case).
     ``store``: the review store to read (default: the one the scan read, or the one beside the data file).
     ``generated``: the generation time to print (default: now, UTC), the only line that differs between
-    two reports of the same scan.
+    two reports of the same scan. For the cases table (.xlsx, .csv) only: ``columns``, the record's input
+    columns after the result columns (all by default, empty for none, or those named), and ``where``, an SQL
+    WHERE condition on the table's columns (``"amount > 5000 AND vendor = 'Q17'"``): only the cases it holds for.
     """
     # Deferred, here and below: the report's modules import pandas and matplotlib (0.6 s and 0.5 s more), and
     # the CLI imports this package (check_report_path) for `investigator --help` (0.1 s).
@@ -48,6 +54,18 @@ def write_report(result, out: str | Path, *, cases: int = DEFAULT_CASES, store: 
     if cases < 0:
         raise InputError(f"cases={cases}: give 0 or more (the number of cases explained in detail)",
                          parameters=("cases",))
+    if suffix_html(path) and (columns is not None or where is not None):
+        given = "columns" if columns is not None else "where"
+        raise InputError(f"`{given}` applies to the cases table (out=cases.xlsx or cases.csv); the HTML report "
+                         "shows every case as it is", parameters=(given, "out"))
+    if where is not None or columns is not None:
+        # Deferred as below: the output layer imports pandas (0.6 s).
+        from investigator.output.columns import choose_columns
+        from investigator.output.where import parse_where
+
+        if where is not None:
+            parse_where(where)  # a bad condition, or an unknown column, stops before any writing
+        choose_columns(result.table, columns)
     review = read_review(result, store)
     # Deferred as above: the output layer, which lists a scan's inputs, imports pandas (0.6 s).
     from investigator.output.records import result_inputs
@@ -61,10 +79,13 @@ def write_report(result, out: str | Path, *, cases: int = DEFAULT_CASES, store: 
             when = generated or datetime.now(UTC).replace(microsecond=0).isoformat()
             tmp.write_text(render_html(result, review, cases=cases, generated=when), encoding="utf-8")
         else:
-            from investigator.report.cases import build_cases, table_rows
+            from investigator.report.cases import build_cases, filter_cases, table_rows
             from investigator.report.sheet import write_csv, write_xlsx
 
-            headers, rows = table_rows(result, build_cases(result, review))
+            chosen = build_cases(result, review)
+            if where is not None:
+                chosen = filter_cases(result, chosen, where)
+            headers, rows = table_rows(result, chosen, columns)
             (write_csv if suffix == ".csv" else write_xlsx)(tmp, headers, rows)
     return path
 

@@ -5,9 +5,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import pandas as pd
+
 from investigator.explain.explanation import Explanation, NearestOrdinary
 from investigator.explain.view import top_features_text
+from investigator.output.columns import filter_frame, input_frame, written
 from investigator.output.explanation import cell_sentence, column_hit_text, format_value
+from investigator.output.records import date_columns
+from investigator.output.where import where_mask
 
 
 @dataclass
@@ -73,8 +78,34 @@ def top_text(explanation: Explanation, limit: int = 5) -> str:
     return top_features_text(explanation, limit=limit)
 
 
-def table_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
-    """The cases table: headers and one row per case (numbers as numbers, text as text)."""
+def table_rows(result, cases: list[Case], columns=None) -> tuple[list[str], list[list]]:
+    """The cases table: headers and one row per case (numbers as numbers, text as text), the result columns
+    first, then the record's input columns (``columns``: all by default, empty for none, or those named)."""
+    headers, rows = result_rows(result, cases)
+    inputs = input_frame(result.table, columns)
+    if not len(inputs.columns):
+        return headers, rows
+    at = [c.position for c in cases]
+    values = [_cells(inputs[name].iloc[at]) for name in inputs.columns]
+    return headers + list(inputs.columns), [row + [v[n] for v in values] for n, row in enumerate(rows)]
+
+
+def filter_cases(result, cases: list[Case], where) -> list[Case]:
+    """The cases for which the SQL WHERE condition ``where`` holds, on the cases table's columns (every input
+    column included; the scan's date columns compared as dates)."""
+    headers, rows = result_rows(result, cases)
+    at = [c.position for c in cases]
+    own = pd.DataFrame({h: written(pd.Series([r[j] for r in rows], dtype=object)) for j, h in enumerate(headers)},
+                       index=range(len(cases)))
+    inputs = input_frame(result.table).iloc[at].reset_index(drop=True)
+    frame = filter_frame(pd.concat([own, inputs], axis=1), result.table, date_columns(result),
+                         result.options.dayfirst, positions=at)
+    keep = where_mask(frame, where)
+    return [c for c, k in zip(cases, keep, strict=True) if k]
+
+
+def result_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
+    """The result columns of the cases table: headers and one row per case."""
     methods = list(result.method_results)
     extra = [k for k in ("stability", "pattern", "group") if any(k in c.record for c in cases)]
     headers = (["case", "rank", "row", "key", "consensus", "consensus_z", "votes", "flagged", "flag_reason"]
@@ -97,6 +128,25 @@ def table_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
                (m.changed if m is not None else None)]
         )
     return headers, rows
+
+
+def _cells(values: pd.Series) -> list:
+    """One input column's cells as a spreadsheet takes them: missing as empty, numpy scalars as Python values,
+    dates as dates (with their times where the column has any; with a time zone as ISO text)."""
+    if pd.api.types.is_datetime64_any_dtype(values.dtype):
+        stamps = values
+        if getattr(stamps.dt, "tz", None) is not None:
+            return [None if pd.isna(v) else v.isoformat() for v in stamps]
+        timed = bool((stamps.dropna() != stamps.dropna().dt.normalize()).any())
+        return [None if pd.isna(v) else v.to_pydatetime() if timed else v.date() for v in stamps]
+    return [None if _missing(v) else _plain(v) for v in values.tolist()]
+
+
+def _missing(value) -> bool:
+    try:
+        return bool(pd.isna(value))
+    except (TypeError, ValueError):
+        return False
 
 
 def _plain(value):

@@ -22,6 +22,7 @@ from investigator.tui.models.columns import ColumnChoices
 from investigator.tui.models.map import group_labels, map_coords
 from investigator.tui.models.record import ViewCache
 from investigator.tui.screens.cases import CasesScreen
+from investigator.tui.screens.column_chooser import ColumnChooser
 from investigator.tui.screens.columns import ColumnsScreen
 from investigator.tui.screens.group import GroupScreen
 from investigator.tui.screens.help import HelpScreen
@@ -61,12 +62,17 @@ class InvestigatorApp(App):
     map_points = reactive(None, always_update=True)   # (coords, source)
 
     def __init__(self, path: str | Path, options=None, *, autoscan: bool = False, store=None,
-                 show_hint: bool | None = None, error_text: Callable[[InputError], str] = str) -> None:
+                 show_hint: bool | None = None, error_text: Callable[[InputError], str] = str,
+                 columns=None, where: str | None = None) -> None:
         """``options``: a ScanOptions, or a dict of its fields (validated in the load worker, so a bad option
         shows as a one-line error in the UI and the first frame does not wait for the engine's imports).
         ``error_text``: the line shown for an InputError (``investigator open`` passes the one that speaks of
-        its flags; by default the message as the API gives it)."""
+        its flags; by default the message as the API gives it). ``columns``: the input columns Cases shows at
+        first (None: all, empty: none); ``where``: the SQL WHERE condition Cases starts filtered by (both
+        checked in the load worker)."""
         super().__init__()
+        self.case_columns = tuple(columns) if columns is not None else None
+        self.case_where = where
         self.error_text = error_text
         self.path = Path(path)
         self.base_options = options
@@ -90,8 +96,8 @@ class InvestigatorApp(App):
         self.path = Path(path)
         self.sub_title = printable(self.path.name)  # the name only: fits 80 columns
         self.load_error = None
-        options = self.base_options
-        self.run_worker(lambda: jobs.load(self.path, options), thread=True, name="load",
+        options, columns, where = self.base_options, self.case_columns, self.case_where
+        self.run_worker(lambda: jobs.load(self.path, options, columns, where), thread=True, name="load",
                         group="load", exclusive=True, exit_on_error=False)
 
     def _options_base(self):
@@ -285,7 +291,8 @@ class InvestigatorApp(App):
     def action_help(self) -> None:
         self.push_screen(HelpScreen({
             "Everywhere": self.BINDINGS, "Columns": ColumnsScreen.BINDINGS,
-            "Cases": CasesTable.BINDINGS + CasesScreen.BINDINGS, "Record": RecordScreen.BINDINGS,
+            "Cases": CasesTable.BINDINGS + CasesScreen.BINDINGS, "Column chooser (c in Cases)": ColumnChooser.BINDINGS,
+            "Record": RecordScreen.BINDINGS,
             "Map": MapCanvas.BINDINGS + MapScreen.BINDINGS, "Group": GroupScreen.BINDINGS,
             "Verdict": VerdictScreen.BINDINGS, "Screens": ScreensScreen.BINDINGS,
         }))

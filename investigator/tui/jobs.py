@@ -32,9 +32,11 @@ class Loaded:
     options: object  # the ScanOptions the file was read with
 
 
-def load(path: str | Path, options) -> Loaded:
+def load(path: str | Path, options, columns=None, where: str | None = None) -> Loaded:
     """Read the table and infer the roles. ``options`` is a ScanOptions or a dict of its fields: building
-    it here keeps the options module (which imports the methods, hence SciPy) off the first frame."""
+    it here keeps the options module (which imports the methods, hence SciPy) off the first frame.
+    ``columns`` (the input columns Cases shows) and ``where`` (its first filter) are checked against the
+    table here, so a wrong name is a one-line error before any scan."""
     # Deferred: these run in a worker thread, and at the top they would hold up the first frame: the options
     # import the methods (SciPy), 1.7 s, and the table reader pandas, 0.6 s (`python -c "import X"` here).
     from investigator.io.tables import load_table
@@ -45,8 +47,15 @@ def load(path: str | Path, options) -> Loaded:
         options = ScanOptions(**(options or {}))
     table = load_table(path, sheet=options.sheet, id_column=options.id, decimal=options.decimal,
                        header_row=options.header_row)
-    columns = assign_roles(table, options.features, options.exclude)
-    return Loaded(table, column_rows(table, columns), options)
+    if columns is not None or where is not None:
+        from investigator.output.columns import check_where_columns, choose_columns  # with pandas: loaded here
+        from investigator.output.where import parse_where
+
+        choose_columns(table, columns)
+        if where is not None:
+            check_where_columns(parse_where(where), table)
+    roles = assign_roles(table, options.features, options.exclude)
+    return Loaded(table, column_rows(table, roles), options)
 
 
 class CancelToken:

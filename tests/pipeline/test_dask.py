@@ -88,6 +88,25 @@ def test_dask_equals_in_memory_with_a_key_categories_gaps_and_contamination(tmp_
     assert int(memory.flagged.sum()) == 60
 
 
+def test_dask_results_carry_the_chosen_input_columns(tmp_path, client):
+    frame, _ = planted_outliers(2_000, 4, seed=15)
+    frame.insert(0, "rank", np.arange(2_000) % 7)  # named like a result column: input.rank
+    frame["memo"] = np.where(np.arange(2_000) % 5 == 0, "=SUM(A1:A9)", "ok")
+    data = _write_parts(tmp_path / "ds", frame, 4)
+    scan_dataset(data, out=tmp_path / "all", client=client)
+    got = _read(tmp_path / "all")
+    assert list(got.columns[-len(frame.columns):]) == ["input.rank", *frame.columns[1:]]
+    np.testing.assert_array_equal(got["input.rank"], frame["rank"])
+    assert got["memo"].tolist() == frame["memo"].tolist()  # Parquet keeps the text as it is
+    scan_dataset(data, out=tmp_path / "some", client=client, columns=("memo", "f1"))
+    assert list(_read(tmp_path / "some").columns[-2:]) == ["memo", "f1"]
+    scan_dataset(data, out=tmp_path / "none", client=client, columns=())
+    assert "memo" not in _read(tmp_path / "none").columns
+    with pytest.raises(investigator.InputError, match="no column 'memoo'"):
+        scan_dataset(data, out=tmp_path / "bad", client=client, columns=("memoo",))
+    assert not (tmp_path / "bad").exists()
+
+
 def test_dask_equals_in_memory_with_a_date_column(tmp_path, client):
     # Calendar parts are computed per partition from the fitted calendar: the same features, flags and
     # calendar column hits (a Sunday and a late posting planted) as the in-memory scan.

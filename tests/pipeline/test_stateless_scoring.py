@@ -154,4 +154,8 @@ def test_the_dask_path_with_two_threads_per_worker_writes_what_the_in_memory_sca
     got = _read(tmp_path / "out")
     memory = investigator.scan(data, id=DEMO_ID).to_frame()
     assert len(got) == demo.n_rows and got["flagged"].any() and set(got.columns) < set(memory.columns)
-    pd.testing.assert_frame_equal(got, memory[got.columns], check_exact=True)
+    # The input columns hold the same values; their text is Dask's string type (missing as NA, not NaN).
+    inputs = [c for c in got.columns if c in demo.frame.columns or c.startswith("input.")]
+    assert inputs
+    pd.testing.assert_frame_equal(got.drop(columns=inputs), memory[got.columns].drop(columns=inputs), check_exact=True)
+    pd.testing.assert_frame_equal(got[inputs], memory[inputs], check_exact=True, check_dtype=False)

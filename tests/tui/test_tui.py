@@ -91,8 +91,9 @@ async def test_sorting_changes_the_visible_rows(demo):
         result = app.result
         shown = table.visible_positions()
         assert shown == list(result.ranking()[:len(shown)])  # consensus, highest first
-        await pilot.press("s")  # votes
-        await pilot.press("s")  # robust_distance
+        await pilot.press("right", "right", "right", "right")  # the column cursor: votes, pattern, verdict, robust
+        assert table.column == "robust_distance"
+        await pilot.press("s")  # sort by the column under the cursor
         assert table.sort == "robust_distance"
         by_score = table.visible_positions()
         expected = np.argsort(-result.scores("robust_distance"), kind="stable")[:len(by_score)]
@@ -102,6 +103,8 @@ async def test_sorting_changes_the_visible_rows(demo):
         low = table.visible_positions()[0]
         assert result.scores("robust_distance")[low] == result.scores("robust_distance").min()
         assert "sorted by robust_distance, lowest first" in screen_text(app)
+        await pilot.press("s")  # again: the other direction
+        assert table.visible_positions() == by_score
 
 
 @run_async

@@ -38,7 +38,7 @@ async def test_cases_show_the_within_consensus_and_the_record_its_sentence(jobs)
         assert w is not None and w.flagged[0]
         table = app.screen.query_one(CasesTable)
         header, row = table.render().plain.splitlines()[:2]
-        assert header.split()[:6] == ["rank", "key", "flag", "consensus", "within", "votes"]
+        assert [h.rstrip("▼▲") for h in header.split()[:6]] == ["rank", "key", "flag", "consensus", "within", "votes"]
         first = table.visible_positions()[0]
         assert f"{w.consensus[first]:.4f}" in row and f"{w.consensus[first]:.4f}" in screen_text(app)
         table.cursor = int(np.flatnonzero(table.order == 0)[0])

@@ -1,4 +1,5 @@
-"""Cases: the records by consensus, sortable and filterable; the start of every drill-down."""
+"""Cases: the records by consensus, sortable by any column and filterable (an SQL WHERE condition on any
+column among others); the start of every drill-down."""
 
 from __future__ import annotations
 
@@ -7,8 +8,10 @@ from textual.binding import Binding
 from textual.screen import Screen
 from textual.widgets import Footer, Header, Input, Static
 
+from investigator.errors import InputError
 from investigator.tui.models.cases import NO_VERDICT, CaseFilter
 from investigator.tui.plain import plain
+from investigator.tui.screens.column_chooser import ColumnChooser
 from investigator.tui.screens.screening import ScreensScreen
 from investigator.tui.settings import mark_hint_seen
 from investigator.tui.widgets.cases_table import CasesTable
@@ -18,8 +21,10 @@ HINT = (
     "rank: 1 = most unusual · consensus 0-1: how strongly the methods together set a record apart, 0.5 at "
     "their cutoffs · votes: methods above their cutoff; FLAG at half or more, or when one method or the "
     "methods together are far beyond · pattern: a flag alone (isolated) or in a group · "
-    "a flag is a lead, not proof · i hides this, ? all keys"
+    "a flag is a lead, not proof · ←/→ a column, s sorts by it, c chooses the columns, w filters "
+    "(amount > 5000 AND vendor = 'Q17') · i hides this, ? all keys"
 )
+WHERE_PLACEHOLDER = "SQL WHERE condition, e.g. amount > 5000 AND vendor = 'Q17' (enter applies, esc leaves)"
 VERDICT_FILTERS = (None, NO_VERDICT, "open", "confirmed", "benign", "follow-up")
 
 
@@ -28,6 +33,9 @@ class CasesScreen(Screen):
     BINDINGS = [
         Binding("s", "sort", "Sort"),
         Binding("r", "reverse", "Reverse"),
+        # Not in the footer either (it is full at 80 columns); the hint, the help and the docs list them.
+        Binding("c", "choose_columns", "Columns shown (result and input columns)", show=False),
+        Binding("w", "where", "Filter: an SQL WHERE condition on any column", show=False),
         Binding("f", "flagged", "Flagged only"),
         Binding("m", "method", "Method"),
         Binding("g", "pattern", "Isolated/group"),
@@ -47,12 +55,15 @@ class CasesScreen(Screen):
         self.sort = "consensus"
         self.reverse = False
         self.filter = CaseFilter()
+        self.applied_start = False  # the columns and filter `investigator open` was given, applied once
 
     def compose(self) -> ComposeResult:
         yield Header()
         yield Static("", id="cases-status")
         yield Static(HINT, id="hint")
         yield Input(placeholder="part of a key (enter to keep, esc to leave)", id="search", classes="hidden")
+        yield Input(placeholder=WHERE_PLACEHOLDER, id="where", classes="hidden")
+        yield Static("", id="where-error", classes="hidden")
         yield CasesTable(id="cases-table")
         yield Static("", id="cases-detail")
         yield ScanProgress()
@@ -74,23 +85,61 @@ class CasesScreen(Screen):
             self.query_one("#cases-status", Static).update("No scan yet: press 1 for the columns, then s.")
             table.refresh()
             return
+        if not self.applied_start:
+            self._apply_start(data)
         if self.sort not in data.sorts():
             self.sort = "consensus"
         if self.filter.method and self.filter.method not in data.methods:
             self.filter.method = None
-        order = data.order(self.sort, self.reverse, self.filter)
+        try:
+            order = data.order(self.sort, self.reverse, self.filter)
+        except InputError as exc:  # a WHERE condition that names a column this scan does not have
+            self._where_failed(exc)
+            self.filter.where = ""
+            order = data.order(self.sort, self.reverse, self.filter)
         table.set_rows(data, order, self.sort, self.reverse, keep=table.position if keep else None)
-        direction = "lowest first" if self.reverse else "highest first"
-        if self.sort in ("key", "pattern"):
-            direction = "Z to A" if self.reverse else "A to Z"
-        elif self.sort == "verdict":
-            direction = "undecided first" if self.reverse else "decided first"
+        direction = self._direction(data)
         screens = " · t: screens" if self.app.result is not None and self.app.result.run.screens else ""
         self.query_one("#cases-status", Static).update(
             f"{int(data.flagged.sum()):,} flagged of {data.n:,} · showing {len(order):,} "
             f"({self.filter.describe()}) · sorted by {self.sort}, {direction}{screens}")
         if not self.query_one("#search", Input).has_focus:  # typing a search keeps the focus in the box
             table.focus()
+
+    def _direction(self, data) -> str:
+        """The sort's direction in words."""
+        if self.sort in ("key", "pattern", "note"):
+            return "Z to A" if self.reverse else "A to Z"
+        if self.sort == "verdict":
+            return "undecided first" if self.reverse else "decided first"
+        if self.sort == "flag":
+            return "unflagged first" if self.reverse else "flagged first"
+        if self.sort == "rank":
+            return "least unusual first" if self.reverse else "most unusual first"
+        if data.inputs is not None and self.sort in data.inputs.names:
+            kind = data.inputs.typed[self.sort].dtype.kind
+            if kind == "M":
+                return "earliest first" if self.reverse else "latest first"
+            if not data.inputs.numeric[self.sort]:
+                return "Z to A" if self.reverse else "A to Z"
+        return "lowest first" if self.reverse else "highest first"
+
+    def _apply_start(self, data) -> None:
+        """The input columns and the filter given to `investigator open` (--columns, --no-columns, --where)."""
+        self.applied_start = True
+        start = getattr(self.app, "case_columns", None)
+        if start is not None and data.inputs is not None:
+            table = self.table
+            names = dict(zip(data.inputs.source, data.inputs.names, strict=True))
+            inputs = [names.get(c, c) for c in start]
+            table.shown = [c for c, _ in table.optional_columns() if c not in set(data.inputs.names)] + \
+                [c for c in inputs if c in set(data.inputs.names)]
+        where = getattr(self.app, "case_where", None)
+        if where:
+            self.filter.where = where
+            box = self.query_one("#where", Input)
+            box.value = where
+            box.remove_class("hidden")
 
     def on_cases_table_highlighted(self, event: CasesTable.Highlighted) -> None:
         data, p = self.app.cases, event.position
@@ -123,9 +172,17 @@ class CasesScreen(Screen):
         return options[(options.index(current) + 1) % len(options)] if current in options else options[0]
 
     def action_sort(self) -> None:
-        if self.app.cases is not None:
-            self.sort, self.reverse = self._cycle(self.app.cases.sorts(), self.sort), False
-            self.refill(keep=False)  # a new order starts at its top
+        """Sort by the column under the column cursor (left/right choose it); again: the other direction."""
+        if self.app.cases is None:
+            return
+        column = self.table.column
+        if column not in self.app.cases.sorts():
+            return
+        if column == self.sort or (column == "rank" and self.sort == "consensus"):
+            self.reverse = not self.reverse
+        else:
+            self.sort, self.reverse = column, False
+        self.refill(keep=False)  # a new order starts at its top
 
     def action_reverse(self) -> None:
         self.reverse = not self.reverse
@@ -164,20 +221,74 @@ class CasesScreen(Screen):
     def on_input_submitted(self, event: Input.Submitted) -> None:
         if event.input.id == "search":
             self.table.focus()
+        elif event.input.id == "where":
+            self.apply_where(event.value.strip())
+
+    def action_where(self) -> None:
+        box = self.query_one("#where", Input)
+        box.remove_class("hidden")
+        box.focus()
+
+    def apply_where(self, text: str) -> None:
+        """Filter by the WHERE condition ``text`` (empty: no condition); a bad one is said in one line under
+        the box, and the filter stays as it was."""
+        data = self.app.cases
+        if text and data is not None:
+            try:
+                data.where_mask(text)
+            except InputError as exc:
+                self._where_failed(exc)
+                return
+        self.query_one("#where-error", Static).add_class("hidden")
+        self.filter.where = text
+        if not text:
+            self.query_one("#where", Input).add_class("hidden")
+        self.table.focus()
+        self.refill()
+
+    def _where_failed(self, exc: InputError) -> None:
+        line = self.query_one("#where-error", Static)
+        reason = getattr(exc, "brief", str(exc))
+        line.update(plain(f"Not applied: {reason}"))
+        line.remove_class("hidden")
+        box = self.query_one("#where", Input)
+        box.remove_class("hidden")
+        box.focus()
 
     def action_leave_search(self) -> None:
-        box = self.query_one("#search", Input)
-        if box.has_focus:
-            self.table.focus()
-            if not box.value:
-                box.add_class("hidden")
+        for name in ("search", "where"):
+            box = self.query_one(f"#{name}", Input)
+            if box.has_focus:
+                self.table.focus()
+                if name == "where":
+                    self.query_one("#where-error", Static).add_class("hidden")
+                    box.value = self.filter.where  # what is typed and not applied is dropped
+                if not box.value:
+                    box.add_class("hidden")
 
     def action_clear(self) -> None:
         self.filter = CaseFilter()
-        box = self.query_one("#search", Input)
-        box.value = ""
-        box.add_class("hidden")
+        for name in ("search", "where"):
+            box = self.query_one(f"#{name}", Input)
+            box.value = ""
+            box.add_class("hidden")
+        self.query_one("#where-error", Static).add_class("hidden")
         self.refill()
+
+    def action_choose_columns(self) -> None:
+        data = self.app.cases
+        if data is None:
+            self.notify("No scan yet: press 1 for the columns, then s.", severity="warning")
+            return
+        table = self.table
+        inputs = set(data.inputs.names) if data.inputs is not None else set()
+
+        def chosen(shown: list[str] | None) -> None:
+            if shown is not None:
+                table.shown = shown
+                table.refresh()
+
+        self.app.push_screen(ColumnChooser(table.optional_columns(), inputs, table.shown), chosen)
 
     def action_verdict(self) -> None:
         if self.table.position is not None:

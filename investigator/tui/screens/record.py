@@ -55,6 +55,8 @@ class RecordScreen(Screen):
             yield Static("", id="record-headline")
             yield Static("", id="record-within", classes="hidden")  # shown with peer groups (--within)
             yield Static("", id="record-change")
+            yield Static("The record as read: every column of the file", classes="section", id="record-row-title")
+            yield Static("", id="record-row")
             yield Static("Why each method flags it or not", classes="section")
             yield Static("", id="record-methods")
             yield Static("Contributions per method (share of what pushes the record out)", classes="section")
@@ -128,6 +130,11 @@ class RecordScreen(Screen):
             f"Record {d.keys[p]} · row {d.rows[p]} · rank {d.rank[p]:,} · {flag} · consensus "
             f"{d.consensus[p]:.4f} · votes {d.votes[p]}/{len(d.methods)} · verdict: {verdict}{note} · "
             f"{self.index + 1} of {len(self.order)}"))
+        self.query_one("#record-row", Static).update(_record_row(d, p, self.size.width))
+
+    def on_resize(self) -> None:
+        if self.is_mounted and self.app.cases is not None:
+            self.query_one("#record-row", Static).update(_record_row(self.app.cases, self.position, self.size.width))
 
     def _draw(self, view: RecordView) -> None:
         self.view = view
@@ -145,6 +152,28 @@ class RecordScreen(Screen):
             "\n".join(column_hit_text(h) for h in hits)
             or "none: no single column is out of the ordinary by the per-column rules"))
         self.query_one("#record-peers", Static).update(_peers(view))
+
+
+def _record_row(data, position: int, width: int) -> Table | Text:
+    """Every input column of the record with its value as read (dates and text included), two to a line when
+    the screen is wide enough."""
+    if data.inputs is None:
+        return plain("(no input columns)")
+    cells = data.inputs.row(position)
+    pairs = 2 if width >= 100 and len(cells) > 4 else 1
+    t = Table(box=None, padding=(0, 1), show_edge=False, show_header=False, expand=False)
+    for _ in range(pairs):
+        t.add_column(style="bold", no_wrap=True, max_width=28)
+        t.add_column(overflow="fold")
+    rows = -(-len(cells) // pairs)
+    for r in range(rows):
+        line = []
+        for c in range(pairs):
+            k = c * rows + r  # down the first pair of columns, then the second
+            name, value = cells[k] if k < len(cells) else ("", "")
+            line += [plain(name), plain(value) if value != "" else Text("(empty)", style="dim") if name else plain("")]
+        t.add_row(*line)
+    return t
 
 
 def _change(e: Explanation) -> str:
