@@ -9,7 +9,14 @@ from collections.abc import Callable
 from pathlib import Path
 
 from investigator.cli.echo import echo
-from investigator.cli.options import add_output_options, add_scan_options, refuse_overwrite, scan_parameters
+from investigator.cli.options import (
+    add_output_options,
+    add_reference_options,
+    add_scan_options,
+    refuse_overwrite,
+    run_engine,
+    scan_parameters,
+)
 from investigator.errors import InputError
 from investigator.progress import StderrBar, silent
 
@@ -43,10 +50,7 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
                            "(after leaving out those the robust fit flags there: phase I) and score the "
                            "records of NEW against them. Adds Hotelling T-squared (method hotelling).")
     check.add_argument("data", metavar="NEW", help="the records to check: CSV/TSV, Parquet or XLSX")
-    check.add_argument("--reference", metavar="REF", required=True, help="the trusted reference records")
-    check.add_argument("--reference-sheet", metavar="NAME", help="worksheet of an .xlsx reference")
-    check.add_argument("--keep-reference-outliers", action="store_true",
-                       help="keep the reference records the robust fit flags (default: leave them out)")
+    add_reference_options(check, required=True)
     add_scan_options(check)
     add_output_options(check, "NEW")
     return {"scan": run_scan, "check": run_scan}
@@ -55,7 +59,6 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
 def run_scan(args: argparse.Namespace) -> int:
     # The engine is imported here, not at the top: it costs 1.9 s (scikit-learn, SciPy, pandas; measured with
     # `python -c "import investigator.pipeline.engine"` on two cores) and `investigator --help` takes 0.09 s.
-    from investigator.pipeline.engine import check, scan
     from investigator.pipeline.options import ScanOptions
 
     options = ScanOptions(**scan_parameters(args))
@@ -71,11 +74,7 @@ def run_scan(args: argparse.Namespace) -> int:
         check_out_path(Path(args.out))
         refuse_overwrite(args, args.out)  # before any work: never over the data, the reference or the store
     progress = silent if args.quiet else StderrBar()
-    if args.command == "check":
-        result = check(args.data, reference=args.reference, reference_sheet=args.reference_sheet,
-                       options=options, progress=progress, store=args.store)
-    else:
-        result = scan(args.data, options=options, progress=progress, store=args.store)
+    result = run_engine(args, options, progress, store=args.store)  # check: with its --reference
     if args.out:
         result.write(args.out)
     if not args.quiet:

@@ -61,6 +61,7 @@ class CasesTable(Widget, can_focus=True):
         self.sort = "consensus"
         self.reverse = False
         self.top = 0
+        self.marked: set[int] = set()  # positions marked on the Cases screen, drawn with a bullet
 
     # -- data ----------------------------------------------------------------------------------------
     def set_rows(self, data: CasesData, order: np.ndarray, sort: str, reverse: bool,
@@ -192,7 +193,7 @@ class CasesTable(Widget, can_focus=True):
         for i in range(self.top, min(self.top + h, len(self.order))):
             p = int(self.order[i])
             here = i == self.cursor
-            line = "› " if here else "  "  # the cursor has a symbol too, not only reverse video
+            line = ("›" if here else " ") + ("•" if p in self.marked else " ")  # not only reverse video
             for cid, _, w in cols:
                 text = printable(self._cell(cid, p))[:w]  # keys can hold control codes
                 line += (text.rjust(w) if cid in self.data.scores or cid in ("rank", "consensus", "within", "votes")
