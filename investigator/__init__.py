@@ -3,6 +3,7 @@
     >>> import investigator
     >>> result = investigator.scan("claims.csv", id="claim_id")
     >>> result.flagged.sum(), result.write("scan.json")
+    >>> print(investigator.explanation_text(result.explain("CLM-10765")))
 
 Flags are leads for a person to review, not proof of error or fraud.
 """
@@ -12,7 +13,8 @@ from __future__ import annotations
 from investigator.errors import InputError
 from investigator.version import __version__
 
-__all__ = ["InputError", "ScanOptions", "ScanResult", "__version__", "check", "scan", "scan_dataset"]
+__all__ = ["InputError", "ScanOptions", "ScanResult", "__version__", "check", "explanation_text", "scan",
+           "scan_dataset"]
 
 
 def __getattr__(name: str):
@@ -31,6 +33,10 @@ def __getattr__(name: str):
         from investigator.pipeline.result import ScanResult
 
         return ScanResult
+    if name == "explanation_text":  # an Explanation (result.explain(...)) in words, as `investigator explain`
+        from investigator.output.explanation import explanation_text
+
+        return explanation_text
     if name == "ScanOptions":
         from investigator.pipeline.options import ScanOptions
 

@@ -1,4 +1,5 @@
-"""Shared test set-up: nothing a test does may touch the user's own settings; what several folders share.
+"""Shared test set-up: nothing a test does may touch the user's own settings or data; what several folders
+share.
 
 The builders themselves live in the top-level ``fixtures`` package (importable because pyproject sets
 ``pythonpath = ["."]``); the fixtures here hand tests the ones that are costly or need pytest's machinery.
@@ -12,6 +13,7 @@ import pytest
 @pytest.fixture(autouse=True)
 def _own_settings_dir(tmp_path, monkeypatch):
     monkeypatch.setenv("INVESTIGATOR_CONFIG_DIR", str(tmp_path / "settings"))
+    monkeypatch.setenv("INVESTIGATOR_DATA_DIR", str(tmp_path / "data"))  # the demo's data and store
 
 
 @pytest.fixture

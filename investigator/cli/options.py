@@ -97,10 +97,45 @@ def add_reading_options(p: argparse.ArgumentParser) -> None:
                    "rows above it are skipped, with a notice)")
 
 
+def add_reference_options(p: argparse.ArgumentParser, *, required: bool = False) -> None:
+    """A trusted reference to score the records against (``check``; optional in ``explain``, ``open`` and
+    ``report``): the same fit, by :func:`run_engine`."""
+    what = "the trusted reference records" if required else \
+        "score the records against these trusted reference records, as check does (default: scan DATA alone)"
+    p.add_argument("--reference", metavar="REF", required=required, help=what)
+    p.add_argument("--reference-sheet", metavar="NAME", help="worksheet of an .xlsx reference")
+    p.add_argument("--keep-reference-outliers", action="store_true",
+                   help="keep the reference records the robust fit flags (default: leave them out)")
+
+
+def check_reference_options(args: argparse.Namespace) -> None:
+    """--reference-sheet and --keep-reference-outliers mean something with --reference only."""
+    if getattr(args, "reference", None) is None:
+        for flag_name, given in (("--reference-sheet", getattr(args, "reference_sheet", None) is not None),
+                                 ("--keep-reference-outliers", getattr(args, "keep_reference_outliers", False))):
+            if given:
+                raise InputError(f"{flag_name} applies with --reference only; add --reference REF or leave it out")
+
+
+def run_engine(args: argparse.Namespace, options, progress, store=None, on_load=None):
+    """Scan DATA, or with --reference score it against the reference as ``check`` does (one fit for every
+    command). ``options``: the ScanOptions; ``on_load``: the engine's hook on the loaded table
+    (:func:`output_checks`)."""
+    # Deferred: the engine's import costs 1.9 s (see investigator/cli/scan.py), and --help must stay fast.
+    from investigator.pipeline.engine import check, scan
+
+    check_reference_options(args)
+    if getattr(args, "reference", None) is not None:
+        return check(args.data, reference=args.reference, reference_sheet=args.reference_sheet, options=options,
+                     progress=progress, store=store, on_load=on_load)
+    return scan(args.data, options=options, progress=progress, store=store, on_load=on_load)
+
+
 def add_output_options(p: argparse.ArgumentParser, data: str) -> None:
     p.add_argument("--out", metavar="FILE", help="write the result: .json, .csv or .parquet")
     p.add_argument("--store", metavar="PATH", help="review store to read verdicts from "
-                   f"(default: {data}.investigation.sqlite, when it exists)")
+                   f"(default: {data}.investigation.sqlite when it exists, else the store of the same records "
+                   "under another name in its folder)")
     p.add_argument("--top", metavar="N", type=int, default=10, help="flagged records in the summary")
     p.add_argument("--quiet", action="store_true", help="no summary and no progress bar")
 

@@ -13,11 +13,14 @@ from pathlib import Path
 from investigator.cli.echo import echo
 from investigator.cli.options import (
     add_column_options,
+    add_reference_options,
     add_scan_options,
+    check_reference_options,
     check_where,
     column_choice,
     output_checks,
     refuse_overwrite,
+    run_engine,
     scan_parameters,
 )
 from investigator.errors import InputError
@@ -32,8 +35,10 @@ def register(subparsers) -> dict[str, Callable[[argparse.Namespace], int]]:
         description="Scan DATA and write one self-contained HTML report (summary first: what was scanned, "
         "how, what was found, the cases with their explanations, verdicts and notes with their history, "
         "cautions), or with --out cases.xlsx / cases.csv the cases table with explanations and verdicts. "
+        "With --reference, the records are scored against the reference as check does. "
         "The review store is read, never changed.")
     p.add_argument("data", metavar="DATA", help="CSV/TSV, Parquet or XLSX file")
+    add_reference_options(p)
     add_scan_options(p)
     p.add_argument("--out", metavar="FILE", required=True,
                    help="report.html (the report), cases.xlsx or cases.csv (the cases table)")
@@ -41,20 +46,21 @@ def register(subparsers) -> dict[str, Callable[[argparse.Namespace], int]]:
                    help=f"flagged records explained in detail in the HTML report (default {DEFAULT_CASES}; "
                    "records with a verdict are always shown, and the cases table lists every case)")
     p.add_argument("--store", metavar="PATH",
-                   help="review store to read verdicts from (default: DATA.investigation.sqlite, if it exists)")
+                   help="review store to read verdicts from (default: DATA.investigation.sqlite if it exists, "
+                   "else the store of the same records under another name in its folder)")
     add_column_options(p, "the cases table (.xlsx, .csv) shows", "the cases table (.xlsx, .csv) keeps only the "
                        "cases for which it holds")
     return {"report": run_report}
 
 
 def run_report(args: argparse.Namespace) -> int:
-    # Deferred: the engine's import costs 1.9 s (see investigator/cli/scan.py).
-    from investigator.pipeline.engine import scan
+    # Deferred: the options' import costs 1.7 s (SciPy; see investigator/cli/scan.py).
     from investigator.pipeline.options import ScanOptions
 
     out = Path(args.out)
     check_report_path(out)
     refuse_overwrite(args, out)
+    check_reference_options(args)
     if args.cases < 0:
         raise InputError(f"--cases {args.cases}: give 0 or more (the number of cases explained in detail)")
     if args.store is not None and not Path(args.store).is_file():
@@ -67,8 +73,8 @@ def run_report(args: argparse.Namespace) -> int:
         raise InputError(f"{given} applies to the cases table (--out cases.xlsx or cases.csv); the HTML report "
                          "shows every case")
     check_where(args)
-    result = scan(args.data, options=ScanOptions(**scan_parameters(args)), progress=StderrBar(), store=args.store,
-                  on_load=output_checks(args.where, columns))
+    result = run_engine(args, ScanOptions(**scan_parameters(args)), StderrBar(), store=args.store,
+                        on_load=output_checks(args.where, columns))
     write_report(result, out, cases=args.cases, store=args.store, columns=columns, where=args.where)
     flagged = int(result.flagged.sum())
     if args.where is not None:

@@ -21,7 +21,6 @@ from investigator.review.store import (
     ReviewStore,
     check_reviewer,
     check_verdict,
-    default_store_path,
 )
 from investigator.review.verdicts import (
     case_rows,
@@ -66,17 +65,21 @@ def register(subparsers) -> dict[str, Callable[[argparse.Namespace], int]]:
 
 
 def _add_common(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--store", metavar="PATH", help="the review store (default: DATA.investigation.sqlite)")
+    p.add_argument("--store", metavar="PATH", help="the review store (default: DATA.investigation.sqlite, or the "
+                   "store of the same records under another name in its folder; see docs/review.md)")
     p.add_argument("--id", metavar="COLUMN", help="column holding the record key (default: the data row)")
     add_reading_options(p)
 
 
-def store_path(args: argparse.Namespace) -> Path:
-    path = Path(args.store) if args.store else default_store_path(args.data)
+def store_path(args: argparse.Namespace, table):
+    """The review store of DATA's ``table`` (review/stores.py: given, by name, else by content), a StoreChoice."""
+    from investigator.review.stores import find_store  # pandas: 0.6 s, deferred as load_table
+
+    found = find_store(table, args.data, args.store)
     data = Path(args.data)
-    if data.exists() and path.exists() and same_file(path, data):  # also through a symbolic or hard link
-        raise InputError(f"--store {path}: is the data file itself; give another path for the store")
-    return path
+    if data.exists() and found.path.exists() and same_file(found.path, data):  # also through a symbolic or hard link
+        raise InputError(f"--store {found.path}: is the data file itself; give another path for the store")
+    return found
 
 
 def run_verdict(args: argparse.Namespace) -> int:
@@ -88,12 +91,15 @@ def run_verdict(args: argparse.Namespace) -> int:
     table = load_table(args.data, sheet=args.sheet, id_column=args.id, decimal=args.decimal,
                        header_row=args.header_row)
     position = locate(table, args.row, args.key)
-    path = store_path(args)
-    entry, before = record_verdict(table, position, state, args.note, path, reviewer=args.reviewer)
+    found = store_path(args, table)
+    path = found.path
+    entry, before = record_verdict(table, position, state, args.note, path, reviewer=args.reviewer,
+                                   content=found.content)
     said = f", note '{shown(entry.note)}'" if entry.note else ""
     was = f"; was {before.verdict}" if before else ""
+    how = " (the store of the same records under another file name: matched by content)" if found.by_content else ""
     echo(f"{where(position + 1, table)}: {entry.verdict}{said} (by {shown(entry.reviewer)}{was}). "
-          f"Saved in {path}")
+          f"Saved in {path}{how}")
     copies = identical_rows(table, position, entry.fingerprint) if table.key_column is None else []
     if len(copies) > 1:
         echo(f"It applies to all {len(copies)} identical records (rows {row_list(copies)}); give --id COLUMN "
@@ -111,7 +117,8 @@ def run_verdicts(args: argparse.Namespace) -> int:
         refuse_overwrite(args, out, parameter="export")
     table = load_table(args.data, sheet=args.sheet, id_column=args.id, decimal=args.decimal,
                        header_row=args.header_row)
-    path = store_path(args)
+    found = store_path(args, table)
+    path = found.path
     current: list[Entry] = []
     history: list[Entry] = []
     if path.exists():  # listing never creates a store
@@ -121,6 +128,8 @@ def run_verdicts(args: argparse.Namespace) -> int:
     cases = case_rows(matching, current)
     if out is not None:
         write_export(out, path, table, cases, history)
+    if found.by_content:
+        echo(f"{shown(table.name)} has no review store of its own name; {found.describe(table.name)}.")
     echo(listing(path, table, matching, history, exists=path.exists()))
     if out is not None:
         echo(f"Verdicts written to {out}")

@@ -12,11 +12,13 @@ from investigator.cli.echo import echo
 from investigator.cli.options import (
     add_column_options,
     add_output_options,
+    add_reference_options,
     add_scan_options,
     check_where,
     column_choice,
     output_checks,
     refuse_overwrite,
+    run_engine,
     scan_parameters,
 )
 from investigator.errors import InputError
@@ -54,10 +56,7 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
                            "(after leaving out those the robust fit flags there: phase I) and score the "
                            "records of NEW against them. Adds Hotelling T-squared (method hotelling).")
     check.add_argument("data", metavar="NEW", help="the records to check: CSV/TSV, Parquet or XLSX")
-    check.add_argument("--reference", metavar="REF", required=True, help="the trusted reference records")
-    check.add_argument("--reference-sheet", metavar="NAME", help="worksheet of an .xlsx reference")
-    check.add_argument("--keep-reference-outliers", action="store_true",
-                       help="keep the reference records the robust fit flags (default: leave them out)")
+    add_reference_options(check, required=True)
     add_scan_options(check)
     add_output_options(check, "NEW")
     add_column_options(check, "a .csv or .parquet --out writes", "only the records for which it holds are written "
@@ -68,7 +67,6 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
 def run_scan(args: argparse.Namespace) -> int:
     # The engine is imported here, not at the top: it costs 1.9 s (scikit-learn, SciPy, pandas; measured with
     # `python -c "import investigator.pipeline.engine"` on two cores) and `investigator --help` takes 0.09 s.
-    from investigator.pipeline.engine import check, scan
     from investigator.pipeline.options import ScanOptions
 
     options = ScanOptions(**scan_parameters(args))
@@ -97,11 +95,7 @@ def run_scan(args: argparse.Namespace) -> int:
     check_where(args)
     progress = silent if args.quiet else StderrBar()
     loaded = output_checks(args.where, columns)
-    if args.command == "check":
-        result = check(args.data, reference=args.reference, reference_sheet=args.reference_sheet,
-                       options=options, progress=progress, store=args.store, on_load=loaded)
-    else:
-        result = scan(args.data, options=options, progress=progress, store=args.store, on_load=loaded)
+    result = run_engine(args, options, progress, store=args.store, on_load=loaded)  # check: with its --reference
     if args.out:
         result.write(args.out, columns=columns, where=args.where)
     if not args.quiet:

@@ -151,3 +151,12 @@ def write_demo(folder: Path, seed: int = 2024) -> Path:
     path = Path(folder) / DEMO_FILE
     frame.to_csv(path, index=False)
     return path
+
+
+def is_current_demo(path: Path, seed: int = 2024) -> bool:
+    """Whether the file at ``path`` is the demo as :func:`write_demo` writes it now (byte for byte)."""
+    frame, _ = make_demo(seed)
+    try:
+        return Path(path).read_bytes() == frame.to_csv(index=False).encode("utf-8")
+    except OSError:
+        return False

@@ -128,11 +128,12 @@ def result_frame(result: ScanResult) -> pd.DataFrame:
         out["verdict"], out["note"] = result.verdicts, result.notes
     if result.map is not None:
         out["map_x"], out["map_y"] = result.map[:, 0], result.map[:, 1]
-    if result.kinds is not None:
-        out["kind"] = result.kinds.labels + 1
+    if result.kinds is not None:  # the kind of normal (large cluster) a record belongs to: a nullable integer
+        out["kind"] = pd.array(np.asarray(result.kinds.labels) + 1, dtype="Int64")
     if result.groups is not None:
         out["pattern"] = list(result.groups.pattern)
-        out["group"] = [int(g) if g > 0 else None for g in result.groups.group]
+        small = result.groups.small_group  # small groups only, a nullable integer (empty where none)
+        out["group"] = pd.arrays.IntegerArray(small.astype(np.int64), small <= 0)
     if result.within is not None:
         w = result.within
         out["segment"] = np.array([s.label for s in w.segments], dtype=object)[w.segment]

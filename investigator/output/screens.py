@@ -119,6 +119,29 @@ def records_text(line: ScreenLine, shown: int = 5) -> str:
     return first + (f" and {more:,} more" if more > 0 else "")
 
 
+def breach_text(hits: list[dict]) -> str:
+    """What one record breaks of the --limits limits (its ``out_of_spec``), e.g. "amount 512 above 500"."""
+    return "; ".join(f"{h['column']} {number(h['value'])} {h['side']} "
+                     f"{number(h['upper'] if h['side'] == 'above' else h['lower'])}" for h in hits)
+
+
+def out_of_spec_records(out_of_spec: list[list[dict]], labels: list, shown: int = 5, *, details: bool = True) -> str:
+    """The records that break a --limits limit, in file order: the first ``shown`` by ``labels`` (a record's
+    key, or "row N"), each with what it breaks when ``details``, and how many more there are."""
+    breaking = [i for i, hits in enumerate(out_of_spec) if hits]
+    first = ", ".join(f"{labels[i]} ({breach_text(out_of_spec[i])})" if details else str(labels[i])
+                      for i in breaking[:shown])
+    more = len(breaking) - shown
+    return first + (f" and {more:,} more" if more > 0 else "")
+
+
+def record_labels(keys, rows, key_column: str | None) -> list[str]:
+    """How a record is named in a sentence: its key, or "row N" when the table has no key column."""
+    if key_column is None:
+        return [f"row {int(r)}" for r in rows]
+    return [str(k) for k in keys]
+
+
 def listed_by_position(screens: dict | None) -> dict[int, list[str]]:
     """For each record position an amount screen lists, what the screens say of it (e.g. "round amount
     (amount)"), in the order of :func:`amount_lines`."""

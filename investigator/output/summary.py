@@ -10,7 +10,15 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from investigator.output.screens import BENFORD_TESTS, amount_lines, benford_text, cautions, records_text
+from investigator.output.screens import (
+    BENFORD_TESTS,
+    amount_lines,
+    benford_text,
+    cautions,
+    out_of_spec_records,
+    record_labels,
+    records_text,
+)
 from investigator.printable import printable
 
 if TYPE_CHECKING:  # this layer reads the result it is given; it never imports the pipeline
@@ -55,8 +63,12 @@ def summary_text(result: ScanResult, top: int = 10) -> str:
                      f"{ref.phase_i.excluded:,}); hotelling reported beside the methods, without a vote")
     out_of_spec = result.out_of_spec
     if out_of_spec is not None:
-        lines.append(f"Out of specification: {sum(1 for h in out_of_spec if h):,} records break a --limits limit "
-                     "(a rule breach, apart from the statistical flags)")
+        breaking = sum(1 for h in out_of_spec if h)
+        labels = record_labels(result.keys, result.table.row_numbers, result.table.key_column)
+        named = f": {printable(out_of_spec_records(out_of_spec, labels))}" if breaking else ""
+        lines.append(f"Out of specification: {breaking:,} record{'' if breaking == 1 else 's'} break"
+                     f"{'s' if breaking == 1 else ''} a --limits limit (a rule breach, apart from the statistical "
+                     f"flags){named}")
     screens = run.screens or {}  # each check's own report (checks/)
     benford = screens.get("benford", {})
     for col, tests in benford.items():

@@ -6,7 +6,6 @@ import dataclasses
 import platform
 from collections.abc import Callable
 from datetime import UTC, datetime
-from pathlib import Path
 
 import numpy as np
 import pandas
@@ -52,7 +51,8 @@ from investigator.prepare.features import FeaturePreparer, Features, beyond_boun
 from investigator.prepare.roles import assign_roles
 from investigator.progress import Progress, silent
 from investigator.review.matching import match_store
-from investigator.review.store import ReviewStore, default_store_path
+from investigator.review.store import ReviewStore
+from investigator.review.stores import GIVEN, find_store
 from investigator.structure.groups import find_groups
 from investigator.structure.kinds import KindsOfNormal, find_kinds
 from investigator.structure.map import embed
@@ -349,18 +349,19 @@ def scan(data, *, progress: Progress = silent, store=None, on_load: Callable[[Ta
 
 
 def attach_verdicts(result: ScanResult, data, store=None) -> ScanResult:
-    """Add the current verdict and note of each record when a review store exists (``store`` or the
-    default beside the data file); a store is only read here, never created."""
-    if store is None:
-        if not isinstance(data, str | Path):
-            return result
-        store = default_store_path(data)
-        if not Path(store).exists():
-            return result
-    with ReviewStore(store, create=False) as review:
+    """Add the current verdict and note of each record when a review store exists (``store``, the one named
+    for the data file, or the one of the same records under another name: review/stores.py); a store is only
+    read here, never created."""
+    found = find_store(result.table, data, store)
+    if found is None or (found.how != GIVEN and not found.exists):
+        return result
+    with ReviewStore(found.path, create=False) as review:
         matching = match_store(result.table, review)
     result.verdicts, result.notes = matching.verdicts(), matching.notes()
-    result.run = dataclasses.replace(result.run, review_store=str(store))
+    notices = tuple(result.run.notices)
+    if found.by_content:
+        notices += (found.describe(result.table.name),)
+    result.run = dataclasses.replace(result.run, review_store=str(found.path), notices=notices)
     return result
 
 
@@ -378,10 +379,18 @@ def check(data, *, reference, progress: Progress = silent, reference_sheet: str 
         opts = ScanOptions(**options)
     elif options:
         raise TypeError("give either options=ScanOptions(...) or keyword options, not both")
-    # The decimal mark is the locale's, shared by both files; the reference's header is found on its own.
-    ref = load_table(reference, sheet=reference_sheet, id_column=opts.id, decimal=opts.decimal)
-    table = load_table(data, sheet=opts.sheet, id_column=opts.id, min_rows=1, decimal=opts.decimal,
-                       header_row=opts.header_row)
+    table, ref = check_tables(data, reference, opts, reference_sheet=reference_sheet)
     if on_load is not None:
         on_load(table)
     return attach_verdicts(run_scan(table, opts, progress, reference=ref), data, store)
+
+
+def check_tables(data, reference, options: ScanOptions, *, reference_sheet: str | None = None) -> tuple[Table, Table]:
+    """The new records and the reference of a check, read as :func:`check` reads them (the workspace's
+    ``--reference`` too): the new records may be as few as one; ``run_scan(table, options, reference=ref)``
+    scores them against the reference's fit."""
+    # The decimal mark is the locale's, shared by both files; the reference's header is found on its own.
+    ref = load_table(reference, sheet=reference_sheet, id_column=options.id, decimal=options.decimal)
+    table = load_table(data, sheet=options.sheet, id_column=options.id, min_rows=1, decimal=options.decimal,
+                       header_row=options.header_row)
+    return table, ref

@@ -20,7 +20,7 @@ class Case:
     rank: int | None     # the case number: among the flagged records by rank (1 = the most unusual); None if
     #                      not flagged. The scan's own rank among all records is record["rank"].
     position: int        # 0-based
-    record: dict         # result.record(position): scores, flags, column hits, ... (and pattern/group if any)
+    record: dict         # result.record(position): scores, flags, column hits, ... (and kind/pattern/group if any)
     explanation: Explanation
     match: object | None  # the verdict in force (review.matching.RecordMatch), or None
 
@@ -107,7 +107,7 @@ def filter_cases(result, cases: list[Case], where) -> list[Case]:
 def result_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
     """The result columns of the cases table: headers and one row per case."""
     methods = list(result.method_results)
-    extra = [k for k in ("stability", "pattern", "group") if any(k in c.record for c in cases)]
+    extra = [k for k in ("stability", "kind", "pattern", "group") if any(k in c.record for c in cases)]
     headers = (["case", "rank", "row", "key", "consensus", "consensus_z", "votes", "flagged", "flag_reason"]
                + [f"flag_{k}" for k in methods]
                + ["cells", "top_features", "column_hits", "nearest_ordinary_change"] + extra

@@ -24,7 +24,7 @@ from investigator.output.explanation import (
     typical_text,
     within_sentence,
 )
-from investigator.output.screens import ScreenLine, amount_lines
+from investigator.output.screens import ScreenLine, amount_lines, out_of_spec_records, record_labels
 from investigator.output.screens import number as screen_number
 from investigator.output.summary import CAUTION
 from investigator.report import plots
@@ -362,8 +362,11 @@ def _extras(result) -> Safe:
                               f"{len(flagged):,} flagged records are flagged in at least 90% of the runs."))
     if result.out_of_spec is not None:
         breaking = sum(1 for h in result.out_of_spec if h)
-        parts.append(tag("p", f"Out of specification: {breaking:,} records break a --limits limit (a rule "
-                              "breach, kept apart from the statistical flags)."))
+        labels = record_labels(result.keys, result.table.row_numbers, result.table.key_column)
+        named = f": {out_of_spec_records(result.out_of_spec, labels, shown=10)}" if breaking else ""
+        parts.append(tag("p", f"Out of specification: {breaking:,} record{'' if breaking == 1 else 's'} "
+                              f"break{'s' if breaking == 1 else ''} a --limits limit (a rule breach, kept apart "
+                              f"from the statistical flags){named}."))
     screens = result.run.screens or {}  # each check's own report (checks/)
     for col, tests in (screens.get("benford") or {}).items():
         for label, key in (("first digit", "first_digit"), ("first two digits", "first_two_digits")):
@@ -609,9 +612,9 @@ def _case(result, c: Case) -> Safe:
         parts.append(tag("p", prefix + nearest_sentence(nearest)))
     if e.stability is not None:
         parts.append(tag("p", f"Flagged in {e.stability:.0%} of {e.resamples} resampled runs."))
-    for key in ("pattern", "group"):
+    for key, label in (("kind", "Kind of normal (large cluster)"), ("pattern", "Pattern"), ("group", "Group")):
         if r.get(key) is not None:
-            parts.append(tag("p", f"{key.capitalize()}: {r[key]}"))
+            parts.append(tag("p", f"{label}: {r[key]}"))
     parts.append(table(
         ["method", "score", "cutoff", "above", "top contributions (share of what pushes it out)"],
         [[k, format_value(m.score), format_value(m.cutoff), "yes" if m.flag else "no",

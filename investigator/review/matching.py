@@ -1,10 +1,18 @@
-"""Record fingerprints, and finding each verdict's record in the current table.
+"""Record fingerprints, the content key of a table, and finding each verdict's record in the current table.
 
 A record is known by its key when the table has an ``--id`` column, otherwise by its content fingerprint:
 SHA-256 of its values in a normalised form (column names sorted, values as canonical strings, floats via
 ``repr``, missing values as empty). Whole-number floats are written as integers, because pandas turns an
 integer column into floats as soon as one value is missing: an appended row with a gap must not change the
-fingerprint of every other record.
+fingerprint of every other record. Dates and date-times have one text whether the file holds them as date
+cells (.xlsx, Parquet) or as ISO 8601 text (CSV): ``2025-03-01``, or ``2025-03-01T14:30:00`` with a time, so
+the same records read from a .csv and an .xlsx file have the same fingerprints.
+
+A verdict's fingerprint is computed again from the values stored with it (older stores wrote the dates of a
+date cell as ``2025-03-01T00:00:00``): equal values then still give equal fingerprints.
+
+The content key of a table (:func:`content_key`) says whether two tables hold the same records: the review
+store of one is found for the other by it (review/stores.py).
 
 Rules (docs/review.md):
 
@@ -22,6 +30,7 @@ import contextlib
 import hashlib
 import json
 import math
+import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from datetime import date, datetime, time
@@ -30,9 +39,13 @@ import numpy as np
 import pandas as pd
 
 from investigator.io.tables import Table
-from investigator.review.store import Case, Entry, ReviewStore, key_case_id
+from investigator.review.store import Case, Content, Entry, ReviewStore, key_case_id
 
 HINT_LIMIT = 20  # disappeared verdicts searched for a near match: a full pass each, so a bounded number
+# An ISO 8601 date, optionally with a time ("2025-03-01", "2025-03-01T14:30", "2025-03-01 14:30:05.250"); no
+# offset, which is kept as written.
+_ISO = re.compile(r"(\d{4}-\d{2}-\d{2})(?:[T ](\d{2}):(\d{2})(?::(\d{2})(?:\.(\d{1,9}))?)?)?")
+CONTENT_VERSION = "investigator-content-1"  # hashed with the content: a new rule would give new keys
 
 
 def json_value(value: object) -> object:
@@ -67,7 +80,48 @@ def canonical(value: object) -> str:
         if math.isnan(value):
             return ""
         return str(int(value)) if value.is_integer() else repr(value)
-    return str(value)
+    return iso_text(str(value))
+
+
+def iso_text(text: str) -> str:
+    """An ISO 8601 date or date-time in one form: the date alone at midnight, else ``THH:MM:SS`` and the
+    fraction of a second without trailing zeros; any other text as it is."""
+    found = _ISO.fullmatch(text)
+    if found is None or found.group(2) is None:
+        return text
+    date, hour, minute, second, fraction = found.groups()
+    fraction = (fraction or "").rstrip("0")
+    if hour == minute == "00" and (second or "00") == "00" and not fraction:
+        return date
+    return f"{date}T{hour}:{minute}:{second or '00'}" + (f".{fraction}" if fraction else "")
+
+
+def column_texts(values: pd.Series) -> list[str]:
+    """``canonical(json_value(v))`` of every cell of a column, the same texts, computed per column: numbers
+    at once, text and dates once per distinct value."""
+    n = len(values)
+    dtype = values.dtype
+    numpy = isinstance(dtype, np.dtype)
+    if n and numpy and dtype.kind == "f":  # a numpy float column
+        x = values.to_numpy(dtype=float)
+        out = np.full(n, "", dtype=object)
+        finite = np.isfinite(x)
+        with np.errstate(invalid="ignore"):
+            integral = finite & (np.floor(x) == x)
+        small = integral & (np.abs(x) < 2.0**53)
+        out[small] = x[small].astype(np.int64).astype(str)
+        big = integral & ~small
+        out[big] = [str(int(v)) for v in x[big].tolist()]
+        rest = ~integral & ~np.isnan(x)
+        out[rest] = [repr(v) for v in x[rest].tolist()]  # as Python floats: what canonical() gives them
+        return out.tolist()
+    if n and numpy and dtype.kind in "iu":  # a numpy integer column
+        return values.to_numpy().astype(str).tolist()
+    if n and (dtype.kind in "Mb" or isinstance(dtype, pd.StringDtype)):  # one type: distinct values at once
+        codes, uniques = pd.factorize(values, use_na_sentinel=True)
+        texts = np.array([canonical(json_value(u)) for u in uniques] + [""], dtype=object)
+        return texts[codes].tolist()  # code -1 (missing) takes the last, ""
+    return [canonical(json_value(v)) for v in values.tolist()]
 
 
 def _digest(pairs: list[tuple[str, str]]) -> str:
@@ -84,6 +138,36 @@ def record_values(table: Table, position: int) -> dict:
     """One record's values, {column: JSON value} in file order (cell by cell, so no dtype is mixed up)."""
     frame = table.frame
     return {str(c): json_value(frame.iat[position, j]) for j, c in enumerate(frame.columns)}
+
+
+def entry_fingerprint(entry: Entry) -> str | None:
+    """The fingerprint of a verdict's record as the values stored with it give it now (see the module)."""
+    return fingerprint(entry.values) if entry.values is not None else entry.fingerprint
+
+
+def content_key(table: Table) -> Content:
+    """The table's content: SHA-256 of its sorted column names and of the sorted 64-bit hashes of its records.
+    A record is hashed with its numbers by value (an integer equals the same whole float, -0 is 0) and its
+    other values by the texts its fingerprint is made of (dates in one ISO form). Row order, column order, the
+    file's format and the ``--id`` column do not matter; any change of a value does."""
+    names = sorted(str(c) for c in table.frame.columns)
+    where = {str(c): j for j, c in enumerate(table.frame.columns)}
+    parts = {n: _content_column(table.frame.iloc[:, where[n]]) for n in names}
+    rows = pd.util.hash_pandas_object(pd.DataFrame(parts), index=False).to_numpy(dtype=np.uint64)
+    digest = hashlib.sha256(json.dumps([CONTENT_VERSION, names], ensure_ascii=False).encode("utf-8"))
+    digest.update(np.sort(rows).astype("<u8").tobytes())
+    return Content(f"sha256:{digest.hexdigest()}", table.n_rows, table.name if table.source.path else None)
+
+
+def _content_column(values: pd.Series) -> pd.Series:
+    """A column as the content key hashes it: numbers as float64 (one NaN for missing), the rest as texts."""
+    dtype = values.dtype
+    if isinstance(dtype, np.dtype) and dtype.kind in "iuf":
+        x = values.to_numpy(dtype=float)
+        exact = dtype.kind == "f" or not len(x) or np.abs(x).max() < 2.0**53
+        if exact:  # -0.0 + 0.0 is 0.0; every NaN the same NaN, so missing hashes alike
+            return pd.Series(np.where(np.isnan(x), np.nan, x + 0.0), dtype=float)
+    return pd.Series(column_texts(values), dtype=object)
 
 
 def record_case(table: Table, position: int) -> Case:
@@ -105,7 +189,7 @@ class _Canon:
         names = [str(c) for c in table.frame.columns]
         order = sorted(range(len(names)), key=names.__getitem__)
         self.names = [names[j] for j in order]
-        self.cells = [[canonical(json_value(v)) for v in table.frame.iloc[:, j].tolist()] for j in order]
+        self.cells = [column_texts(table.frame.iloc[:, j]) for j in order]
         self.n = table.n_rows
         self._arrays: list[np.ndarray] | None = None
 
@@ -219,7 +303,7 @@ def match_entries(table: Table, entries: Iterable[Entry]) -> Matching:
         for i, digest in enumerate(canon.fingerprints()):
             positions.setdefault(digest, []).append(i)
         for e in by_content:
-            found = positions.get(e.fingerprint or "", [])
+            found = positions.get(entry_fingerprint(e) or "", [])
             for i in found:
                 hits.setdefault(i, []).append((e, "fingerprint", len(found)))
             if found:
@@ -239,7 +323,8 @@ def match_entries(table: Table, entries: Iterable[Entry]) -> Matching:
         match = RecordMatch(i, keys[i], entry, how, copies=copies, earlier=[h[0] for h in at_record[1:]])
         if how == "key":
             now = record_values(table, i)
-            if entry.fingerprint is not None and fingerprint(now) != entry.fingerprint:
+            then = entry_fingerprint(entry)
+            if then is not None and fingerprint(now) != then:
                 match.changed, match.previous, match.current = True, entry.values, now
         matches[i] = match
 

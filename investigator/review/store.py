@@ -68,6 +68,20 @@ _SCHEMA = (
        SELECT h.* FROM history AS h
        JOIN (SELECT case_id, MAX(change) AS last FROM history GROUP BY case_id) AS l ON h.change = l.last""",
 )
+# The contents the store's verdicts were recorded on (review/stores.py finds a store by them). Added after schema
+# 1 was first written; additive, so a store without it is still schema 1: it is made with the next verdict.
+_CONTENTS = (
+    """CREATE TABLE IF NOT EXISTS contents (
+        content TEXT PRIMARY KEY,
+        records INTEGER NOT NULL,
+        name    TEXT,
+        at      TEXT NOT NULL
+    )""",
+    """CREATE TRIGGER IF NOT EXISTS contents_no_update BEFORE UPDATE ON contents
+       BEGIN SELECT RAISE(ABORT, 'contents are append-only'); END""",
+    """CREATE TRIGGER IF NOT EXISTS contents_no_delete BEFORE DELETE ON contents
+       BEGIN SELECT RAISE(ABORT, 'contents are append-only'); END""",
+)
 _COLUMNS = ("change, case_id, kind, key_column, record_key, row, verdict, note, reviewer, at, run_id, "
             "fingerprint, record_json, data_sha256")
 
@@ -133,6 +147,16 @@ def group_case(group_id: str, members: list | None = None) -> Case:
         raise InputError(f"group id {group_id!r}: use 'group:' followed by the group's name, e.g. 'group:3'")
     return Case(case_id=group_id, kind="group",
                 values={"members": [str(m) for m in members]} if members is not None else None)
+
+
+@dataclass(frozen=True)
+class Content:
+    """What a table holds, as the store remembers it: ``key`` (``sha256:...``, :func:`investigator.review.
+    matching.content_key`), the number of ``records`` and the file ``name`` it was read from."""
+
+    key: str
+    records: int
+    name: str | None = None
 
 
 @dataclass(frozen=True)
@@ -237,7 +261,7 @@ class ReviewStore:
     def _create(db: sqlite3.Connection) -> None:
         db.execute("BEGIN IMMEDIATE")  # another process may be creating it too: IF NOT EXISTS settles it
         try:
-            for statement in _SCHEMA:
+            for statement in _SCHEMA + _CONTENTS:
                 db.execute(statement)
             db.execute("INSERT OR IGNORE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
             db.execute(f"PRAGMA application_id = {APPLICATION_ID}")
@@ -285,34 +309,59 @@ class ReviewStore:
                 time.sleep(0.02)
 
     def set(self, case: Case, verdict: str, note: str | None = None, *, reviewer: str | None = None,
-            run_id: str | None = None, data_sha256: str | None = None) -> Entry:
+            run_id: str | None = None, data_sha256: str | None = None, content: Content | None = None) -> Entry:
         """Record a verdict on ``case`` and return the new history entry.
 
         ``note=None`` keeps the case's current note (a new verdict does not erase what was written);
         ``note=""`` clears it. ``run_id`` names the scan the reviewer was looking at, when there is one.
+        ``content``: the table the case is in, remembered so that the same records read from another file
+        find this store (docs/review.md).
         """
+        return self.set_many([case], verdict, note, reviewer=reviewer, run_id=run_id, data_sha256=data_sha256,
+                             content=content)[0]
+
+    def set_many(self, cases: list[Case], verdict: str, note: str | None = None, *, reviewer: str | None = None,
+                 run_id: str | None = None, data_sha256: str | None = None,
+                 content: Content | None = None) -> list[Entry]:
+        """Record one verdict on each of ``cases`` (one history entry each), all in one transaction: every
+        entry is written, or none. ``note=None`` keeps each case's own current note; the rest as :meth:`set`.
+        A case listed twice gets one entry."""
         verdict = check_verdict(verdict)
         who = check_reviewer(reviewer) if reviewer is not None else self.reviewer
         if note is not None and not isinstance(note, str):
             raise TypeError("note must be a string or None")
-        if case.kind not in ("record", "group"):
-            raise ValueError(f"case kind must be 'record' or 'group', not {case.kind!r}")
+        for case in cases:
+            if case.kind not in ("record", "group"):
+                raise ValueError(f"case kind must be 'record' or 'group', not {case.kind!r}")
+        unique: dict[str, Case] = {}
+        for case in cases:  # in the order given, the first of each case id
+            unique.setdefault(case.case_id, case)
         at = datetime.now(UTC).isoformat(timespec="milliseconds")
-        values = None if case.values is None else json.dumps(case.values, ensure_ascii=False, allow_nan=False)
+        entries = []
         with self._transaction() as db:
-            if note is None:
-                last = db.execute("SELECT note FROM history WHERE case_id = ? ORDER BY change DESC LIMIT 1",
-                                  (case.case_id,)).fetchone()
-                note = last[0] if last else ""
-            cursor = db.execute(
-                f"INSERT INTO history ({_COLUMNS}) VALUES (NULL, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                (case.case_id, case.kind, case.key_column, case.key, case.row, verdict, note, who, at,
-                 run_id, case.fingerprint, values, data_sha256),
-            )
-            change = cursor.lastrowid
-        assert change is not None  # set by every INSERT
-        return Entry(change, case.case_id, case.kind, case.key_column, case.key, case.row, verdict, note,
-                     who, at, run_id, case.fingerprint, case.values, data_sha256)
+            if content is not None:
+                for statement in _CONTENTS:  # a store made before the contents table gets it now
+                    db.execute(statement)
+                db.execute("INSERT OR IGNORE INTO contents VALUES (?, ?, ?, ?)",
+                           (content.key, int(content.records), content.name, at))
+            for case in unique.values():
+                kept = note
+                if kept is None:
+                    last = db.execute("SELECT note FROM history WHERE case_id = ? ORDER BY change DESC LIMIT 1",
+                                      (case.case_id,)).fetchone()
+                    kept = last[0] if last else ""
+                values = None if case.values is None else json.dumps(case.values, ensure_ascii=False,
+                                                                     allow_nan=False)
+                cursor = db.execute(
+                    f"INSERT INTO history ({_COLUMNS}) VALUES (NULL, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                    (case.case_id, case.kind, case.key_column, case.key, case.row, verdict, kept, who, at,
+                     run_id, case.fingerprint, values, data_sha256),
+                )
+                change = cursor.lastrowid
+                assert change is not None  # set by every INSERT
+                entries.append(Entry(change, case.case_id, case.kind, case.key_column, case.key, case.row, verdict,
+                                     kept, who, at, run_id, case.fingerprint, case.values, data_sha256))
+        return entries
 
     # -- reading -------------------------------------------------------------------------------------
     def _select(self, sql: str, params: tuple = ()) -> list[Entry]:
@@ -331,6 +380,27 @@ class ReviewStore:
         if case_id is None:
             return self._select(f"SELECT {_COLUMNS} FROM history ORDER BY change")
         return self._select(f"SELECT {_COLUMNS} FROM history WHERE case_id = ? ORDER BY change", (case_id,))
+
+    def contents(self) -> list[Content]:
+        """Every table content a verdict was recorded on, oldest first (none in a store made before they were
+        remembered, until its next verdict)."""
+        with self._lock:
+            try:
+                if self._db.execute("SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'contents'"
+                                    ).fetchone() is None:
+                    return []
+                found = self._db.execute("SELECT content, records, name FROM contents ORDER BY at, content")
+                return [Content(*row) for row in found.fetchall()]
+            except sqlite3.Error as exc:
+                raise _store_error(self.path, exc) from None
+
+    def last_change(self) -> str | None:
+        """When the latest verdict was recorded (UTC, ISO 8601), or None in an empty store."""
+        with self._lock:
+            try:
+                return self._db.execute("SELECT MAX(at) FROM history").fetchone()[0]
+            except sqlite3.Error as exc:
+                raise _store_error(self.path, exc) from None
 
     def get(self, case_id: str) -> Entry | None:
         """A case's latest entry, or None when it has no verdict."""

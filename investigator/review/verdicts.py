@@ -15,6 +15,7 @@ from investigator.errors import InputError
 from investigator.io.output_files import atomic_output, check_not_input
 from investigator.printable import printable
 from investigator.review.store import (
+    Content,
     Entry,
     ReviewStore,
     check_reviewer,
@@ -44,21 +45,48 @@ def locate(table, row: int | None, key: str | None) -> int:
 
 
 def record_verdict(table, position: int, state: str, note: str | None, path: Path, *,
-                   reviewer: str | None = None, run_id: str | None = None) -> tuple[Entry, Entry | None]:
+                   reviewer: str | None = None, run_id: str | None = None,
+                   content: Content | None = None) -> tuple[Entry, Entry | None]:
     """Save a verdict on the record at 0-based ``position`` of ``table``; return the new entry and the one
-    it replaces. Shared by ``investigator verdict`` and the TUI, so both record a case the same way."""
+    it replaces. Shared by ``investigator verdict`` and the TUI, so both record a case the same way.
+    ``content``: the table's content key, if already known (computed otherwise); the store remembers it."""
     # Deferred, here and below: matching and the writers import pandas (0.6 s), and the CLI imports this module
     # for `investigator --help` (0.1 s).
-    from investigator.review.matching import record_case
+    from investigator.review.matching import content_key, record_case
 
     state = check_verdict(state)
     if reviewer is not None:
         check_reviewer(reviewer)
     case = record_case(table, position)
+    content = content if content is not None else content_key(table)
     with ReviewStore(path, reviewer=reviewer) as store:
         before = store.get(case.case_id)
-        entry = store.set(case, state, note, run_id=run_id, data_sha256=table.source.sha256)
+        entry = store.set(case, state, note, run_id=run_id, data_sha256=table.source.sha256, content=content)
     return entry, before
+
+
+def record_verdicts(table, positions: list[int], state: str, note: str | None, path: Path, *,
+                    reviewer: str | None = None, run_id: str | None = None,
+                    content: Content | None = None) -> list[Entry]:
+    """One verdict on each record at the 0-based ``positions`` (a marked set, a group's members): one history
+    entry per case, all written in one transaction or none. ``note=None`` keeps each record's own note.
+    Identical records without a key are one case, so they get one entry."""
+    from investigator.review.matching import content_key, record_case  # pandas: deferred, see record_verdict
+
+    state = check_verdict(state)
+    if reviewer is not None:
+        check_reviewer(reviewer)
+    if not positions:
+        raise InputError("no records to set a verdict on; mark some first")
+    for p in positions:
+        if not 0 <= p < table.n_rows:
+            raise InputError(f"{table.name}: row={p + 1} is out of range; rows run from 1 to {table.n_rows}",
+                             parameters=("row",))
+    cases = [record_case(table, p) for p in positions]
+    content = content if content is not None else content_key(table)
+    with ReviewStore(path, reviewer=reviewer) as store:
+        return store.set_many(cases, state, note, run_id=run_id, data_sha256=table.source.sha256,
+                              content=content)
 
 
 # -- what each case's verdict is now -------------------------------------------------------------------------

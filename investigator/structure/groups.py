@@ -70,9 +70,10 @@ def min_group_size(n: int) -> int:
 class Grouping:
     """Groups and large clusters found among n records.
 
-    ``group``: per record, the id of its group or large cluster (1, 2, ...; -1 none). ``ids``, ``sizes``
-    and ``large`` are aligned per id (sizes count all records, flagged or not). ``pattern``: per record,
-    ``"group"`` / ``"isolated"`` for flagged records, None for the others.
+    ``group``: per record, the id of its group or large cluster (1, 2, ...; -1 none); ``small_group`` the
+    id of its small group only. ``ids``, ``sizes``, ``large`` and ``kinds`` are aligned per id (sizes count all
+    records, flagged or not; ``kinds``: the kind of normal, 1, 2, ..., a large cluster is, 0 for a small
+    group). ``pattern``: per record, ``"group"`` / ``"isolated"`` for flagged records, None for the others.
     """
 
     group: np.ndarray
@@ -82,6 +83,13 @@ class Grouping:
     large: np.ndarray
     parameters: dict = field(default_factory=dict)
     notices: list[str] = field(default_factory=list)
+    kinds: np.ndarray | None = None
+
+    @property
+    def small_group(self) -> np.ndarray:
+        """Per record, the id of its small group, -1 for none (a large cluster's members have none)."""
+        small = np.isin(self.group, np.asarray(self.small_ids, dtype=self.group.dtype))
+        return np.where(small, self.group, -1)
 
     def size_of(self, gid: int) -> int:
         return int(self.sizes[self.ids == gid][0]) if gid in self.ids else 0
@@ -103,17 +111,21 @@ class Grouping:
         return [int(g) for g, big in zip(self.ids, self.large, strict=True) if big]
 
     def record(self, i: int) -> dict:
-        """One record's pattern, group id and group size (None where they do not apply)."""
+        """One record's pattern, small group id and its size (None where it is in no small group): a large
+        cluster is a kind of normal, the record's ``kind``."""
         gid = int(self.group[i])
-        return {"pattern": self.pattern[i], "group": gid if gid > 0 else None,
-                "group_size": self.size_of(gid) if gid > 0 else None,
-                "in_large_cluster": gid > 0 and self.is_large(gid)}
+        small = gid > 0 and not self.is_large(gid)
+        return {"pattern": self.pattern[i], "group": gid if small else None,
+                "group_size": self.size_of(gid) if small else None,
+                "in_large_cluster": gid > 0 and not small}
 
     def describe(self) -> dict:
-        """For the run record: the rule's parameters, the groups and clusters, and the notices."""
+        """For the run record: the rule's parameters, the groups and clusters (a large one with the ``kind``
+        it is), and the notices."""
+        kinds = self.kinds if self.kinds is not None else np.zeros(len(self.ids), dtype=int)
         return {**self.parameters,
-                "groups": [{"group": int(g), "size": int(s), "large": bool(b)}
-                           for g, s, b in zip(self.ids, self.sizes, self.large, strict=True)],
+                "groups": [{"group": int(g), "size": int(s), "large": bool(b), **({"kind": int(k)} if b else {})}
+                           for g, s, b, k in zip(self.ids, self.sizes, self.large, kinds, strict=True)],
                 "notices": list(self.notices)}
 
 
@@ -257,5 +269,6 @@ def _number(labels: np.ndarray, n_large: int, flagged: np.ndarray, params: dict,
     pattern = np.full(len(labels), None, dtype=object)
     pattern[flagged] = ISOLATED
     pattern[flagged & in_group] = GROUP
+    kinds = np.array([c + 1 if c < n_large else 0 for c in order], dtype=int)  # a large cluster is kind c + 1
     return Grouping(group, pattern, np.arange(1, len(order) + 1),
-                    np.array([sizes[c] for c in order], dtype=int), large, params, notices)
+                    np.array([sizes[c] for c in order], dtype=int), large, params, notices, kinds)

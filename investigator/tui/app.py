@@ -17,6 +17,7 @@ from textual.worker import Worker, WorkerState
 
 from investigator.errors import InputError
 from investigator.printable import printable
+from investigator.review.store import default_store_path
 from investigator.tui import jobs
 from investigator.tui.models.columns import ColumnChoices
 from investigator.tui.models.map import group_labels, map_coords
@@ -62,10 +63,12 @@ class InvestigatorApp(App):
     map_points = reactive(None, always_update=True)   # (coords, source)
 
     def __init__(self, path: str | Path, options=None, *, autoscan: bool = False, store=None,
+                 reference=None, reference_sheet: str | None = None,
                  show_hint: bool | None = None, error_text: Callable[[InputError], str] = str,
                  columns=None, where: str | None = None) -> None:
         """``options``: a ScanOptions, or a dict of its fields (validated in the load worker, so a bad option
         shows as a one-line error in the UI and the first frame does not wait for the engine's imports).
+        ``reference``: a trusted reference file; the records are scored against its fit, as ``check`` does.
         ``error_text``: the line shown for an InputError (``investigator open`` passes the one that speaks of
         its flags; by default the message as the API gives it). ``columns``: the input columns Cases shows at
         first (None: all, empty: none); ``where``: the SQL WHERE condition Cases starts filtered by (both
@@ -78,6 +81,9 @@ class InvestigatorApp(App):
         self.base_options = options
         self.autoscan = autoscan
         self.store_option = store
+        self.reference = reference
+        self.reference_sheet = reference_sheet
+        self.content = None      # the table's content key (review.store.Content), which a verdict records
         if show_hint is None:  # shown until the user dismisses it once ('i'), then remembered
             show_hint = not hint_seen()
         self.show_hint = show_hint
@@ -96,9 +102,11 @@ class InvestigatorApp(App):
         self.path = Path(path)
         self.sub_title = printable(self.path.name)  # the name only: fits 80 columns
         self.load_error = None
-        options, columns, where = self.base_options, self.case_columns, self.case_where
-        self.run_worker(lambda: jobs.load(self.path, options, columns, where), thread=True, name="load",
-                        group="load", exclusive=True, exit_on_error=False)
+        options, path, columns, where = self.base_options, self.path, self.case_columns, self.case_where
+        reference, sheet, store = self.reference, self.reference_sheet, self.store_option
+        self.run_worker(lambda: jobs.load(path, options, columns, where, reference=reference, reference_sheet=sheet,
+                                          store=store),
+                        thread=True, name="load", group="load", exclusive=True, exit_on_error=False)
 
     def _options_base(self):
         """The ScanOptions the table was loaded with (built in the load worker from a dict, if given one)."""
@@ -127,15 +135,16 @@ class InvestigatorApp(App):
             self.notify_plain(self.error_text(exc), severity="error")
             return
         token = self.token = jobs.CancelToken()
-        table, store = self.loaded.table, self.store_path()
+        table, store, reference = self.loaded.table, self.store_path(), self.loaded.reference
         store_arg = store if store.exists() else None
+        path = self.path
 
         def progress(stage: str, fraction: float) -> None:
             self.call_from_thread(setattr, self, "progress", (stage, fraction))
 
         self.progress = ("starting", 0.0)
-        self.run_worker(lambda: jobs.run(table, options, progress, token, store_arg, self.path), thread=True,
-                        name="scan", group="scan", exit_on_error=False)
+        self.run_worker(lambda: jobs.run(table, options, progress, token, store_arg, path, reference=reference),
+                        thread=True, name="scan", group="scan", exit_on_error=False)
 
     def cancel_scan(self) -> None:
         if self.token is not None:
@@ -144,7 +153,11 @@ class InvestigatorApp(App):
                              if self.progress else 0.0)
 
     def store_path(self) -> Path:
-        return jobs.store_for(self.path, self.store_option)
+        """The review store: the one the load found (review/stores.py), else the given or default one."""
+        found = getattr(self.loaded, "store", None)
+        if found is not None:
+            return found.path
+        return Path(self.store_option) if self.store_option else default_store_path(self.path)
 
     # -- worker results ------------------------------------------------------------------------------
     def on_worker_state_changed(self, event: Worker.StateChanged) -> None:
@@ -172,7 +185,11 @@ class InvestigatorApp(App):
         self.base_options = loaded.options
         self.choices = ColumnChoices.start(loaded.rows, loaded.options.log)
         self.result = self.cases = self.map_points = None
+        self.content = loaded.store.content if loaded.store is not None else None
         self.loaded = loaded
+        if loaded.store is not None and loaded.store.by_content:
+            said = loaded.store.describe(loaded.table.name)
+            self.notify_plain(said[:1].upper() + said[1:] + ".", timeout=8)
         if self.autoscan:
             self.start_scan()
 
@@ -186,7 +203,7 @@ class InvestigatorApp(App):
                 self.last_error = self._message(error)
                 self.notify_plain(self.last_error, severity="error", timeout=10)
             return
-        result, cases = value
+        result, cases, self.content = value
         self.views = ViewCache(result)
         self.group_labels = group_labels(result)
         self.map_points = None
@@ -238,10 +255,43 @@ class InvestigatorApp(App):
         self.push_screen(screen, lambda answer: self.save_verdict(position, *answer) if answer else None)
 
     def save_verdict(self, position: int, state: str, note: str) -> None:
-        table, store = self.result.table, self.store_path()
+        table, store, content = self.result.table, self.store_path(), self.content
         run_id = self.result.run.started
-        self.run_worker(lambda: jobs.save_verdict(table, position, state, note, store, run_id), thread=True,
-                        name="verdict", group="verdict", exit_on_error=False)
+        self.run_worker(lambda: jobs.save_verdict(table, position, state, note, store, run_id, content),
+                        thread=True, name="verdict", group="verdict", exit_on_error=False)
+
+    def ask_verdicts(self, positions: list[int], what: str, done: Callable[[], None] | None = None) -> None:
+        """One verdict for several records at once (``what`` names them: "3 marked records"); each record gets
+        its own history entry. The note box starts empty: left empty, every record keeps its own note.
+        ``done`` runs once the verdicts are saved."""
+        if not positions:
+            return
+        ask = VerdictScreen(what, None, None, None, several=True)
+
+        def save(answer) -> None:
+            if not answer:
+                return
+            state, note = answer
+            table, store, content = self.result.table, self.store_path(), self.content
+            run_id = self.result.run.started
+            self.run_worker(lambda: (jobs.save_verdicts(table, positions, state, note or None, store, run_id,
+                                                        content), what, done),
+                            thread=True, name="verdicts", group="verdict", exit_on_error=False)
+
+        self.push_screen(ask, save)
+
+    def _done_verdicts(self, value, error) -> None:
+        if error is not None:
+            self.notify_plain(f"Verdicts not saved: {self._message(error)}", severity="error", timeout=10)
+            return
+        (entries, verdicts, notes), what, done = value
+        self.result.verdicts, self.result.notes = verdicts, notes
+        self.cases.set_verdicts(verdicts, notes)
+        self.review_version += 1
+        if done is not None:
+            done()
+        self.notify_plain(f"Saved: {what} are {entries[0].verdict}, {len(entries)} "
+                          f"entr{'y' if len(entries) == 1 else 'ies'} in the history (in {self.store_path().name})")
 
     def _done_verdict(self, value, error) -> None:
         if error is not None:
@@ -275,7 +325,8 @@ class InvestigatorApp(App):
             state, note = answer
             try:
                 entry = jobs.save_group_verdict(case, state, note, self.store_path(),
-                                                self.result.run.started, self.result.table.source.sha256)
+                                                self.result.run.started, self.result.table.source.sha256,
+                                                self.content)
             except Exception as exc:  # a store problem: one line, the UI goes on
                 self.notify_plain(f"Verdict not saved: {self._message(exc)}", severity="error", timeout=10)
                 return

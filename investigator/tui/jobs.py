@@ -15,8 +15,8 @@ from typing import TYPE_CHECKING
 if TYPE_CHECKING:  # the engine is imported in the workers only
     from investigator.structure.cases import GroupCase
 
-from investigator.review.store import ReviewStore, check_verdict, default_store_path, group_case
-from investigator.review.verdicts import record_verdict
+from investigator.review.store import ReviewStore, check_verdict, group_case
+from investigator.review.verdicts import record_verdict, record_verdicts
 from investigator.tui.models.cases import cases_data
 from investigator.tui.models.columns import column_rows
 
@@ -28,25 +28,36 @@ class ScanCancelled(Exception):
 @dataclass
 class Loaded:
     table: object
-    rows: list     # ColumnRow
+    rows: list     # ColumnRow: the columns the fit uses (the reference's, with one)
     options: object  # the ScanOptions the file was read with
+    reference: object = None  # with `open --reference`: the reference Table the records are scored against
+    store: object = None  # review.stores.StoreChoice: where the verdicts are read and written
 
 
-def load(path: str | Path, options, columns=None, where: str | None = None) -> Loaded:
-    """Read the table and infer the roles. ``options`` is a ScanOptions or a dict of its fields: building
-    it here keeps the options module (which imports the methods, hence SciPy) off the first frame.
-    ``columns`` (the input columns Cases shows) and ``where`` (its first filter) are checked against the
-    table here, so a wrong name is a one-line error before any scan."""
+def load(path: str | Path, options, columns=None, where: str | None = None, *, reference: str | Path | None = None,
+         reference_sheet: str | None = None, store: str | Path | None = None) -> Loaded:
+    """Read the table (and the reference, if any), infer the roles and find the review store. ``options`` is a
+    ScanOptions or a dict of its fields: building it here keeps the options module (which imports the methods,
+    hence SciPy) off the first frame. ``columns`` (the input columns Cases shows) and ``where`` (its first
+    filter) are checked against the table here, so a wrong name is a one-line error before any scan."""
     # Deferred: these run in a worker thread, and at the top they would hold up the first frame: the options
     # import the methods (SciPy), 1.7 s, and the table reader pandas, 0.6 s (`python -c "import X"` here).
     from investigator.io.tables import load_table
     from investigator.pipeline.options import ScanOptions
     from investigator.prepare.roles import assign_roles
+    from investigator.review.stores import find_store
 
     if not isinstance(options, ScanOptions):
         options = ScanOptions(**(options or {}))
-    table = load_table(path, sheet=options.sheet, id_column=options.id, decimal=options.decimal,
-                       header_row=options.header_row)
+    ref = None
+    if reference is not None:
+        # Deferred as above (the engine: 1.9 s); the reference is read as `check` reads it.
+        from investigator.pipeline.engine import check_tables
+
+        table, ref = check_tables(path, reference, options, reference_sheet=reference_sheet)
+    else:
+        table = load_table(path, sheet=options.sheet, id_column=options.id, decimal=options.decimal,
+                           header_row=options.header_row)
     if columns is not None or where is not None:
         from investigator.output.columns import check_where_columns, choose_columns  # with pandas: loaded here
         from investigator.output.where import parse_where
@@ -54,8 +65,9 @@ def load(path: str | Path, options, columns=None, where: str | None = None) -> L
         choose_columns(table, columns)
         if where is not None:
             check_where_columns(parse_where(where), table)
-    roles = assign_roles(table, options.features, options.exclude)
-    return Loaded(table, column_rows(table, roles), options)
+    fit = ref if ref is not None else table  # the roles the fit uses: the reference's, as in check
+    roles = assign_roles(fit, options.features, options.exclude)
+    return Loaded(table, column_rows(fit, roles), options, ref, find_store(table, path, store))
 
 
 class CancelToken:
@@ -70,43 +82,60 @@ class CancelToken:
         return self._event.is_set()
 
 
-def run(table, options, progress, token: CancelToken, store: Path | None, path: str | Path | None):
-    """Scan ``table``; ``progress(stage, fraction)`` is the engine's callback. The scan stops at the next
-    progress report after ``token.cancel()`` (the engine reports between its steps)."""
+def run(table, options, progress, token: CancelToken, store: Path | None, path: str | Path | None,
+        reference=None):
+    """Scan ``table`` (against ``reference``, a Table, when given: the fit of ``check``); ``progress(stage,
+    fraction)`` is the engine's callback. The scan stops at the next progress report after ``token.cancel()``
+    (the engine reports between its steps). ``store``: the review store to read, when it exists. Returns the
+    result, the Cases data and the table's content key (which a verdict records)."""
     from investigator.pipeline.engine import attach_verdicts, run_scan  # 1.9 s to import; deferred as in load
+    from investigator.review.matching import content_key
 
     def report(stage: str, fraction: float) -> None:
         if token.cancelled:
             raise ScanCancelled
         progress(stage, fraction)
 
-    result = run_scan(table, options, report)
+    result = run_scan(table, options, report, reference=reference)
     if token.cancelled:
         raise ScanCancelled
-    if path is not None:
+    if path is not None and store is not None:
         attach_verdicts(result, path, store)
     report("preparing the cases", 1.0)
-    return result, cases_data(result)
+    return result, cases_data(result), content_key(table)
 
 
-def save_verdict(table, position: int, state: str, note: str | None, store: Path, run_id: str | None):
+def save_verdict(table, position: int, state: str, note: str | None, store: Path, run_id: str | None,
+                 content=None):
     """Save one verdict (the same function ``investigator verdict`` uses) and re-match the store, so copies
     that share a fingerprint show it too. Returns (entry, verdicts, notes)."""
     from investigator.review.matching import match_store  # pandas: 0.6 s, deferred as in load
 
-    entry, _ = record_verdict(table, position, state, note, store, run_id=run_id)
+    entry, _ = record_verdict(table, position, state, note, store, run_id=run_id, content=content)
     with ReviewStore(store, create=False) as review:
         matching = match_store(table, review)
     return entry, matching.verdicts(), matching.notes()
 
 
+def save_verdicts(table, positions: list[int], state: str, note: str | None, store: Path, run_id: str | None,
+                  content=None):
+    """One verdict on each of several records (a marked set, a group's members), one history entry each, in
+    one transaction; then re-match the store. Returns (entries, verdicts, notes)."""
+    from investigator.review.matching import match_store  # pandas: deferred as in save_verdict
+
+    entries = record_verdicts(table, positions, state, note, store, run_id=run_id, content=content)
+    with ReviewStore(store, create=False) as review:
+        matching = match_store(table, review)
+    return entries, matching.verdicts(), matching.notes()
+
+
 def save_group_verdict(case: GroupCase, state: str, note: str | None, store: Path, run_id: str | None,
-                       data_sha256: str | None):
+                       data_sha256: str | None, content=None):
     """Save a verdict on a group case (``group:<id>``, its members' keys kept with it)."""
     state = check_verdict(state)
     with ReviewStore(store) as review:
         return review.set(group_case(f"group:{case.group}", case.keys), state, note, run_id=run_id,
-                          data_sha256=data_sha256)
+                          data_sha256=data_sha256, content=content)
 
 
 def group_verdict(case: GroupCase, store: Path) -> str | None:
@@ -116,7 +145,3 @@ def group_verdict(case: GroupCase, store: Path) -> str | None:
     with ReviewStore(store, create=False) as review:
         entry = review.get(f"group:{case.group}")
     return entry.verdict if entry is not None else None
-
-
-def store_for(path: str | Path, store: str | Path | None) -> Path:
-    return Path(store) if store else default_store_path(path)

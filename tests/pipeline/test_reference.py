@@ -126,7 +126,8 @@ def test_check_command_and_limits(tmp_path, capsys):
     assert main(["check", str(new), "--reference", str(ref), "--id", "batch", "--limits", str(limits),
                  "--out", str(out)]) == 0
     summary = capsys.readouterr().out
-    assert "Reference:" in summary and "Out of specification: 1 records" in summary
+    assert "Reference:" in summary and "Out of specification: 1 record breaks" in summary
+    assert "B12-0005 (ph 7.9 above 7.5)" in summary  # named, with what it breaks
     doc = json.loads(out.read_text())
     assert doc["run"]["reference"]["input"]["sha256"]
     rec = doc["records"][5]

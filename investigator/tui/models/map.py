@@ -19,7 +19,9 @@ def group_labels(result) -> np.ndarray | None:
         return None
     n = result.n_records
     if getattr(groups, "group", None) is not None:  # a structure.groups.Grouping: per-record ids, -1 none
-        groups = np.asarray(groups.group)
+        # Its small groups only: a large cluster is a kind of normal (the record's `kind`), not a group.
+        small = getattr(groups, "small_group", None)
+        groups = np.asarray(small if small is not None else groups.group)
     if isinstance(groups, np.ndarray) and groups.shape == (n,):
         return np.where(np.isfinite(groups.astype(float)), groups, -1).astype(int)
     labels = np.full(n, -1, dtype=int)

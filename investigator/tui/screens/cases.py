@@ -9,6 +9,7 @@ from textual.screen import Screen
 from textual.widgets import Footer, Header, Input, Static
 
 from investigator.errors import InputError
+from investigator.output.screens import breach_text, out_of_spec_records, record_labels
 from investigator.tui.models.cases import NO_VERDICT, CaseFilter
 from investigator.tui.plain import plain
 from investigator.tui.screens.column_chooser import ColumnChooser
@@ -46,6 +47,8 @@ class CasesScreen(Screen):
         Binding("o", "group", "Open group"),
         # Not in the footer (it is full at 80 columns); the help lists it and the status line names it.
         Binding("t", "screens", "Screens (Benford, round amounts, thresholds, ...)", show=False),
+        Binding("space", "mark", "Mark/unmark (v then sets the verdict of every marked record)", show=False),
+        Binding("u", "unmark", "Unmark all", show=False),
         Binding("i", "hint", "Hint", show=False),
         Binding("escape", "leave_search", show=False),
     ]
@@ -56,6 +59,8 @@ class CasesScreen(Screen):
         self.reverse = False
         self.filter = CaseFilter()
         self.applied_start = False  # the columns and filter `investigator open` was given, applied once
+        self.marked: set[int] = set()  # record positions marked for one verdict on all of them
+        self._status = ""
 
     def compose(self) -> ComposeResult:
         yield Header()
@@ -71,12 +76,16 @@ class CasesScreen(Screen):
 
     def on_mount(self) -> None:
         self.query_one("#hint").set_class(not self.app.show_hint, "hidden")
-        self.watch(self.app, "cases", lambda _: self.refill())
+        self.watch(self.app, "cases", lambda _: self._new_cases())
         self.watch(self.app, "review_version", lambda _: self.refill(keep=True))
 
     @property
     def table(self) -> CasesTable:
         return self.query_one(CasesTable)
+
+    def _new_cases(self) -> None:
+        self.marked.clear()  # a new scan: marks were on the last one's list
+        self.refill()
 
     def refill(self, keep: bool = True) -> None:
         data = self.app.cases
@@ -97,12 +106,15 @@ class CasesScreen(Screen):
             self._where_failed(exc)
             self.filter.where = ""
             order = data.order(self.sort, self.reverse, self.filter)
+        table.marked = self.marked
         table.set_rows(data, order, self.sort, self.reverse, keep=table.position if keep else None)
         direction = self._direction(data)
-        screens = " · t: screens" if self.app.result is not None and self.app.result.run.screens else ""
-        self.query_one("#cases-status", Static).update(
-            f"{int(data.flagged.sum()):,} flagged of {data.n:,} · showing {len(order):,} "
-            f"({self.filter.describe()}) · sorted by {self.sort}, {direction}{screens}")
+        result = self.app.result
+        screens = " · t: screens" if result is not None and result.run.screens else ""
+        self._status = (f"{int(data.flagged.sum()):,} flagged of {data.n:,} · showing {len(order):,} "
+                        f"({self.filter.describe()}) · sorted by {self.sort}, {direction}{screens}"
+                        + self._out_of_spec(result))
+        self._show_status()
         if not self.query_one("#search", Input).has_focus:  # typing a search keeps the focus in the box
             table.focus()
 
@@ -141,6 +153,22 @@ class CasesScreen(Screen):
             box.value = where
             box.remove_class("hidden")
 
+    @staticmethod
+    def _out_of_spec(result) -> str:
+        """With --limits: how many records break a limit, and the first few of them by key."""
+        if result is None or result.out_of_spec is None:
+            return ""
+        breaking = sum(1 for hits in result.out_of_spec if hits)
+        if not breaking:
+            return " · out of spec: none"
+        labels = record_labels(result.keys, result.table.row_numbers, result.table.key_column)
+        return f" · out of spec: {breaking:,} ({out_of_spec_records(result.out_of_spec, labels, 3, details=False)})"
+
+    def _show_status(self) -> None:
+        n = len(self.marked)
+        marks = f" · {n:,} marked (v: a verdict on each, u: unmark)" if n else ""
+        self.query_one("#cases-status", Static).update(plain(self._status + marks))
+
     def on_cases_table_highlighted(self, event: CasesTable.Highlighted) -> None:
         data, p = self.app.cases, event.position
         detail = self.query_one("#cases-detail", Static)
@@ -155,6 +183,9 @@ class CasesScreen(Screen):
         flag = f"FLAG ({data.reason[p]})" if data.flagged[p] else "not flagged"
         marks = data.screen_marks.get(p)
         screens = f" Screens: {'; '.join(marks)}." if marks else ""
+        out_of_spec = self.app.result.out_of_spec
+        if out_of_spec is not None and out_of_spec[p]:
+            screens += f" Out of spec: {breach_text(out_of_spec[p])}."
         within = ""
         if data.within is not None and data.within_flagged is not None and data.segment is not None:
             within = (f" Within {data.segment[p]}: {'FLAG' if data.within_flagged[p] else 'not flagged'}, "
@@ -291,8 +322,28 @@ class CasesScreen(Screen):
         self.app.push_screen(ColumnChooser(table.optional_columns(), inputs, table.shown), chosen)
 
     def action_verdict(self) -> None:
-        if self.table.position is not None:
+        if self.marked:  # a verdict on every marked record, one history entry each
+            n = len(self.marked)
+            self.app.ask_verdicts(sorted(self.marked), f"{n:,} marked record{'' if n == 1 else 's'}",
+                                  done=self.action_unmark)
+        elif self.table.position is not None:
             self.app.ask_verdict(self.table.position)
+
+    def action_mark(self) -> None:
+        """Mark the record under the cursor (or unmark it), and step to the next one."""
+        p = self.table.position
+        if p is None:
+            return
+        self.marked.symmetric_difference_update({p})
+        self.table.action_move(1)
+        self.table.refresh()
+        self._show_status()
+
+    def action_unmark(self) -> None:
+        if self.marked:
+            self.marked.clear()  # the table draws from the same set
+            self.table.refresh()
+            self._show_status()
 
     def action_screens(self) -> None:
         if self.app.result is None:

@@ -52,8 +52,11 @@ class ColumnsScreen(Screen):
             return
         t = loaded.table
         key = f", key column '{t.key_column}'" if t.key_column else ", no key column (records by row)"
+        ref = getattr(loaded, "reference", None)
+        against = (f" Scored against the reference {ref.name} ({ref.n_rows:,} records), whose columns these are."
+                   if ref is not None else "")
         self.query_one("#columns-title", Static).update(plain(
-            f"{t.name}: {t.n_rows:,} records, {len(loaded.rows)} columns{key}. "
+            f"{t.name}: {t.n_rows:,} records, {len(loaded.rows)} columns{key}.{against} "
             "space: feature/excluded · l: log · s: scan"))
         for r in loaded.rows:
             table.add_row(*self._cells(r), key=r.name)

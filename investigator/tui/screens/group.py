@@ -26,6 +26,7 @@ class GroupScreen(Screen):
 
     BINDINGS = [
         Binding("v", "verdict", "Verdict on the group"),
+        Binding("a", "verdict_members", "Verdict on each member"),
         Binding("escape", "back", "Back"),
     ]
 
@@ -47,7 +48,8 @@ class GroupScreen(Screen):
     def _head(self) -> str:
         c = self.case
         return (f"Group {c.group}: {c.size} records, {c.flagged} flagged - a pattern (records unusual "
-                f"together), not a lone record. Verdict: {self.verdict or 'none'}")
+                f"together), not a lone record. Verdict: {self.verdict or 'none'} "
+                "(v: on the group, a: on each member)")
 
     def _profile(self) -> Table:
         table = Table(box=None, pad_edge=False)
@@ -58,9 +60,20 @@ class GroupScreen(Screen):
                           f"{p.difference:+.1f}")
         return table
 
+    def on_mount(self) -> None:
+        self.watch(self.app, "review_version", lambda _: self.query_one("#group-members", Static).update(
+            self._members()))
+
     def _members(self) -> Text:
         members = self.case.members
-        shown = ", ".join(f"{m.key} (row {m.row})" for m in members[:MEMBERS_SHOWN])
+        data = getattr(self.app, "cases", None)
+        verdicts = data.verdicts if data is not None and data.verdicts is not None else None
+
+        def said(m) -> str:
+            verdict = verdicts[m.row - 1] if verdicts is not None and 0 < m.row <= len(verdicts) else ""
+            return f", {verdict}" if verdict else ""
+
+        shown = ", ".join(f"{m.key} (row {m.row}{said(m)})" for m in members[:MEMBERS_SHOWN])
         more = f" and {len(members) - MEMBERS_SHOWN} more" if len(members) > MEMBERS_SHOWN else ""
         return plain(shown + more)
 
@@ -70,6 +83,11 @@ class GroupScreen(Screen):
 
     def action_verdict(self) -> None:
         self.app.ask_group_verdict(self)
+
+    def action_verdict_members(self) -> None:
+        """The same verdict on every member record, one history entry each (the group case keeps its own)."""
+        c = self.case
+        self.app.ask_verdicts([m.row - 1 for m in c.members], f"the {c.size} records of group {c.group}")
 
     def action_back(self) -> None:
         self.app.pop_screen()

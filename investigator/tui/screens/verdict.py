@@ -52,16 +52,22 @@ class StatePicker(Widget, can_focus=True):
 class VerdictScreen(ModalScreen[tuple[str, str] | None]):
     BINDINGS = [Binding("escape", "cancel", "Cancel")]
 
-    def __init__(self, key: str, row: int | None, verdict: str | None, note: str | None, **kwargs) -> None:
+    def __init__(self, key: str, row: int | None, verdict: str | None, note: str | None, *,
+                 several: bool = False, **kwargs) -> None:
+        """``several``: ``key`` names a set of records ("3 marked records"), each of which gets the verdict."""
         super().__init__(**kwargs)
-        self.key, self.row, self.verdict, self.note = key, row, verdict, note
+        self.key, self.row, self.verdict, self.note, self.several = key, row, verdict, note, several
 
     def compose(self) -> ComposeResult:
         with Vertical(id="verdict-box"):
             what = f"record {self.key} (row {self.row})" if self.row is not None else self.key
-            yield Label(plain(f"Verdict on {what}; now: {self.verdict or 'none'}"))
+            if self.several:
+                yield Label(plain(f"Verdict on each of {what} (one history entry each)"))
+            else:
+                yield Label(plain(f"Verdict on {what}; now: {self.verdict or 'none'}"))
             yield StatePicker(self.verdict, id="verdict-state")
-            yield Input(value=self.note or "", placeholder="note (optional)", id="verdict-note")
+            hint = "note (optional; left empty, each keeps its own note)" if self.several else "note (optional)"
+            yield Input(value=self.note or "", placeholder=hint, id="verdict-note")
             yield Static("letter: state · type the note · enter saves · esc cancels", classes="dim",
                          id="verdict-hint")
 

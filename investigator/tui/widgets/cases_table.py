@@ -78,6 +78,7 @@ class CasesTable(Widget, can_focus=True):
         self.left = 0  # the first of the scrolled columns (all but rank and key) in view
         self.shown: list[str] | None = None  # the optional columns shown, in order (None: every one)
         self._note_width: tuple[int, int] | None = None
+        self.marked: set[int] = set()  # positions marked on the Cases screen, drawn with a bullet
 
     # -- data ----------------------------------------------------------------------------------------
     def set_rows(self, data: CasesData, order: np.ndarray, sort: str, reverse: bool,
@@ -292,7 +293,7 @@ class CasesTable(Widget, can_focus=True):
         for i in range(self.top, min(self.top + h, len(self.order))):
             p = int(self.order[i])
             here = i == self.cursor
-            line = "› " if here else "  "  # the cursor has a symbol too, not only reverse video
+            line = ("›" if here else " ") + ("•" if p in self.marked else " ")  # not only reverse video
             for cid, _, w, right in cols:
                 line += self._fit(self._cell(cid, p), w, right)
             style = "reverse" if here and self.has_focus else "bold" if here else ""
