@@ -36,6 +36,9 @@ from investigator.pipeline.run_record import (
     RunRecord,
 )
 from investigator.pipeline.scoring import (
+    FULL,
+    SEGMENT,
+    Effort,
     apply_kinds,
     build_methods,
     combine_results,
@@ -60,11 +63,12 @@ from investigator.version import __version__
 
 
 def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
-             reference: Table | None = None, *, groups: bool = True) -> ScanResult:
+             reference: Table | None = None, *, groups: bool = True, effort: Effort = FULL) -> ScanResult:
     """Scan ``table``; with ``reference``, fit preparation and methods on the reference and score the table's
     records against it (novelty scoring: no record of the table is part of the fit). ``groups=False`` leaves
     out the small groups and their cases (a segment's own scan, whose groups nobody reads; its scores and flags
-    are the same)."""
+    are the same). ``effort``: how hard the randomised fits search (:class:`~investigator.pipeline.scoring.Effort`;
+    a segment's own scan uses ``SEGMENT``)."""
     started = datetime.now(UTC).replace(microsecond=0).isoformat()
     notices = list(table.notices)
     original_reference = reference  # a segment's check cleans its own reference records (phase I)
@@ -110,7 +114,7 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
             "rare each level is, so equally common levels are alike); a scan needs at least two records that "
             "differ" + (" (keep the others with `keep_reference_outliers`)" if reference is not None else ""),
             parameters=("keep_reference_outliers",) if reference is not None else ())
-    methods = build_methods(options, ref_features, notices)
+    methods = build_methods(options, ref_features, notices, effort=effort)
     if reference is not None:
         methods += _reference_only_methods(options, methods)
     progress("scoring", 0.1)
@@ -138,7 +142,7 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     grouping = coords = mapped = kinds = None
     if reference is None:
         progress("groups", 0.93)
-        kinds, results, combination = _kinds_of_normal(features, results, combination, options, notices)
+        kinds, results, combination = _kinds_of_normal(features, results, combination, options, notices, effort)
         if groups:
             grouping = find_groups(features.values, combination.flagged, seed=options.seed,
                                    kind_labels=None if kinds is None else kinds.labels)
@@ -202,7 +206,7 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
 
 def _scan_segment(table: Table, options: ScanOptions, reference: Table | None) -> ScanResult:
     """One segment scanned as a table of its own (peer groups, pipeline/within.py)."""
-    return run_scan(table, options, reference=reference, groups=False)
+    return run_scan(table, options, reference=reference, groups=False, effort=SEGMENT)
 
 
 def _kinds_record(kinds: KindsOfNormal, results: dict[str, MethodResult]) -> KindsRecord:
@@ -218,11 +222,12 @@ def _reference_record(reference: Table, info: dict) -> ReferenceRecord:
 
 
 def _kinds_of_normal(features: Features, results: dict, combination, options: ScanOptions,
-                     notices: list[str]):
+                     notices: list[str], effort: Effort = FULL):
     """Find the kinds of normal; with two or more, every method judges each record within its kind
     (robust_distance measures it against its kind's fit) and the combination is redone."""
     columns = numeric_columns(features)
-    kinds = find_kinds(features.values, columns, kinds_fitter(options), seed=options.seed, notices=notices)
+    kinds = find_kinds(features.values, columns, kinds_fitter(options, effort=effort), seed=options.seed,
+                       notices=notices)
     if kinds is None:
         return None, results, combination
     results = apply_kinds(results, kinds, features.values)

@@ -39,7 +39,7 @@ from investigator.pipeline.engine import run_scan
 from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.result import MethodResult, ScanResult
 from investigator.pipeline.run_record import RunRecord
-from investigator.pipeline.scoring import apply_kinds, combine_results
+from investigator.pipeline.scoring import FULL, Effort, apply_kinds, combine_results
 from investigator.prepare.features import FeaturePreparer
 from investigator.prepare.roles import ColumnInfo
 from investigator.progress import silent
@@ -78,9 +78,10 @@ class ScanModel:
     cells: tuple[CellModel, CategoryRule] | None = None  # the cell test fitted on the sample, shared by blocks
 
     @classmethod
-    def fit(cls, sample: Table, options: ScanOptions, progress=None) -> ScanModel:
-        """Fit on ``sample``; its ``rows`` must be the records' 1-based rows in the whole dataset."""
-        fit = run_scan(sample, options, progress or silent)
+    def fit(cls, sample: Table, options: ScanOptions, progress=None, effort: Effort = FULL) -> ScanModel:
+        """Fit on ``sample``; its ``rows`` must be the records' 1-based rows in the whole dataset. ``effort``: how
+        hard the randomised fits search (scoring.Effort)."""
+        fit = run_scan(sample, options, progress or silent, effort=effort)
         search = fit.neighbors
         pool = fit.explainer.pool
         typical = fit.explainer.typical

@@ -30,8 +30,10 @@ from investigator.errors import InputError
 from investigator.io.tables import load_table
 from investigator.output.explanation import explanation_text
 from investigator.pipeline.dask_engine import check_dask_options
+from investigator.pipeline.engine import run_scan
 from investigator.pipeline.options import ScanOptions
 from investigator.pipeline.scan_model import ScanModel
+from investigator.pipeline.scoring import SEGMENT
 from investigator.pipeline.within import MIN_RECORDS, PER_FEATURE, segment_line
 
 pytestmark = pytest.mark.slow  # scans every segment of a 2,669-line table several times (a minute or more)
@@ -122,8 +124,9 @@ def test_every_segment_with_its_own_fit_is_what_a_scan_of_its_rows_alone_gives(l
     assert [s.label for s in own] == ["category = services", "category = stationery", "category = travel"]
     for s in own:
         rows = np.flatnonzero(lines["category"].to_numpy() == s.values[0])
-        alone = investigator.scan(lines.iloc[rows].reset_index(drop=True), id="invoice", exclude="category",
-                                  seed=SEED)
+        # A segment's own scan searches with the segment effort (fewer MCD starts and trees, scoring.SEGMENT).
+        alone = run_scan(load_table(lines.iloc[rows].reset_index(drop=True), id_column="invoice"),
+                         ScanOptions(id="invoice", exclude=("category",), seed=SEED), effort=SEGMENT)
         for key, r in alone.method_results.items():
             np.testing.assert_array_equal(w.methods[key].scores[rows], r.scores, err_msg=f"{s.label} {key}")
             np.testing.assert_array_equal(w.methods[key].flags[rows], r.flags)
@@ -189,10 +192,10 @@ def test_a_small_segment_like_a_large_one_is_scored_against_that_segments_fit():
     assert any(t.startswith("segment site = harbour: 15 records, fewer than the 50") and "site = south" in t
                for t in result.run.notices)
     # Reference: the scan model fitted on the south workshop's jobs alone (the path that scores new blocks of a
-    # dataset) scoring the harbour jobs, which are not part of the fit.
+    # dataset) scoring the harbour jobs, which are not part of the fit; fitted with a segment's effort.
     south = jobs[jobs["site"] == "south"].reset_index(drop=True)
     harbour = np.flatnonzero(jobs["site"].to_numpy() == "harbour")
-    model = ScanModel.fit(load_table(south), ScanOptions(exclude="site"))
+    model = ScanModel.fit(load_table(south), ScanOptions(exclude="site"), effort=SEGMENT)
     scored = model.score(jobs.iloc[harbour].reset_index(drop=True), first_row=len(jobs))
     for key, r in scored.method_results.items():
         np.testing.assert_array_equal(w.methods[key].scores[harbour], r.scores)
