@@ -63,12 +63,14 @@ from investigator.version import __version__
 
 
 def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
-             reference: Table | None = None, *, groups: bool = True, effort: Effort = FULL) -> ScanResult:
+             reference: Table | None = None, *, groups: bool = True, screens: bool = True,
+             effort: Effort = FULL) -> ScanResult:
     """Scan ``table``; with ``reference``, fit preparation and methods on the reference and score the table's
     records against it (novelty scoring: no record of the table is part of the fit). ``groups=False`` leaves
     out the small groups and their cases (a segment's own scan, whose groups nobody reads; its scores and flags
-    are the same). ``effort``: how hard the randomised fits search (:class:`~investigator.pipeline.scoring.Effort`;
-    a segment's own scan uses ``SEGMENT``)."""
+    are the same); ``screens=False`` leaves out the trade's screens and the exact copies (a segment's own scan:
+    they are the whole table's). ``effort``: how hard the randomised fits search
+    (:class:`~investigator.pipeline.scoring.Effort`; a segment's own scan uses ``SEGMENT``)."""
     started = datetime.now(UTC).replace(microsecond=0).isoformat()
     notices = list(table.notices)
     original_reference = reference  # a segment's check cleans its own reference records (phase I)
@@ -160,7 +162,7 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
         notices.append(f"column '{name}': MAD is zero, so the modified z-score rule is skipped there")
     hits = [numeric + timing for numeric, timing in zip(rules.hits(features), preparer.calendar_hits(table),
                                                         strict=True)]
-    extras = _extras(table, options, notices, amount_numbers)
+    extras = _extras(table, options, notices, amount_numbers) if screens else {"screens": {}, "out_of_spec": None}
     within = None
     if options.within:
         within = peer_groups(table, options, _scan_segment, overall=results, combination=combination,
@@ -206,7 +208,7 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
 
 def _scan_segment(table: Table, options: ScanOptions, reference: Table | None) -> ScanResult:
     """One segment scanned as a table of its own (peer groups, pipeline/within.py)."""
-    return run_scan(table, options, reference=reference, groups=False, effort=SEGMENT)
+    return run_scan(table, options, reference=reference, groups=False, screens=False, effort=SEGMENT)
 
 
 def _kinds_record(kinds: KindsOfNormal, results: dict[str, MethodResult]) -> KindsRecord:

@@ -382,7 +382,7 @@ def _nearest(records: Table, fits: dict[int, ScanResult]) -> int | None:
 
 def _segment_options(options: ScanOptions, columns: Sequence[str]) -> ScanOptions:
     """A segment's own scan: the same methods and cutoffs, without the within columns (constant in a segment)
-    and without what reads the whole table (the map, resamples, screens, limits)."""
+    and without what reads the whole table (the map, resamples, the amount screens, limits)."""
     features = options.features
     if features is not None:
         features = tuple(f for f in features if f not in columns)
@@ -391,7 +391,7 @@ def _segment_options(options: ScanOptions, columns: Sequence[str]) -> ScanOption
                              "name other features too", parameters=("features", "within"))
     exclude = tuple(dict.fromkeys([*(options.exclude or ()), *columns]))
     return dataclasses.replace(options, within=None, map="none", resamples=0, digits=None, duplicates=None,
-                               limits=None, features=features, exclude=exclude)
+                               limits=None, threshold=None, round=None, features=features, exclude=exclude)
 
 
 def _segment_values(table: Table, columns: Sequence[str], is_reference: bool) -> np.ndarray:
