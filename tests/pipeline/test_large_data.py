@@ -46,7 +46,7 @@ def test_approximate_and_exact_paths_lose_at_most_001_auc_at_100k_rows():
 
 def test_mcd_on_a_sample_recovers_the_generating_location_and_scatter():
     # Ground truth: 150,000 records, 90% from N(mu, Sigma), 10% shifted far away. The raw fit searched on a
-    # 50,000-record sample and reweighted on all records must find the same core as the search on all.
+    # 20,000-record sample and reweighted on all records must find the same core as the search on all.
     rng = np.random.default_rng(5)
     mu = np.array([1.0, -2.0, 0.5, 3.0])
     A = rng.normal(size=(4, 4))
@@ -55,7 +55,7 @@ def test_mcd_on_a_sample_recovers_the_generating_location_and_scatter():
     X[:15_000] += 8.0
     sampled = FastMCD(seed=0).fit(X)
     full = FastMCD(seed=0, sample_above=None).fit(X)
-    assert sampled.sample == 50_000 and full.sample is None
+    assert sampled.sample == 20_000 and full.sample is None
     assert not sampled.support[:15_000].any()  # no planted record is kept by the reweighting
     # Sampling error of a mean over ~120,000 records is about 0.003 per unit of scale; 0.03 is ten of them.
     np.testing.assert_allclose(sampled.location, mu, atol=0.03)
@@ -74,7 +74,8 @@ def test_the_run_record_names_each_approximation_and_when_it_switches_on():
     assert "Sampled for size" not in exact_result.summary()
     assert default["neighbour search"].used and default["neighbour search"].above == 20_000
     assert not exact["neighbour search"].used and exact_result.run.neighbors.search == "exact"
-    assert not default["robust_distance"].used and default["robust_distance"].above == 100_000
+    assert default["robust_distance"].used and default["robust_distance"].above == 20_000
+    assert not exact["robust_distance"].used
     assert not default["peers in explanations"].used
     assert default["isolation"].used and not default["isolation"].exact_turns_off
 
