@@ -67,17 +67,23 @@ def benign_likeness(X: np.ndarray, benign: np.ndarray, case_of: np.ndarray, radi
     for position, location in zip(benign.tolist(), at.tolist(), strict=True):
         members.setdefault(location, []).append(position)
     own = search.locate(X)
-    if search.k_ > 0:
-        graph = search.query(X, same_table=False)
-        indices, distances = graph.indices, graph.distances
-    else:  # one benign location: no other location to search, so its distance is measured directly
-        indices = np.zeros((n, 1), dtype=np.int64)
-        distances = np.sqrt(((X - search.locations_[0]) ** 2).sum(axis=1))[:, None]
-        indices[own >= 0] = -1  # a copy of it is counted as a copy below, once
+    m = len(search.locations_)
+    width = min(NEAREST_BENIGN, m)
+    indices = np.full((n, width), -1, dtype=np.int64)
+    distances = np.full((n, width), np.inf)
+    at_benign = np.flatnonzero(own >= 0)
+    k = search.k_  # a record at a benign location: that location's own neighbours (the others), from the fit
+    indices[at_benign, :k] = search.location_graph_.indices[own[at_benign]]
+    distances[at_benign, :k] = search.location_graph_.distances[own[at_benign]]
+    elsewhere = np.flatnonzero(own < 0)
+    for start in range(0, len(elsewhere), 4096):  # the fitted index of the search, in blocks
+        rows = elsewhere[start:start + 4096]
+        d, i = search.index_.kneighbors(X[rows].astype(search.dtype_), n_neighbors=width)
+        indices[rows], distances[rows] = i, d
     r = np.asarray(radius, dtype=float)
     count = np.zeros(n, dtype=np.int64)
     nearest = np.full(n, -1, dtype=np.int64)
-    near = (own >= 0) | (distances[:, 0] <= r) if distances.shape[1] else own >= 0
+    near = (own >= 0) | (distances[:, 0] <= r)
     for i in np.flatnonzero(near).tolist():  # most records are near no benign one: only these are looked at
         candidates: list[int] = list(members[int(own[i])]) if own[i] >= 0 else []  # copies: at distance 0
         for location, distance in zip(indices[i].tolist(), distances[i].tolist(), strict=True):
