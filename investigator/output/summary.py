@@ -196,7 +196,7 @@ def _review_next_lines(result: ScanResult, top: int) -> list[str]:
     for i in first:
         lines.append(f"  {int(learned.review_order[i]):>5} {int(result.table.row_numbers[i]):>6}  "
                      f"{_short(result.keys[i]):<14} {learned.priority[i]:>8.3f} {result.consensus[i]:>9.3f} "
-                     f"{int(result.rank[i]):>6}  {printable(learned.reason[i])}")
+                     f"{int(result.rank[i]):>6}  {printable(learned.reason_of(int(i)))}")
     return lines
 
 

@@ -10,7 +10,7 @@ matching a caller read.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -110,19 +110,52 @@ class Learning:
 
     ``priority`` (0 to 1; the consensus itself where nothing moved it), ``shift`` (the change of log-odds:
     ``model_shift`` + ``likeness.shift``), ``review_order`` (1-based, 0 for records with a verdict),
-    ``pick`` ("likely" or "learning"), ``reason`` (why a record moved, in words), ``model`` and ``likeness``,
-    ``unmatched`` (verdicts whose record is not in the data: not learned from), ``evidence``."""
+    ``pick`` ("likely" or "learning"), ``moved`` (places up, + , or down, -, from the consensus order),
+    ``model`` and ``likeness``, ``unmatched`` (verdicts whose record is not in the data: not learned from),
+    ``evidence``. Why a record moved, in words: :meth:`reason_of` (one record, as the workspace asks) or
+    :attr:`reason` (every record, for the outputs; built once)."""
 
     priority: np.ndarray
     shift: np.ndarray
     model_shift: np.ndarray
     review_order: np.ndarray
     pick: np.ndarray
-    reason: np.ndarray
+    moved: np.ndarray
     model: PriorityModel
     likeness: Likeness
     unmatched: int
     evidence: Evidence
+    keys: list = field(repr=False, default_factory=list)
+    _reasons: dict = field(repr=False, default_factory=dict, compare=False)
+
+    def reason_of(self, i: int) -> str:
+        """Why the priority moved record ``i``: "up 12 places from consensus: verdicts weigh isolation score
+        +0.42; like CLM-10234 and 3 others marked benign -0.50"; "" where it did not move."""
+        values, names, weights = self.evidence.values, self.evidence.names, self.model.weights
+        row = [(float(values[i, j] * weights[j]), j) for j in range(len(names)) if names[j] != "baseline"]
+        row = sorted(row, key=lambda t: -abs(t[0]))[:REASON_TERMS]
+        parts = []
+        top = [(c, j) for c, j in row if abs(c) >= QUIET]
+        if top:
+            parts.append("verdicts weigh " + ", ".join(f"{names[j]} {c:+.2f}" for c, j in top))
+        like = self.likeness.reason(i, self.keys)
+        if like:
+            parts.append(f"{like} {self.likeness.shift[i]:+.2f}")
+        if self.pick[i] == LEARN:
+            parts.append("a learning pick: the model is least sure about it")
+        moved = int(self.moved[i])
+        if not parts and (moved == 0 or abs(self.model_shift[i]) < QUIET):
+            return ""
+        head = (f"up {moved:,} place{'s' if moved != 1 else ''}" if moved > 0 else
+                f"down {-moved:,} place{'s' if moved != -1 else ''}" if moved < 0 else "same place")
+        return f"{head} from consensus" + (": " + "; ".join(parts) if parts else "")
+
+    @property
+    def reason(self) -> np.ndarray:
+        """:meth:`reason_of` of every record (built on first use: a string per record)."""
+        if "all" not in self._reasons:
+            self._reasons["all"] = np.array([self.reason_of(i) for i in range(len(self.priority))], dtype=object)
+        return self._reasons["all"]
 
     def describe(self) -> dict:
         """``run.learning`` in the JSON: how many verdicts were used and the model's parameters."""
@@ -174,9 +207,9 @@ def learn(result: ScanResult, matching: Matching, previous: Learning | None = No
     uncertainty = p * (1 - p) * model.leverage(found.values)
     decided = len({m.entry.case_id for m in matching.matches.values() if m.entry.verdict != "open"})
     order, pick = review_order(priority, uncertainty, reviewed, result.consensus_z, decided)
-    reason = reasons(result, found, model, likeness, model_shift, priority, order, pick)
-    return Learning(priority, shift, model_shift, order, pick, reason, model, likeness,
-                    len(matching.disappeared), found)
+    moved = places(result.consensus_z, result.consensus_z) - places(priority, result.consensus_z)
+    return Learning(priority, shift, model_shift, order, pick, moved, model, likeness, len(matching.disappeared),
+                    found, list(result.keys))
 
 
 def like_radius(result: ScanResult) -> np.ndarray:
@@ -197,37 +230,4 @@ def places(score: np.ndarray, consensus_z: np.ndarray) -> np.ndarray:
     order = np.lexsort((np.arange(n), -np.asarray(consensus_z), -np.asarray(score)))
     out = np.empty(n, dtype=np.int64)
     out[order] = np.arange(1, n + 1)
-    return out
-
-
-def reasons(result: ScanResult, found: Evidence, model: PriorityModel, likeness: Likeness,
-            model_shift: np.ndarray, priority: np.ndarray, order: np.ndarray, pick: np.ndarray) -> np.ndarray:
-    """Per record, why the priority moved it: "up 12 places from consensus: verdicts weigh isolation score
-    +0.42; like CLM-10234 and 3 others marked benign -0.50"; "" where it did not move."""
-    n = result.n_records
-    before = places(np.asarray(result.consensus_z, dtype=float), result.consensus_z)
-    after = places(priority, result.consensus_z)
-    keys = result.keys
-    contributions = found.values * model.weights  # n x d: each evidence's part of the model's shift
-    named = np.array([name != "baseline" for name in found.names])
-    contributions = np.where(named, contributions, 0.0)
-    tops = np.argsort(-np.abs(contributions), axis=1, kind="stable")[:, :REASON_TERMS]  # all records at once
-    out = np.full(n, "", dtype=object)
-    for i in range(n):
-        parts = []
-        row = contributions[i]
-        top = [j for j in tops[i].tolist() if abs(row[j]) >= QUIET]
-        if top:
-            parts.append("verdicts weigh " + ", ".join(f"{found.names[j]} {row[j]:+.2f}" for j in top))
-        like = likeness.reason(i, keys)
-        if like:
-            parts.append(f"{like} {likeness.shift[i]:+.2f}")
-        if pick[i] == LEARN:
-            parts.append("a learning pick: the model is least sure about it")
-        moved = int(before[i] - after[i])
-        if not parts and (moved == 0 or abs(model_shift[i]) < QUIET):
-            continue
-        head = (f"up {moved:,} place{'s' if moved != 1 else ''}" if moved > 0 else
-                f"down {-moved:,} place{'s' if moved != -1 else ''}" if moved < 0 else "same place")
-        out[i] = f"{head} from consensus" + (": " + "; ".join(parts) if parts else "")
     return out

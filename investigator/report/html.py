@@ -528,7 +528,7 @@ def _review_next(result) -> Safe:
             "moves a record's priority by at most 0.25.")
     rows = [[int(learned.review_order[i]), int(result.table.row_numbers[i]), result.keys[i],
              f"{learned.priority[i]:.3f}", f"{result.consensus[i]:.3f}", int(result.rank[i]), learned.pick[i],
-             learned.reason[i]] for i in first]
+             learned.reason_of(int(i))] for i in first]
     return join([tag("p", text),
                  table(["place", "row", "key", "priority", "consensus", "rank", "pick", "why it moved"], rows,
                        numeric=(0, 1, 3, 4, 5), nowrap=(2,)) if rows else tag("p", "Every record has a verdict.")])

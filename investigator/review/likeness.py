@@ -76,10 +76,9 @@ def benign_likeness(X: np.ndarray, benign: np.ndarray, case_of: np.ndarray, radi
     indices[at_benign, :k] = search.location_graph_.indices[own[at_benign]]
     distances[at_benign, :k] = search.location_graph_.distances[own[at_benign]]
     elsewhere = np.flatnonzero(own < 0)
-    for start in range(0, len(elsewhere), 4096):  # the fitted index of the search, in blocks
-        rows = elsewhere[start:start + 4096]
-        d, i = search.index_.kneighbors(X[rows].astype(search.dtype_), n_neighbors=width)
-        indices[rows], distances[rows] = i, d
+    if len(elsewhere):  # the search's fitted index, in one call (its own chunks; each call has a fixed cost)
+        d, i = search.index_.kneighbors(X[elsewhere].astype(search.dtype_), n_neighbors=width)
+        indices[elsewhere], distances[elsewhere] = i, d
     r = np.asarray(radius, dtype=float)
     count = np.zeros(n, dtype=np.int64)
     nearest = np.full(n, -1, dtype=np.int64)

@@ -34,25 +34,47 @@ def review_order(priority: np.ndarray, uncertainty: np.ndarray, reviewed: np.nda
     by_priority = todo[np.lexsort((todo, -np.asarray(consensus_z)[todo], -np.asarray(priority)[todo]))]
     u = np.asarray(uncertainty, dtype=float)
     p = np.asarray(priority, dtype=float)
-    taken = np.zeros(n, dtype=bool)
+    total = len(todo)
+    picked = np.zeros(total, dtype=bool)  # by index into by_priority: taken by a learning pick
+    is_picked = [False] * total           # the same, read one at a time in the loop (numpy scalars are slow)
+    picks: list[tuple[int, int]] = []     # (place, index into by_priority) of every learning pick
+    a = 0       # index into by_priority of the next record not yet placed
+    placed = 0  # places filled so far, likely and learning
+    # Only the learning places need a loop (one in ten); the likely places between them are the priority
+    # order itself, less the records already picked, and are filled at once after.
+    first = EVERY - verdicts % EVERY
+    for place in range(first, total + 1, EVERY):
+        if verdicts + place <= WARM_UP:
+            continue
+        step = place - 1 - placed  # likely places before this one: move past that many unpicked records
+        while step > 0:
+            if not is_picked[a]:
+                step -= 1
+            a += 1
+        while a < total and is_picked[a]:
+            a += 1
+        placed = place - 1
+        if a >= total:
+            break
+        # The least sure among the next CANDIDATES by priority (ties: the earlier by priority): a verdict that
+        # teaches the model, on a record that may well be an anomaly, not on one far down the order.
+        window = np.arange(a, min(total, a + 2 * CANDIDATES))
+        window = window[~picked[window]][:CANDIDATES]
+        records = by_priority[window]
+        plausible = p[records] >= PLAUSIBLE
+        if not plausible.any():
+            continue  # no plausible anomaly to learn from: the place goes to the most likely record
+        chosen = int(window[plausible][int(np.argmax(u[records[plausible]]))])
+        picked[chosen] = is_picked[chosen] = True
+        picks.append((place, chosen))
+        placed = place
     order = np.zeros(n, dtype=np.int64)
     pick = np.full(n, "", dtype=object)
-    a = 0  # the next place in by_priority not yet taken
-    for place in range(1, len(todo) + 1):
-        while taken[by_priority[a]]:
-            a += 1
-        learning = (verdicts + place) % EVERY == 0 and verdicts + place > WARM_UP
-        i = int(by_priority[a])
-        if learning:
-            # The least sure among the next CANDIDATES by priority (ties: the earlier by priority): a verdict
-            # that teaches the model, on a record that may well be an anomaly, not one far down the order.
-            window = by_priority[a:a + CANDIDATES]
-            window = window[~taken[window] & (p[window] >= PLAUSIBLE)]
-            if len(window):
-                i = int(window[int(np.argmax(u[window]))])
-            else:  # no plausible anomaly to learn from: the place goes to the most likely record
-                learning = False
-        taken[i] = True
-        order[i] = place
-        pick[i] = LEARN if learning else EXPLOIT
+    learning_places = np.array([place for place, _ in picks], dtype=np.int64)
+    chosen_records = by_priority[np.array([c for _, c in picks], dtype=np.int64)]
+    order[chosen_records] = learning_places
+    pick[chosen_records] = LEARN
+    likely = by_priority[~picked]
+    order[likely] = np.setdiff1d(np.arange(1, total + 1), learning_places)
+    pick[likely] = EXPLOIT
     return order, pick

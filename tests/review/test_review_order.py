@@ -65,3 +65,31 @@ def test_ties_in_priority_go_by_consensus_then_file_order():
     z = np.array([1.0, 2.0, 2.0, 0.5, 3.0, 1.0])
     order, _ = review_order(priority, np.zeros(6), np.zeros(6, dtype=bool), z, verdicts=0)
     assert np.argsort(order).tolist() == [4, 1, 2, 0, 5, 3]
+
+
+def _place_by_place(priority, uncertainty, reviewed, z, verdicts):
+    """The rule as the module docstring states it, one place at a time (slow, plain): the reference."""
+    n = len(priority)
+    todo = [i for i in range(n) if not reviewed[i]]
+    by_priority = sorted(todo, key=lambda i: (-priority[i], -z[i], i))
+    taken: set[int] = set()
+    order = np.zeros(n, dtype=int)
+    for place in range(1, len(todo) + 1):
+        rest = [i for i in by_priority if i not in taken]
+        i = rest[0]
+        if (verdicts + place) % EVERY == 0 and verdicts + place > WARM_UP:
+            window = [j for j in rest[:CANDIDATES] if priority[j] >= 0.5]
+            if window:
+                i = max(window, key=lambda j: (uncertainty[j], -rest.index(j)))
+        taken.add(i)
+        order[i] = place
+    return order
+
+
+def test_the_fast_order_is_the_rule_place_by_place():
+    for seed, verdicts in [(1, 0), (2, 23), (3, 57), (4, 20)]:
+        priority, uncertainty, z = _case(n=300, seed=seed)
+        priority = np.where(np.arange(300) % 3 == 0, priority * 0.4, priority)  # some implausible records
+        reviewed = np.random.default_rng(seed).random(300) < 0.1
+        order, _ = review_order(priority, uncertainty, reviewed, z, verdicts)
+        assert np.array_equal(order, _place_by_place(priority, uncertainty, reviewed, z, verdicts))

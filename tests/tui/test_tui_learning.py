@@ -90,7 +90,7 @@ async def test_a_verdict_relearns_the_priority_in_a_worker_and_the_record_says_w
         p = app.screen.position
         head = " ".join(screen_text(app).split())  # the head line wraps at the screen's width
         assert after.review_order[p] == 1
-        assert "priority" in head and "next to review: 1;" in head and after.reason[p][:12] in head
+        assert "priority" in head and "next to review: 1;" in head and after.reason_of(p)[:12] in head
 
 
 @run_async

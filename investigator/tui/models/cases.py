@@ -75,7 +75,7 @@ class CasesData:
     pattern_kind: np.ndarray | None = None  # "isolated" / "group" / "" (the CSV's pattern)
     priority: np.ndarray | None = None  # learned from the verdicts (docs/learning.md), when there are some
     review_order: np.ndarray | None = None  # 1-based place in the review order, 0 for a record with a verdict
-    priority_reason: np.ndarray | None = None  # why the priority moved the record
+    learning: object | None = None  # the pipeline.priority.Learning they come from: reason_of(p) says why
     _lower_keys: np.ndarray | None = None
     _frame: pd.DataFrame | None = None
     _where: tuple[str, int, np.ndarray] | None = None  # the last WHERE mask: (condition, verdicts seen, mask)
@@ -108,14 +108,18 @@ class CasesData:
 
     def set_learning(self, learning) -> None:
         """The priority, review order and reasons of a ``pipeline.priority.Learning`` (None: no priority)."""
+        self.learning = learning
         if learning is None:
-            self.priority = self.review_order = self.priority_reason = None
+            self.priority = self.review_order = None
         else:
             self.priority = np.asarray(learning.priority, dtype=float)
             self.review_order = np.asarray(learning.review_order, dtype=np.int64)
-            self.priority_reason = np.asarray(learning.reason, dtype=object)
         self._frame = None  # the WHERE filter's columns change with it
         self._where = None
+
+    def priority_reason(self, p: int) -> str:
+        """Why the priority moved record ``p`` ("" without a priority); built for that record alone."""
+        return self.learning.reason_of(p) if self.learning is not None else ""  # type: ignore[attr-defined]
 
     # -- the WHERE filter ------------------------------------------------------------------------------------
     def frame(self) -> pd.DataFrame:
@@ -134,10 +138,11 @@ class CasesData:
             own.update({f"flag_{k}": v for k, v in self.flags.items()})
             own["verdict"] = np.where(self.verdicts == "", None, self.verdicts)
             own["note"] = np.where(self.notes == "", None, self.notes)
-            if self.priority is not None and self.review_order is not None and self.priority_reason is not None:
+            if self.priority is not None and self.review_order is not None and self.learning is not None:
                 own["priority"] = self.priority
                 own["review_order"] = pd.array([int(o) if o else None for o in self.review_order], dtype="Int64")
-                own["priority_reason"] = np.where(self.priority_reason == "", None, self.priority_reason)
+                reasons = self.learning.reason  # type: ignore[attr-defined]  # every record's, built once
+                own["priority_reason"] = np.where(reasons == "", None, reasons)
             if self.pattern_kind is not None and self.group is not None:
                 own["pattern"] = np.where(self.pattern_kind == "", None, self.pattern_kind)
                 own["group"] = pd.array([int(g) if g > 0 else None for g in self.group], dtype="Int64")

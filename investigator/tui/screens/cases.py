@@ -200,8 +200,8 @@ class CasesScreen(Screen):
             within = (f" Within {data.segment[p]}: {'FLAG' if data.within_flagged[p] else 'not flagged'}, "
                       f"consensus {data.within[p]:.4f}.")
         learned = ""
-        if data.priority is not None and data.priority_reason is not None:
-            why = data.priority_reason[p]
+        if data.priority is not None:
+            why = data.priority_reason(p)
             learned = f" Priority {data.priority[p]:.4f}" + (f": {why}." if why else ".")
         detail.update(plain(
             f"{data.keys[p]} (row {data.rows[p]}, rank {data.rank[p]:,}): {flag}, "

@@ -246,8 +246,8 @@ def _peers(view: RecordView) -> Table | Text:
 def _priority_text(d, p: int) -> str:
     """The priority learned from the verdicts and why it moved the record (docs/learning.md), when there is
     one."""
-    if d.priority is None or d.priority_reason is None or d.review_order is None:
+    if d.priority is None or d.review_order is None:
         return ""
     place = f"next to review: {int(d.review_order[p]):,}" if d.review_order[p] else "reviewed"
-    why = d.priority_reason[p] or "not moved by the verdicts"
+    why = d.priority_reason(p) or "not moved by the verdicts"
     return f" · priority {d.priority[p]:.4f} ({place}; {why})"
