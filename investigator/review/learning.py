@@ -9,12 +9,14 @@ towards "no change", so that a handful of labels can only nudge the order. Ours,
 
 ``x_i`` is the evidence the scan already has for record i (each method's standardised score, column hits,
 cell findings, calendar parts, group membership: built by the pipeline, every entry bounded), and the
-consensus enters as a fixed offset. ``w`` minimises the penalised logistic loss of the verdicts,
+consensus enters as a fixed offset. ``w`` minimises the penalised loss of the verdicts,
 
-    sum_j  weight_j * [log(1 + e^(o_j + x_j w)) - y_j (o_j + x_j w)]  +  (lam / 2) |w|^2,
+    sum_j  weight_j * softplus(k (1 - 2 y_j) t_j) / k  +  (lam / 2) |w|^2,     t_j = o_j + x_j w,
 
-with y = 1 for "matters" (confirmed, follow-up) and 0 for "does not" (benign), solved by Newton's method
-(the loss is strictly convex, so the solution is unique). With no verdicts w = 0 and the priority is the
+with y = 1 for "matters" (confirmed, follow-up) and 0 for "does not" (benign): the logistic loss at k = 1,
+and with ``SHARPNESS`` k = 8 a smooth form of the hinge of Das et al., so that a verdict the order already
+agrees with pulls hardly at all (docs/learning.md says what k = 1 and 4 cost on the demo). Solved by Newton's
+method (the loss is strictly convex, so the solution is unique). With no verdicts w = 0 and the priority is the
 consensus itself, so the order is exactly the consensus order.
 
 **The bound.** At the optimum the gradient vanishes: ``w = (1/lam) sum_j a_j weight_j x_j`` with

@@ -4,12 +4,14 @@ Nine of every ten places go to the most likely remaining anomalies, by priority 
 tenth place goes to the record whose verdict would teach the model most: the one it is least sure about,
 ``p (1 - p) * sqrt(x^T H^-1 x)`` (the logistic slope at its priority times the posterior spread of its
 log-odds, a Laplace approximation; uncertainty sampling), chosen among the next ``CANDIDATES`` (50) records
-by priority. The window keeps the learning picks among records that may well be anomalies: a pick from far
-down the order teaches as much but costs the reviewer an anomaly found (the benchmark measured it: 8 fewer
-found in 100 on a set where most flagged records are anomalies). The
-share counts the verdicts already given, so a reviewer who records one verdict after another gets one
-learning pick per ten verdicts however often the order is recomputed: place k of the order is a learning
-pick when ``(verdicts + k) % 10 == 0``.
+by priority whose priority is at least 0.5 (more likely an anomaly than not). None comes among the first 20
+verdicts, so the first is the 30th (before that the model's uncertainty is mostly its penalty's). The window
+keeps the learning picks among records that may well be anomalies: a pick from far down the order teaches as
+much but costs the reviewer an anomaly found (the benchmark measured it: 8 fewer found in 100 on a set where
+most flagged records are anomalies). When no record in the window qualifies, the place goes to the most
+likely record. The share counts the verdicts already given, so a reviewer who records one verdict after
+another gets one learning pick per ten verdicts however often the order is recomputed: place k of the order
+is a learning pick when ``(verdicts + k) % 10 == 0``.
 """
 
 from __future__ import annotations
@@ -19,7 +21,7 @@ import numpy as np
 LEARNING_SHARE = 0.1         # the share of places for the records the model is least sure about
 EVERY = round(1 / LEARNING_SHARE)  # every tenth
 CANDIDATES = 50  # a learning pick is chosen among the next 50 records by priority
-WARM_UP = 20  # no learning pick before the 20th verdict (module docstring)
+WARM_UP = 20  # no learning pick among the first 20 verdicts: the first is the 30th (module docstring)
 PLAUSIBLE = 0.5  # ... whose priority is at least this: more likely an anomaly than not (0.5 is the cutoff)
 EXPLOIT, LEARN = "likely", "learning"
 
