@@ -221,3 +221,21 @@ def test_clusters_of_unequal_size(tmp_path):
     assert learned is not None and np.isfinite(learned.shift).all()
     assert np.array_equal(result.flagged, plain.flagged)
     assert sorted(learned.review_order[learned.review_order > 0]) == list(range(1, len(frame) - 3))
+
+
+def test_the_report_and_its_cases_table_show_the_review_order(data, tmp_path, cli):
+    mark(data, ["GR-40599", "GR-40598"], "benign")
+    html = tmp_path / "report.html"
+    code, _, err = cli("report", data, "--id", KEY, "--out", html)
+    assert code == 0, err
+    text = html.read_text(encoding="utf-8")
+    assert 'id="next"' in text and "What to review next" in text and "Learned from 2 verdicts" in text
+    assert '<td class="num">1</td>' in text.split('id="next"')[1]  # the first place of the review order
+    table = tmp_path / "cases.csv"
+    assert cli("report", data, "--id", KEY, "--out", table)[0] == 0
+    cases = pd.read_csv(table)
+    assert {"priority", "review_order", "priority_reason"} <= set(cases.columns)
+    # The rest of the calibration batch is flagged, so in the table, lowered with its reason.
+    assert cases["priority_reason"].fillna("").str.contains("like GR-4059").sum() >= 8
+    assert cli("report", data, "--id", KEY, "--out", tmp_path / "plain.csv", "--no-learn")[0] == 0
+    assert "priority" not in pd.read_csv(tmp_path / "plain.csv").columns
