@@ -8,6 +8,7 @@ from pathlib import Path
 
 from investigator.cli.options import (
     add_column_options,
+    add_learn_option,
     add_reference_options,
     add_scan_options,
     check_reference_options,
@@ -29,6 +30,7 @@ def register(sub) -> dict[str, Callable[[argparse.Namespace], int]]:
     add_scan_options(p)  # the same options as scan, so the same flags give the same result
     p.add_argument("--store", metavar="PATH", help="the review store (default: DATA.investigation.sqlite, or "
                    "the store of the same records under another name in its folder)")
+    add_learn_option(p)
     p.add_argument("--scan", action="store_true", help="start the scan at once instead of on the Columns screen")
     add_column_options(p, "the Cases list shows", "the Cases list starts filtered by it (w changes it)")
     return {"open": run_open}
@@ -45,7 +47,7 @@ def run_open(args: argparse.Namespace) -> int:
         raise InputError(f"--reference {args.reference}: no such file; check the path")
     InvestigatorApp(args.data, scan_parameters(args), autoscan=args.scan, store=args.store,
                     reference=args.reference, reference_sheet=args.reference_sheet, error_text=flag_message,
-                    columns=column_choice(args), where=args.where).run()
+                    columns=column_choice(args), where=args.where, learn=args.learn).run()
     return 0
 
 

@@ -125,10 +125,11 @@ def run_engine(args: argparse.Namespace, options, progress, store=None, on_load=
     from investigator.pipeline.engine import check, scan
 
     check_reference_options(args)
+    learn = getattr(args, "learn", True)
     if getattr(args, "reference", None) is not None:
         return check(args.data, reference=args.reference, reference_sheet=args.reference_sheet, options=options,
-                     progress=progress, store=store, on_load=on_load)
-    return scan(args.data, options=options, progress=progress, store=store, on_load=on_load)
+                     progress=progress, store=store, on_load=on_load, learn=learn)
+    return scan(args.data, options=options, progress=progress, store=store, on_load=on_load, learn=learn)
 
 
 def add_output_options(p: argparse.ArgumentParser, data: str) -> None:
@@ -136,8 +137,15 @@ def add_output_options(p: argparse.ArgumentParser, data: str) -> None:
     p.add_argument("--store", metavar="PATH", help="review store to read verdicts from "
                    f"(default: {data}.investigation.sqlite when it exists, else the store of the same records "
                    "under another name in its folder)")
+    add_learn_option(p)
     p.add_argument("--top", metavar="N", type=int, default=10, help="flagged records in the summary")
     p.add_argument("--quiet", action="store_true", help="no summary and no progress bar")
+
+
+def add_learn_option(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--no-learn", dest="learn", action="store_false",
+                   help="leave out the priority learned from the verdicts in the review store (priority, review_order, "
+                   "priority_reason; docs/learning.md): the consensus order only")
 
 
 WHERE_EXAMPLE = "\"amount > 5000 AND vendor = 'Q17'\""

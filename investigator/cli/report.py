@@ -13,6 +13,7 @@ from pathlib import Path
 from investigator.cli.echo import echo
 from investigator.cli.options import (
     add_column_options,
+    add_learn_option,
     add_reference_options,
     add_scan_options,
     check_reference_options,
@@ -48,6 +49,7 @@ def register(subparsers) -> dict[str, Callable[[argparse.Namespace], int]]:
     p.add_argument("--store", metavar="PATH",
                    help="review store to read verdicts from (default: DATA.investigation.sqlite if it exists, "
                    "else the store of the same records under another name in its folder)")
+    add_learn_option(p)
     add_column_options(p, "the cases table (.xlsx, .csv) shows", "the cases table (.xlsx, .csv) keeps only the "
                        "cases for which it holds")
     return {"report": run_report}

@@ -29,7 +29,8 @@ PREFIX = "input."
 # column of one of these names is written with PREFIX.
 RESULT_COLUMNS = frozenset({
     "row", "key", "rank", "consensus", "consensus_z", "votes", "flagged", "flag_reason", "column_hits", "imputed",
-    "top_features", "cells", "stability", "out_of_spec", "verdict", "note", "map_x", "map_y", "kind", "pattern",
+    "top_features", "cells", "stability", "out_of_spec", "verdict", "note", "priority", "review_order",
+    "priority_reason", "map_x", "map_y", "kind", "pattern",
     "group", "group_size", "segment", "within_consensus", "within_flagged", "within_scored_against",
     "case", "nearest_ordinary_change", "reviewer", "verdict_at", "changed_since_verdict",
 })

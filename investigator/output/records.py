@@ -50,6 +50,10 @@ def record(result: ScanResult, i: int, explained: Explanation | None = None) -> 
     if result.verdicts is not None:
         extra["verdict"] = result.verdicts[i]
         extra["note"] = result.notes[i] if result.notes is not None else None
+    if result.learning is not None:  # learned from verdicts: beside the consensus, never instead of it
+        learned = result.learning
+        extra.update(priority=_num(learned.priority[i]), review_order=int(learned.review_order[i]) or None,
+                     priority_reason=learned.reason[i] or None)
     if result.groups is not None:
         g = result.groups.record(i)
         extra.update(pattern=g["pattern"], group=g["group"], group_size=g["group_size"])
@@ -126,6 +130,12 @@ def result_frame(result: ScanResult) -> pd.DataFrame:
                               for hits in result.out_of_spec]
     if result.verdicts is not None:
         out["verdict"], out["note"] = result.verdicts, result.notes
+    if result.learning is not None:  # review_order: a nullable integer, empty for records with a verdict
+        learned = result.learning
+        out["priority"] = learned.priority
+        order = np.asarray(learned.review_order, dtype=np.int64)
+        out["review_order"] = pd.arrays.IntegerArray(order, order == 0)
+        out["priority_reason"] = list(learned.reason)
     if result.map is not None:
         out["map_x"], out["map_y"] = result.map[:, 0], result.map[:, 1]
     if result.kinds is not None:  # the kind of normal (large cluster) a record belongs to: a nullable integer

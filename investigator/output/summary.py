@@ -120,6 +120,8 @@ def summary_text(result: ScanResult, top: int = 10) -> str:
             )
         if result.stability is not None:
             lines.append(f"  runs: resampled runs (of {runs}) that flag the record; below half is unstable")
+    if result.learning is not None:
+        lines += _review_next_lines(result, top)
     lines.append("")
     lines.append(CAUTION)
     return "\n".join(lines)
@@ -174,6 +176,27 @@ def _within_lines(result: ScanResult, top: int) -> list[str]:
         for i in order:
             lines.append(f"  {int(result.table.row_numbers[i]):>6}  {_short(result.keys[i]):<14} "
                          f"{w.consensus[i]:>7.3f} {result.consensus[i]:>7.3f}  {printable(w.label(i))}")
+    return lines
+
+
+def _review_next_lines(result: ScanResult, top: int) -> list[str]:
+    """The review order learned from the verdicts (docs/learning.md): the next records to review, with the
+    priority beside the consensus; flags and consensus above are the scan's own."""
+    learned = result.learning
+    assert learned is not None
+    run = result.run.learning or {}
+    todo = np.flatnonzero(learned.review_order > 0)
+    first = todo[np.argsort(learned.review_order[todo], kind="stable")][:top]
+    lines = ["", f"Review next (priority learned from {run.get('verdicts', 0):,} verdicts: {run.get('matters', 0):,} "
+                 f"confirmed or follow-up, {run.get('benign', 0):,} benign; flags and consensus above are unchanged; "
+                 "--no-learn leaves this out):"]
+    if not len(first):
+        return [*lines, "  every record has a verdict"]
+    lines.append(f"  {'next':>5} {'row':>6}  {'key':<14} {'priority':>8} {'consensus':>9} {'rank':>6}  why it moved")
+    for i in first:
+        lines.append(f"  {int(learned.review_order[i]):>5} {int(result.table.row_numbers[i]):>6}  "
+                     f"{_short(result.keys[i]):<14} {learned.priority[i]:>8.3f} {result.consensus[i]:>9.3f} "
+                     f"{int(result.rank[i]):>6}  {printable(learned.reason_of(int(i)))}")
     return lines
 
 

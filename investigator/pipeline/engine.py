@@ -24,6 +24,7 @@ from investigator.methods.column_rules import ColumnRules
 from investigator.methods.hotelling import Hotelling
 from investigator.pipeline.approximations import approximations
 from investigator.pipeline.options import ScanOptions
+from investigator.pipeline.priority import learn as learn_priority
 from investigator.pipeline.reference import check_columns, clean_reference
 from investigator.pipeline.result import MethodResult, ScanResult
 from investigator.pipeline.run_record import (
@@ -53,7 +54,7 @@ from investigator.prepare.calendar import calendar_columns
 from investigator.prepare.features import FeaturePreparer, Features, beyond_bound_notices, column_numbers
 from investigator.prepare.roles import assign_roles
 from investigator.progress import Progress, silent
-from investigator.review.matching import match_store
+from investigator.review.matching import Matching, match_store
 from investigator.review.store import ReviewStore
 from investigator.review.stores import GIVEN, find_store
 from investigator.structure.groups import find_groups
@@ -333,15 +334,17 @@ def _versions() -> dict:
 
 
 def scan(data, *, progress: Progress = silent, store=None, on_load: Callable[[Table], None] | None = None,
-         **options) -> ScanResult:
+         learn: bool = True, **options) -> ScanResult:
     """Scan a table (a path to CSV/TSV/Parquet/XLSX, or a pandas DataFrame) and return a ScanResult.
 
     Options are those of ``investigator scan``: ``id``, ``features``, ``exclude``, ``methods``, ``log``,
     ``cutoff``, ``contamination``, ``seed``, ``sheet``, ``decimal``, ``header_row``, ``exact``, ``resamples``,
     ``digits``, ``threshold``, ``round``, ``duplicates``, ``limits``, ``within`` (peer
     groups: also score every record against its segment, pipeline/within.py). When a review store exists (``store``, or
-    ``<data>.investigation.sqlite`` beside a data file), each record also gets its current verdict and note.
-    ``on_load``: called with the loaded table before any work on it (the commands check their output options
+    ``<data>.investigation.sqlite`` beside a data file), each record also gets its current verdict and note, and, when
+    some verdict says confirmed, follow-up or benign, a ``priority`` learned from them (``result.learning``,
+    docs/learning.md; ``learn=False`` leaves it out). ``on_load``: called with the loaded table before any
+    work on it (the commands check their output options
     there, so that a wrong column name costs no scan). Raises :class:`InputError` on bad input.
     """
     opts = options.pop("options", None)
@@ -352,13 +355,14 @@ def scan(data, *, progress: Progress = silent, store=None, on_load: Callable[[Ta
     table = load_table(data, sheet=opts.sheet, id_column=opts.id, decimal=opts.decimal, header_row=opts.header_row)
     if on_load is not None:
         on_load(table)
-    return attach_verdicts(run_scan(table, opts, progress), data, store)
+    return attach_verdicts(run_scan(table, opts, progress), data, store, learn=learn)
 
 
-def attach_verdicts(result: ScanResult, data, store=None) -> ScanResult:
+def attach_verdicts(result: ScanResult, data, store=None, *, learn: bool = True) -> ScanResult:
     """Add the current verdict and note of each record when a review store exists (``store``, the one named
     for the data file, or the one of the same records under another name: review/stores.py); a store is only
-    read here, never created."""
+    read here, never created. With ``learn`` and verdicts that say confirmed, follow-up or benign, also the
+    priority learned from them (:func:`investigator.pipeline.priority.learn`)."""
     found = find_store(result.table, data, store)
     if found is None or (found.how != GIVEN and not found.exists):
         return result
@@ -369,11 +373,23 @@ def attach_verdicts(result: ScanResult, data, store=None) -> ScanResult:
     if found.by_content:
         notices += (found.describe(result.table.name),)
     result.run = dataclasses.replace(result.run, review_store=str(found.path), notices=notices)
+    if learn:
+        attach_learning(result, matching)
+    return result
+
+
+def attach_learning(result: ScanResult, matching: Matching) -> ScanResult:
+    """Set (or clear) ``result.learning`` and ``run.learning`` from the verdicts in ``matching``; reuses the
+    evidence of an earlier learning of the same result (the workspace relearns after each verdict)."""
+    result.learning = learn_priority(result, matching, result.learning)
+    result.run = dataclasses.replace(result.run,
+                                     learning=result.learning.describe() if result.learning is not None else None)
     return result
 
 
 def check(data, *, reference, progress: Progress = silent, reference_sheet: str | None = None,
-          store=None, on_load: Callable[[Table], None] | None = None, **options) -> ScanResult:
+          store=None, on_load: Callable[[Table], None] | None = None, learn: bool = True,
+          **options) -> ScanResult:
     """Score the records of ``data`` against a trusted ``reference`` table (paths or DataFrames).
 
     Preparation and every method are fitted on the reference only, after phase I cleaning (records the
@@ -389,7 +405,7 @@ def check(data, *, reference, progress: Progress = silent, reference_sheet: str 
     table, ref = check_tables(data, reference, opts, reference_sheet=reference_sheet)
     if on_load is not None:
         on_load(table)
-    return attach_verdicts(run_scan(table, opts, progress, reference=ref), data, store)
+    return attach_verdicts(run_scan(table, opts, progress, reference=ref), data, store, learn=learn)
 
 
 def check_tables(data, reference, options: ScanOptions, *, reference_sheet: str | None = None) -> tuple[Table, Table]:

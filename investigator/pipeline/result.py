@@ -37,6 +37,7 @@ from investigator.structure.kinds import KindCalibration, KindsOfNormal
 if TYPE_CHECKING:
     import pandas as pd
 
+    from investigator.pipeline.priority import Learning
     from investigator.pipeline.within import PeerGroups
 
 if TYPE_CHECKING:
@@ -115,6 +116,7 @@ class ScanResult:
     group_cases: list[GroupCase] | None = None  # each small group as one case, with its profile
     kinds: KindsOfNormal | None = None  # the large clusters, each with its own fit
     within: PeerGroups | None = None  # with ``within``: every record judged within its segment too
+    learning: Learning | None = None  # with verdicts in the store: the priority learned from them (priority.py)
     explainer: Explainer = field(init=False, repr=False)
     cells: CellFinder = field(init=False, repr=False)
 

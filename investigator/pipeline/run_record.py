@@ -196,6 +196,7 @@ class RunRecord:
     within: dict | None = None  # peer groups (--within): the columns, the line, every segment and where it was scored
     review_store: str | None = None
     calendar: dict | None = None  # the date columns' calendar parts, durations, working hours, holidays
+    learning: dict | None = None  # the priority learned from verdicts: verdicts used, the model's parameters
 
     def __post_init__(self) -> None:
         # Copies: the scan's own objects could otherwise change the record after the fact.
@@ -240,6 +241,8 @@ class RunRecord:
             out["within"] = self.within
         if self.review_store is not None:
             out["review_store"] = self.review_store
+        if self.learning is not None:
+            out["learning"] = self.learning
         return out
 
 

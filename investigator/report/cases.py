@@ -107,7 +107,8 @@ def filter_cases(result, cases: list[Case], where) -> list[Case]:
 def result_rows(result, cases: list[Case]) -> tuple[list[str], list[list]]:
     """The result columns of the cases table: headers and one row per case."""
     methods = list(result.method_results)
-    extra = [k for k in ("stability", "kind", "pattern", "group") if any(k in c.record for c in cases)]
+    extra = [k for k in ("stability", "kind", "pattern", "group", "priority", "review_order", "priority_reason")
+             if any(k in c.record for c in cases)]
     headers = (["case", "rank", "row", "key", "consensus", "consensus_z", "votes", "flagged", "flag_reason"]
                + [f"flag_{k}" for k in methods]
                + ["cells", "top_features", "column_hits", "nearest_ordinary_change"] + extra

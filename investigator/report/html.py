@@ -98,8 +98,10 @@ def render_html(result, review: Review, *, cases: int = 50, generated: str) -> s
     coords = _map_coordinates(result)
     if coords is not None:
         sections.append(("map", "Map", _map(result, coords, flagged)))
+    sections.append(("verdicts", "Verdicts and notes", _verdicts(result, review)))
+    if result.learning is not None:
+        sections.append(("next", "What to review next", _review_next(result)))
     sections += [
-        ("verdicts", "Verdicts and notes", _verdicts(result, review)),
         ("cases", "The cases in detail", _case_details(result, shown, counts)),
         ("cautions", "Cautions", items(CAUTIONS)),
     ]
@@ -507,6 +509,29 @@ def _map(result, xy: np.ndarray, shown: list[Case]) -> Safe:
 
 
 # -- verdicts ------------------------------------------------------------------------------------------------
+
+
+NEXT_SHOWN = 25
+
+
+def _review_next(result) -> Safe:
+    """The review order learned from the verdicts (docs/learning.md): its first places, with the priority
+    beside the consensus and why each record moved."""
+    learned = result.learning
+    run = result.run.learning or {}
+    todo = np.flatnonzero(learned.review_order > 0)
+    first = todo[np.argsort(learned.review_order[todo], kind="stable")][:NEXT_SHOWN]
+    text = (f"Learned from {_plural(int(run.get('verdicts', 0)), 'verdict')} ({run.get('matters', 0)} confirmed or "
+            f"follow-up, {run.get('benign', 0)} benign). The priority is a separate column: flags, consensus and "
+            "rank are the scan's own. Nine of ten places go to the most likely remaining anomalies by priority, "
+            "every tenth to a record whose verdict would teach the model most (a learning pick). One verdict "
+            "moves a record's priority by at most 0.25.")
+    rows = [[int(learned.review_order[i]), int(result.table.row_numbers[i]), result.keys[i],
+             f"{learned.priority[i]:.3f}", f"{result.consensus[i]:.3f}", int(result.rank[i]), learned.pick[i],
+             learned.reason_of(int(i))] for i in first]
+    return join([tag("p", text),
+                 table(["place", "row", "key", "priority", "consensus", "rank", "pick", "why it moved"], rows,
+                       numeric=(0, 1, 3, 4, 5), nowrap=(2,)) if rows else tag("p", "Every record has a verdict.")])
 
 
 def _verdicts(result, review: Review) -> Safe:

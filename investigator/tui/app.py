@@ -6,6 +6,7 @@ them, so the first frame appears before pandas and scikit-learn are loaded.
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Callable
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -65,15 +66,17 @@ class InvestigatorApp(App):
     def __init__(self, path: str | Path, options=None, *, autoscan: bool = False, store=None,
                  reference=None, reference_sheet: str | None = None,
                  show_hint: bool | None = None, error_text: Callable[[InputError], str] = str,
-                 columns=None, where: str | None = None) -> None:
+                 columns=None, where: str | None = None, learn: bool = True) -> None:
         """``options``: a ScanOptions, or a dict of its fields (validated in the load worker, so a bad option
         shows as a one-line error in the UI and the first frame does not wait for the engine's imports).
         ``reference``: a trusted reference file; the records are scored against its fit, as ``check`` does.
         ``error_text``: the line shown for an InputError (``investigator open`` passes the one that speaks of
         its flags; by default the message as the API gives it). ``columns``: the input columns Cases shows at
         first (None: all, empty: none); ``where``: the SQL WHERE condition Cases starts filtered by (both
-        checked in the load worker)."""
+        checked in the load worker). ``learn``: learn a priority from the verdicts (``--no-learn``: not)."""
         super().__init__()
+        self.learn = learn
+        self.learn_version = 0  # the latest relearn asked for; an older one that finishes later is dropped
         self.case_columns = tuple(columns) if columns is not None else None
         self.case_where = where
         self.error_text = error_text
@@ -143,7 +146,9 @@ class InvestigatorApp(App):
             self.call_from_thread(setattr, self, "progress", (stage, fraction))
 
         self.progress = ("starting", 0.0)
-        self.run_worker(lambda: jobs.run(table, options, progress, token, store_arg, path, reference=reference),
+        learn = self.learn
+        self.run_worker(lambda: jobs.run(table, options, progress, token, store_arg, path, reference=reference,
+                                         learn=learn),
                         thread=True, name="scan", group="scan", exit_on_error=False)
 
     def cancel_scan(self) -> None:
@@ -288,6 +293,7 @@ class InvestigatorApp(App):
         self.result.verdicts, self.result.notes = verdicts, notes
         self.cases.set_verdicts(verdicts, notes)
         self.review_version += 1
+        self.relearn()
         if done is not None:
             done()
         self.notify_plain(f"Saved: {what} are {entries[0].verdict}, {len(entries)} "
@@ -301,8 +307,31 @@ class InvestigatorApp(App):
         self.result.verdicts, self.result.notes = verdicts, notes
         self.cases.set_verdicts(verdicts, notes)
         self.review_version += 1
+        self.relearn()
         self.notify_plain(f"Saved: {entry.key or 'row ' + str(entry.row)} is {entry.verdict} "
                     f"(in {self.store_path().name})")
+
+    def relearn(self) -> None:
+        """Recompute the priority from the verdicts in a worker (docs/learning.md); keys go on meanwhile, and
+        Cases and the Record screen show the new order when it is there."""
+        if not self.learn or self.result is None:
+            return
+        self.learn_version += 1
+        result, store, version = self.result, self.store_path(), self.learn_version
+        self.run_worker(lambda: jobs.relearn(result, store, version), thread=True, name="learn", group="learn",
+                        exit_on_error=False)
+
+    def _done_learn(self, value, error) -> None:
+        if error is not None:
+            self.notify_plain(f"Priority not recomputed: {self._message(error)}", severity="error")
+            return
+        version, learning, described = value
+        if version != self.learn_version or self.result is None or self.cases is None:
+            return  # a newer verdict asked for a newer order
+        self.result.learning = learning
+        self.result.run = dataclasses.replace(self.result.run, learning=described)
+        self.cases.set_learning(learning)
+        self.review_version += 1
 
     def open_group(self, position: int) -> None:
         """Open the small group the record at ``position`` belongs to as one case, with its profile."""

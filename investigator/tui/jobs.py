@@ -83,7 +83,7 @@ class CancelToken:
 
 
 def run(table, options, progress, token: CancelToken, store: Path | None, path: str | Path | None,
-        reference=None):
+        reference=None, learn: bool = True):
     """Scan ``table`` (against ``reference``, a Table, when given: the fit of ``check``); ``progress(stage,
     fraction)`` is the engine's callback. The scan stops at the next progress report after ``token.cancel()``
     (the engine reports between its steps). ``store``: the review store to read, when it exists. Returns the
@@ -100,7 +100,7 @@ def run(table, options, progress, token: CancelToken, store: Path | None, path: 
     if token.cancelled:
         raise ScanCancelled
     if path is not None and store is not None:
-        attach_verdicts(result, path, store)
+        attach_verdicts(result, path, store, learn=learn)
     report("preparing the cases", 1.0)
     return result, cases_data(result), content_key(table)
 
@@ -115,6 +115,19 @@ def save_verdict(table, position: int, state: str, note: str | None, store: Path
     with ReviewStore(store, create=False) as review:
         matching = match_store(table, review)
     return entry, matching.verdicts(), matching.notes()
+
+
+def relearn(result, store: Path, version: int):
+    """The priority learned from the store's verdicts now (docs/learning.md), after a verdict: the store is
+    read, never written, and ``result`` is not changed here (the UI thread sets what this returns). Returns
+    (version, learning or None, its run record section or None)."""
+    from investigator.pipeline.priority import learn  # with the engine, loaded by the scan already
+    from investigator.review.matching import match_store  # pandas: deferred as in save_verdict
+
+    with ReviewStore(store, create=False) as review:
+        matching = match_store(result.table, review)
+    learning = learn(result, matching, result.learning)
+    return version, learning, learning.describe() if learning is not None else None
 
 
 def save_verdicts(table, positions: list[int], state: str, note: str | None, store: Path, run_id: str | None,

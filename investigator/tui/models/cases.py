@@ -73,6 +73,9 @@ class CasesData:
     consensus_z: np.ndarray | None = None
     group: np.ndarray | None = None   # the small group's or large cluster's id, -1 for none (the CSV's group)
     pattern_kind: np.ndarray | None = None  # "isolated" / "group" / "" (the CSV's pattern)
+    priority: np.ndarray | None = None  # learned from the verdicts (docs/learning.md), when there are some
+    review_order: np.ndarray | None = None  # 1-based place in the review order, 0 for a record with a verdict
+    learning: object | None = None  # the pipeline.priority.Learning they come from: reason_of(p) says why
     _lower_keys: np.ndarray | None = None
     _frame: pd.DataFrame | None = None
     _where: tuple[str, int, np.ndarray] | None = None  # the last WHERE mask: (condition, verdicts seen, mask)
@@ -88,7 +91,8 @@ class CasesData:
 
     def sorts(self) -> list[str]:
         """Every column the records can be sorted by: the result columns, then the input columns."""
-        return ["consensus", "rank", "flag", *(["within"] if self.within is not None else []), "votes", *self.methods,
+        return ["consensus", *(["priority"] if self.priority is not None else []), "rank", "flag",
+                *(["within"] if self.within is not None else []), "votes", *self.methods,
                 *(["pattern"] if self.pattern is not None else []), "verdict", "note", "key",
                 *(self.inputs.names if self.inputs is not None else [])]
 
@@ -101,6 +105,21 @@ class CasesData:
         if self._frame is not None:
             self._frame["verdict"] = np.where(self.verdicts == "", None, self.verdicts)
             self._frame["note"] = np.where(self.notes == "", None, self.notes)
+
+    def set_learning(self, learning) -> None:
+        """The priority, review order and reasons of a ``pipeline.priority.Learning`` (None: no priority)."""
+        self.learning = learning
+        if learning is None:
+            self.priority = self.review_order = None
+        else:
+            self.priority = np.asarray(learning.priority, dtype=float)
+            self.review_order = np.asarray(learning.review_order, dtype=np.int64)
+        self._frame = None  # the WHERE filter's columns change with it
+        self._where = None
+
+    def priority_reason(self, p: int) -> str:
+        """Why the priority moved record ``p`` ("" without a priority); built for that record alone."""
+        return self.learning.reason_of(p) if self.learning is not None else ""  # type: ignore[attr-defined]
 
     # -- the WHERE filter ------------------------------------------------------------------------------------
     def frame(self) -> pd.DataFrame:
@@ -119,6 +138,11 @@ class CasesData:
             own.update({f"flag_{k}": v for k, v in self.flags.items()})
             own["verdict"] = np.where(self.verdicts == "", None, self.verdicts)
             own["note"] = np.where(self.notes == "", None, self.notes)
+            if self.priority is not None and self.review_order is not None and self.learning is not None:
+                own["priority"] = self.priority
+                own["review_order"] = pd.array([int(o) if o else None for o in self.review_order], dtype="Int64")
+                reasons = self.learning.reason  # type: ignore[attr-defined]  # every record's, built once
+                own["priority_reason"] = np.where(reasons == "", None, reasons)
             if self.pattern_kind is not None and self.group is not None:
                 own["pattern"] = np.where(self.pattern_kind == "", None, self.pattern_kind)
                 own["group"] = pd.array([int(g) if g > 0 else None for g in self.group], dtype="Int64")
@@ -175,6 +199,9 @@ class CasesData:
         if sort in ("consensus", "rank"):
             return self.ranking
         rank = self._consensus_rank()  # ties in any sort keep the consensus order
+        if sort == "priority" and self.review_order is not None:
+            # The review order; records with a verdict after it, in consensus order.
+            return np.lexsort((rank, np.where(self.review_order > 0, self.review_order, self.n + 1)))
         if sort == "flag":
             primary = (~self.flagged).astype(np.int64)
         elif sort == "note":
@@ -252,4 +279,5 @@ def cases_data(result) -> CasesData:
         data.within_flagged = np.asarray(within.flagged, dtype=bool)
         data.segment = np.array([s.label for s in within.segments], dtype=object)[within.segment]
     data.set_verdicts(result.verdicts, result.notes)
+    data.set_learning(getattr(result, "learning", None))
     return data

@@ -50,6 +50,8 @@ class CasesScreen(Screen):
         Binding("space", "mark", "Mark/unmark (v then sets the verdict of every marked record)", show=False),
         Binding("u", "unmark", "Unmark all", show=False),
         Binding("i", "hint", "Hint", show=False),
+        # Not in the footer (full at 80 columns); the status line names it when there is a priority.
+        Binding("p", "priority", "Review order (learned from verdicts) / consensus order", show=False),
         Binding("escape", "leave_search", show=False),
     ]
 
@@ -85,6 +87,9 @@ class CasesScreen(Screen):
 
     def _new_cases(self) -> None:
         self.marked.clear()  # a new scan: marks were on the last one's list
+        data = self.app.cases
+        if data is not None and data.priority is not None and self.sort == "consensus" and not self.reverse:
+            self.sort = "priority"  # verdicts exist: the review order they teach comes first (p: consensus)
         self.refill()
 
     def refill(self, keep: bool = True) -> None:
@@ -111,6 +116,8 @@ class CasesScreen(Screen):
         direction = self._direction(data)
         result = self.app.result
         screens = " · t: screens" if result is not None and result.run.screens else ""
+        if data.priority is not None:
+            screens += " · p: consensus order" if self.sort == "priority" else " · p: review order"
         self._status = (f"{int(data.flagged.sum()):,} flagged of {data.n:,} · showing {len(order):,} "
                         f"({self.filter.describe()}) · sorted by {self.sort}, {direction}{screens}"
                         + self._out_of_spec(result))
@@ -120,6 +127,8 @@ class CasesScreen(Screen):
 
     def _direction(self, data) -> str:
         """The sort's direction in words."""
+        if self.sort == "priority":
+            return "last to review first" if self.reverse else "review order, learned from the verdicts"
         if self.sort in ("key", "pattern", "note"):
             return "Z to A" if self.reverse else "A to Z"
         if self.sort == "verdict":
@@ -190,10 +199,14 @@ class CasesScreen(Screen):
         if data.within is not None and data.within_flagged is not None and data.segment is not None:
             within = (f" Within {data.segment[p]}: {'FLAG' if data.within_flagged[p] else 'not flagged'}, "
                       f"consensus {data.within[p]:.4f}.")
+        learned = ""
+        if data.priority is not None:
+            why = data.priority_reason(p)
+            learned = f" Priority {data.priority[p]:.4f}" + (f": {why}." if why else ".")
         detail.update(plain(
             f"{data.keys[p]} (row {data.rows[p]}, rank {data.rank[p]:,}): {flag}, "
             f"above the cutoff of {', '.join(which) or 'no method'}. Column hits: {hit_text}.{within}{screens} "
-            f"Verdict: {verdict}{note}"))
+            f"Verdict: {verdict}{note}{learned}"))
 
     def on_cases_table_selected(self, event: CasesTable.Selected) -> None:
         self.app.open_record(event.position, self.table.order)
@@ -214,6 +227,17 @@ class CasesScreen(Screen):
         else:
             self.sort, self.reverse = column, False
         self.refill(keep=False)  # a new order starts at its top
+
+    def action_priority(self) -> None:
+        """Between the review order learned from the verdicts and the consensus order."""
+        data = self.app.cases
+        if data is None or data.priority is None:
+            self.notify("No priority yet: it is learned once a record is confirmed, follow-up or benign.",
+                        severity="warning")
+            return
+        self.sort = "consensus" if self.sort == "priority" else "priority"
+        self.reverse = False
+        self.refill(keep=False)
 
     def action_reverse(self) -> None:
         self.reverse = not self.reverse

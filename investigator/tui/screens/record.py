@@ -129,7 +129,7 @@ class RecordScreen(Screen):
         self.query_one("#record-head", Static).update(plain(
             f"Record {d.keys[p]} · row {d.rows[p]} · rank {d.rank[p]:,} · {flag} · consensus "
             f"{d.consensus[p]:.4f} · votes {d.votes[p]}/{len(d.methods)} · verdict: {verdict}{note} · "
-            f"{self.index + 1} of {len(self.order)}"))
+            f"{self.index + 1} of {len(self.order)}" + _priority_text(d, p)))
         self.query_one("#record-row", Static).update(_record_row(d, p, self.size.width))
 
     def on_resize(self) -> None:
@@ -241,3 +241,13 @@ def _peers(view: RecordView) -> Table | Text:
     for p in peers:
         t.add_row(plain(f"{p.key} d={p.distance:.2f}"), *[plain(format_value(p.values.get(n))) for n in names])
     return t
+
+
+def _priority_text(d, p: int) -> str:
+    """The priority learned from the verdicts and why it moved the record (docs/learning.md), when there is
+    one."""
+    if d.priority is None or d.review_order is None:
+        return ""
+    place = f"next to review: {int(d.review_order[p]):,}" if d.review_order[p] else "reviewed"
+    why = d.priority_reason(p) or "not moved by the verdicts"
+    return f" · priority {d.priority[p]:.4f} ({place}; {why})"

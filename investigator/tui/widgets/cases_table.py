@@ -164,6 +164,8 @@ class CasesTable(Widget, can_focus=True):
         if d is None:
             return []
         cols = [("flag", "flag"), ("consensus", "consensus")]
+        if d.priority is not None:  # learned from the verdicts; its own column beside the consensus
+            cols.append(("priority", "priority"))
         if d.within is not None:  # peer groups: consensus within the record's segment, * when flagged there
             cols.append(("within", "within"))
         cols.append(("votes", "votes"))
@@ -193,8 +195,8 @@ class CasesTable(Widget, can_focus=True):
         d = self.data
         assert d is not None
         # Each wide enough for its name and the sort mark (consensus▼).
-        fixed = {"flag": (5, False), "consensus": (10, True), "within": (9, True), "votes": (6, True),
-                 "pattern": (9, False), "verdict": (9, False)}
+        fixed = {"flag": (5, False), "consensus": (10, True), "priority": (9, True), "within": (9, True),
+                 "votes": (6, True), "pattern": (9, False), "verdict": (9, False)}
         if cid in fixed:
             return fixed[cid]
         if cid in d.scores:
@@ -240,6 +242,8 @@ class CasesTable(Widget, can_focus=True):
             return f"{d.consensus[p]:.4f}"
         if col == "votes":
             return f"{d.votes[p]}/{len(d.methods)}"
+        if col == "priority" and d.priority is not None:
+            return f"{d.priority[p]:.4f}"
         if col == "within" and d.within is not None and d.within_flagged is not None:
             return f"{d.within[p]:.4f}" + ("*" if d.within_flagged[p] else " ")
         if col == "pattern":
