@@ -34,6 +34,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from sklearn.neighbors import NearestNeighbors
 
+from investigator.user_folders import use_numba_cache
+
 UMAP_MIN = 100
 SAMPLE_ABOVE = 20_000
 SAMPLE_SIZE = 10_000
@@ -132,7 +134,9 @@ def _neighbors(reference: np.ndarray, k: int):
 
 def _umap(X: np.ndarray, seed: int, keep: np.ndarray | None, notices: list[str]) -> MapResult:
     # Deferred: umap-learn (and numba) costs 1.5 s to import after the engine (`python -X importtime` on this
-    # machine; 3.9 s alone), and only a UMAP map needs it.
+    # machine; 3.9 s alone), and only a UMAP map needs it. numba reads its cache folder when it is imported, so
+    # the folder is set first (investigator/user_folders.py).
+    use_numba_cache()
     import umap
 
     n = len(X)
