@@ -7,7 +7,8 @@ Reading never runs code from the file: a class is looked up by name only among t
 and the few scikit-learn estimators a scan fits (``ESTIMATORS``); it is made with ``cls.__new__`` and gets
 its attributes set, so no ``__init__``, ``__setstate__`` or ``__reduce__`` of a named class is called (the
 scikit-learn tree structure and the neighbour index are the two exceptions, rebuilt through their own
-constructors from arrays, see :func:`_tree` and :func:`_index`). Anything else in the result (a type the
+constructors from arrays, and a calendar of public holidays, rebuilt from its country and years by the
+`holidays` package). Anything else in the result (a type the
 walk does not know) raises :class:`Unsupported`, and that result is not kept.
 
 Shared objects stay shared and cycles survive (the explainer points back at its result): every object and
@@ -113,6 +114,8 @@ class Encoder:
             raise Unsupported(f"class {o!r}")
         if isinstance(o, PurePath):
             return {"@p": str(o)}
+        if t.__module__.partition(".")[0] == "holidays":  # a calendar of public holidays: rebuilt from its name
+            return {"@holidays": str(o.country), "subdiv": o.subdiv, "years": sorted(int(y) for y in o.years)}
         if isinstance(o, list | tuple | dict | set | frozenset | int | float | str):
             raise Unsupported(f"a {t.__name__}")  # a named tuple, an enumeration, ...: not plain data
         if isinstance(o, _LOCKS):
@@ -269,6 +272,11 @@ class Decoder:
             return Path(o["@p"])
         if tag == "@lock":
             return threading.RLock()
+        if tag == "@holidays":
+            # Deferred, as in prepare/calendar.py: only a scan that asked for holidays holds a calendar.
+            import holidays
+
+            return holidays.country_holidays(o["@holidays"], subdiv=o["subdiv"], years=o["years"])
         if tag == "@frame":
             return self.frame(o)
         if tag == "@tree":

@@ -22,6 +22,7 @@ and ``--fresh`` do so for one scan (``--fresh`` still keeps the new result for t
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import os
@@ -113,10 +114,8 @@ class CacheEntry:
             warnings.warn(InvestigatorWarning(
                 f"the kept scan {self.path} could not be read ({type(exc).__name__}); scanning afresh"), stacklevel=3)
             return None
-        try:
+        with contextlib.suppress(OSError):
             os.utime(self.path)  # most recently used
-        except OSError:
-            pass
         return result
 
     def save(self, result: ScanResult) -> bool:
