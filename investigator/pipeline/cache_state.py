@@ -207,9 +207,33 @@ def _class(name: str) -> type:
     obj: Any = importlib.import_module(module)
     for part in qualname.split("."):
         obj = getattr(obj, part)
-    if not isinstance(obj, type):
-        raise ValueError(f"{name} is not a class")
+    if not isinstance(obj, type) or _name(obj) != name:  # defined there: not reached through another module
+        raise ValueError(f"{name} is not a class a scan holds")
     return obj
+
+
+def _checked_tree_state(state: dict, n_features: int) -> dict:
+    """A decision tree's arrays as its compiled code may use them: the code does not check its indices, so
+    every child must be a later node (or -1, a leaf) and every split feature one of the features (or -2)."""
+    nodes = state["nodes"]
+    count = int(state["node_count"])
+    if not isinstance(nodes, np.ndarray) or nodes.ndim != 1 or len(nodes) != count or count < 1:
+        raise ValueError("a tree whose nodes do not match its node count")
+    own = np.arange(count)
+    for child in ("left_child", "right_child"):
+        c = nodes[child]
+        if not np.all((c == -1) | ((c > own) & (c < count))):
+            raise ValueError("a tree with a child outside it")
+    leaf = nodes["left_child"] == -1
+    if not np.array_equal(leaf, nodes["right_child"] == -1):
+        raise ValueError("a tree with a node of one child")
+    f = nodes["feature"]
+    if not (np.all((f[~leaf] >= 0) & (f[~leaf] < n_features))):
+        raise ValueError("a tree splitting on a feature it does not have")
+    values = state["values"]
+    if not isinstance(values, np.ndarray) or values.ndim != 3 or values.shape[0] != count:
+        raise ValueError("a tree whose values do not match its nodes")
+    return state
 
 
 class Decoder:
@@ -281,8 +305,12 @@ class Decoder:
             return self.frame(o)
         if tag == "@tree":
             cls = _class(TREE)
-            tree = cls(*self(o["args"]))
-            tree.__setstate__(self(o["state"]))
+            args = self(o["args"])
+            n_features, n_classes, n_outputs = int(args[0]), np.asarray(args[1], dtype=np.intp), int(args[2])
+            if n_features < 1 or n_outputs != 1 or n_classes.shape != (1,):  # a regression tree, one output
+                raise ValueError("a tree of another shape")
+            tree = cls(n_features, n_classes, n_outputs)
+            tree.__setstate__(_checked_tree_state(self(o["state"]), n_features))
             self.objects[o["@tree"]] = tree
             return tree
         if tag == "@index":

@@ -28,7 +28,6 @@ import json
 import os
 import platform
 import warnings
-import zipfile
 from dataclasses import dataclass
 from importlib import metadata
 from pathlib import Path
@@ -109,8 +108,7 @@ class CacheEntry:
                     return None  # another key with the same digest, or another format: never served
                 state = json.loads(bytes(z["state"]).decode("utf-8"))
                 result = decode(state, z)
-        except (OSError, ValueError, KeyError, TypeError, AttributeError, ImportError, IndexError,
-                zipfile.BadZipFile, EOFError, UnicodeDecodeError) as exc:
+        except Exception as exc:  # noqa: BLE001 - whatever is wrong with a kept scan, the scan runs afresh
             warnings.warn(InvestigatorWarning(
                 f"the kept scan {self.path} could not be read ({type(exc).__name__}); scanning afresh"), stacklevel=3)
             return None

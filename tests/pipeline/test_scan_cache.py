@@ -116,7 +116,21 @@ def test_the_whole_key_is_compared_not_only_the_digest(demo_copy, scans):
     assert len(scans) == 2
 
 
-@pytest.mark.parametrize("damage", ["truncated", "garbage", "state"])
+def first_tree(state):
+    """The first decision tree's entry in a kept scan's state."""
+    if isinstance(state, dict):
+        if "@tree" in state:
+            return state
+        state = list(state.values())
+    if isinstance(state, list):
+        for part in state:
+            found = first_tree(part)
+            if found is not None:
+                return found
+    return None
+
+
+@pytest.mark.parametrize("damage", ["truncated", "garbage", "state", "tree"])
 def test_a_damaged_cache_is_passed_over_with_a_warning(demo_copy, scans, damage):
     first = investigator.scan(demo_copy, id=DEMO_ID)
     (kept,) = kept_files(demo_copy)
@@ -125,11 +139,17 @@ def test_a_damaged_cache_is_passed_over_with_a_warning(demo_copy, scans, damage)
         kept.write_bytes(data[: len(data) // 2])
     elif damage == "garbage":
         kept.write_bytes(b"not a cache" * 100)
-    else:  # a readable file whose state names a class no scan holds: refused, never made
+    else:
         with np.load(kept, allow_pickle=False) as z:
             arrays = {name: z[name] for name in z.files}
-        state = {"@o": "subprocess:Popen", "n": 0, "s": {}}
-        arrays["state"] = np.frombuffer(json.dumps(state).encode(), np.uint8)
+        if damage == "state":  # a readable file whose state names a class no scan holds: refused, never made
+            state = {"@o": "subprocess:Popen", "n": 0, "s": {}}
+            arrays["state"] = np.frombuffer(json.dumps(state).encode(), np.uint8)
+        else:  # a tree whose child lies outside it: the compiled tree code would read beyond its nodes
+            tree = first_tree(json.loads(bytes(arrays["state"]).decode()))
+            nodes = arrays[f"a{tree['state']['nodes']['@a']}"].copy()
+            nodes["left_child"][0] = 10**6
+            arrays[f"a{tree['state']['nodes']['@a']}"] = nodes
         with kept.open("wb") as f:
             np.savez(f, **arrays)
     with pytest.warns(InvestigatorWarning, match="could not be read.*scanning afresh"):
