@@ -3,8 +3,8 @@
 (:func:`investigator.io.writers.to_json_text`), NaN and infinities written as null.
 
 orjson (a JSON library written in Rust) differs from the standard library in three ways, each undone here:
-it indents by two spaces (halved after the fact: a JSON text has no raw line break inside a string, so every
-run of spaces after one is indentation), it writes small floats without an exponent (0.00001 for 1e-05;
+it indents by two spaces (halved after the fact: a JSON text has no raw line break inside a string, so the
+spaces after one are indentation), it writes small floats without an exponent (0.00001 for 1e-05;
 every float that Python writes with an exponent, below 1e-4 or from 1e16 in size, is handed over as Python's
 own text) and it refuses integers beyond 64 bits, text with lone surrogates and similar rarities, where the
 standard library's encoder is used instead.
@@ -24,7 +24,6 @@ from investigator.io.writers import to_json_text
 # "short": the shortest text that reads back the same, in exponent form when the exponent is < -4 or >= 16).
 SCIENTIFIC_BELOW = 1e-4
 SCIENTIFIC_FROM = 1e16
-MARK = b"\x01"  # never in orjson's output (control characters in strings are written \u0001)
 
 
 def float_value(x: float):
@@ -72,12 +71,38 @@ def clean(obj):
     return obj
 
 
+def light_clean(obj):
+    """:func:`clean` where it changes what orjson writes, else ``obj`` as it is (one quick dump to tell): orjson
+    writes NaN and infinities as null itself, and every float from 1e-4 up as Python does; a float below
+    (written 0.0000... or with e-), a numpy scalar (refused) or anything else orjson refuses needs the pass."""
+    try:
+        text = orjson.dumps(obj, option=orjson.OPT_NON_STR_KEYS)
+    except (TypeError, orjson.JSONEncodeError):
+        return clean(obj)
+    return clean(obj) if b"0.0000" in text or b"e-" in text else obj
+
+
 def halve_indent(text: bytes, depth: int) -> bytes:
-    """Two-space indentation made one-space, ``depth`` the deepest level: from the deepest up, each level's
-    indentation is marked (so that a shallower pass cannot match it again) and shortened; marks become spaces."""
-    for d in range(depth, 0, -1):
-        text = text.replace(b"\n" + b"  " * d, b"\n" + MARK + b" " * (d - 1))
-    return text.replace(b"\n" + MARK, b"\n ")
+    """Two-space indentation made one-space, ``depth`` the deepest level: after every line break, the first
+    half of the spaces that follow is dropped (found for all lines at once, as arrays)."""
+    a = np.frombuffer(text, dtype=np.uint8)
+    breaks = np.flatnonzero(a == 10)
+    width = np.zeros(len(breaks), dtype=np.int64)  # the spaces after each line break
+    still = np.ones(len(breaks), dtype=bool)
+    last = len(a) - 1
+    for k in range(1, 2 * depth + 1):
+        at = breaks + k
+        still &= (at <= last) & (a[np.minimum(at, last)] == 32)
+        width += still
+    drop = width // 2
+    total = int(drop.sum())
+    if total == 0:
+        return text
+    starts = np.repeat(breaks + 1, drop)
+    offsets = np.arange(total) - np.repeat(np.cumsum(drop) - drop, drop)
+    keep = np.ones(len(a), dtype=bool)
+    keep[starts + offsets] = False
+    return a[keep].tobytes()
 
 
 def _depth(text: bytes) -> int:

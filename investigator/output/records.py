@@ -17,7 +17,7 @@ import pandas as pd
 from investigator.errors import InputError
 from investigator.explain.cells import cells_text
 from investigator.explain.explanation import Explanation
-from investigator.io.json_text import clean, float_column, json_bytes
+from investigator.io.json_text import clean, float_column, json_bytes, light_clean
 from investigator.io.output_files import atomic_output, check_not_input
 from investigator.io.writers import check_out_path, safe_frame
 from investigator.output.columns import choose_columns, filter_frame, input_frame
@@ -149,7 +149,8 @@ def columnwise_records(result: ScanResult, *, for_json: bool = False) -> list[di
             columns[f] = [tidy(r[f]) for r in full]
     out = [dict(zip(fields, values, strict=True)) for values in zip(*(columns[f] for f in fields), strict=True)]
     for i, explanation in explained.items():
-        out[i] = tidy(record(result, i, explanation))
+        full = record(result, i, explanation)
+        out[i] = light_clean(full) if for_json else full
     return out
 
 
@@ -226,7 +227,7 @@ def to_dict(result: ScanResult, *, for_json: bool = False) -> dict:
     """The JSON document: ``run``, ``records`` and, in a scan, ``groups`` (every part of the run record and
     every group as their ``to_dict()`` gives them). ``for_json``: values as
     :func:`investigator.io.json_text.json_bytes` writes them."""
-    tidy = clean if for_json else (lambda v: v)
+    tidy = light_clean if for_json else (lambda v: v)
     out = {"run": tidy(result.run.to_dict()), "records": columnwise_records(result, for_json=for_json)}
     if result.group_cases is not None:
         out["groups"] = tidy([g.to_dict() for g in result.group_cases])
