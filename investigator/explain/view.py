@@ -35,6 +35,7 @@ from investigator.explain.explanation import (
 )
 from investigator.explain.nearest import nearest_ordinary
 from investigator.explain.typical import TypicalValues, build_typical, direction
+from investigator.methods.base import gaussian_scaling
 from investigator.prepare import magnitudes
 from investigator.prepare.features import Features
 from investigator.prepare.roles import CATEGORICAL
@@ -168,9 +169,11 @@ def _one(result, pool, i, n, contrib, peer_pos, peer_dist, typical: TypicalValue
         rank=int(result.rank[i]),
         consensus=float(result.consensus[i]),
         consensus_z=float(result.consensus_z[i]),
+        # The record's own values only: `r.far_beyond` and `r.unified` compute every record's (of 5.5 s for the
+        # 1,403 flagged records' explanations at 50,000 records, 4.6 s went there).
         method_scores={
             key: MethodScore(float(r.scores[i]), float(r.cutoffs[i]), bool(r.flags[i]), float(r.z[i]),
-                             bool(r.far_beyond[i]), float(r.unified[i]))
+                             bool(r.z[i] > r.far[i]), float(gaussian_scaling(r.z[i:i + 1])[0]))
             for key, r in result.method_results.items()
         },
         contributions=per_method,
