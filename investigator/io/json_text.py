@@ -113,6 +113,8 @@ def halve_indent(text: bytes, depth: int) -> bytes:
     for k in range(1, 2 * depth + 1):
         at = breaks + k
         still &= (at <= last) & (a[np.minimum(at, last)] == 32)
+        if not still.any():
+            break
         width += still
     drop = width // 2
     if not drop.any():

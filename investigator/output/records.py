@@ -149,8 +149,8 @@ def columnwise_records(result: ScanResult, *, for_json: bool = False) -> list[di
             columns[f] = [tidy(r[f]) for r in full]
     out = [dict(zip(fields, values, strict=True)) for values in zip(*(columns[f] for f in fields), strict=True)]
     for i, explanation in explained.items():
-        full = record(result, i, explanation)
-        out[i] = light_clean(full) if for_json else full
+        whole = record(result, i, explanation)
+        out[i] = light_clean(whole) if for_json else whole
     return out
 
 

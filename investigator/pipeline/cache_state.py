@@ -177,7 +177,7 @@ class Encoder:
         if not same:
             raise Unsupported(f"a column of type {name}")
         missing = col.isna().to_numpy()
-        items = []
+        items: list[Any] = []
         for x, gone in zip(col.to_numpy(dtype=object).tolist(), missing.tolist(), strict=True):
             if gone:
                 items.append(None)
@@ -320,8 +320,8 @@ class Decoder:
             index.fit(self(o["X"]))
             return index
         if tag == "@o":
-            cls = _class(o["@o"])
-            obj = cls.__new__(cls)
+            made: Any = _class(o["@o"])
+            obj = made.__new__(made)
             self.objects[o["n"]] = obj
             for k, v in o["s"].items():
                 object.__setattr__(obj, k, self(v))

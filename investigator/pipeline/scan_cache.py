@@ -128,7 +128,7 @@ class CacheEntry:
             return False
         folder = self.path.parent
         tmp = self.path.with_name(self.path.name + ".part")
-        payload = {f"a{i}": a for i, a in enumerate(arrays)}
+        payload: dict[str, Any] = {f"a{i}": a for i, a in enumerate(arrays)}
         try:
             folder.mkdir(exist_ok=True)
             with tmp.open("wb") as f:
