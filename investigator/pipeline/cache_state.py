@@ -4,12 +4,13 @@
 :func:`decode` builds the same objects again. What it writes is data only: numbers, text, lists, arrays of
 numbers (loaded with ``allow_pickle=False``), and for each object the name of its class and its attributes.
 Reading never runs code from the file: a class is looked up by name only among the program's own classes
-and the few scikit-learn estimators a scan fits (``ESTIMATORS``); it is made with ``cls.__new__`` and gets
-its attributes set, so no ``__init__``, ``__setstate__`` or ``__reduce__`` of a named class is called (the
-scikit-learn tree structure and the neighbour index are the two exceptions, rebuilt through their own
-constructors from arrays, and a calendar of public holidays, rebuilt from its country and years by the
-`holidays` package). Anything else in the result (a type the
-walk does not know) raises :class:`Unsupported`, and that result is not kept.
+and the few scikit-learn estimators a scan fits (``ESTIMATORS``), and only where it is defined; it is made
+with ``cls.__new__`` and gets its attributes set, so no ``__init__``, ``__setstate__`` or ``__reduce__`` of a
+named class is called. Three exceptions are rebuilt through their own constructors from data: scikit-learn's
+tree structure (its arrays checked first, :func:`_checked_tree_state`), the neighbour index (fitted again on
+its records) and a calendar of public holidays (from its country and years, by the `holidays` package).
+Anything else in the result (a type the walk does not know) raises :class:`Unsupported`, and that result is
+not kept.
 
 Shared objects stay shared and cycles survive (the explainer points back at its result): every object and
 array is written once and referred to by number after that. Arrays keep their read-only flag
