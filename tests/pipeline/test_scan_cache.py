@@ -192,3 +192,16 @@ def test_off_for_data_frames_when_turned_off_and_with_fresh(csv_of, scans, monke
     assert len(scans) == 4  # reused
     assert cli("explain", path, "--id", "part_id", "--key", "P-007", "--fresh")[:2] == (0, out)
     assert len(scans) == 5  # --fresh scans again
+
+
+def test_the_workspace_reuses_a_kept_scan(csv_of, scans):
+    from investigator.tui import jobs
+
+    path = csv_of("parts")
+    first = investigator.scan(path, id="part_id")
+    loaded = jobs.load(path, {"id": "part_id"})
+    result, _, _ = jobs.run(loaded.table, loaded.options, lambda *_: None, jobs.CancelToken(), None, path)
+    assert len(scans) == 1  # the kept scan of the same file and options
+    np.testing.assert_array_equal(result.consensus, first.consensus)
+    jobs.run(loaded.table, loaded.options, lambda *_: None, jobs.CancelToken(), None, path, cache="refresh")
+    assert len(scans) == 2  # open --fresh
