@@ -144,14 +144,17 @@ def _one(result, pool, i, n, contrib, peer_pos, peer_dist, typical: TypicalValue
         share_rows.append(sh)
     mean_share = np.mean(share_rows, axis=0)
     z = result.features.values[i]
+    # Per method, the feature with the largest share when any share is positive (-1 when none): once per
+    # record, not once per top feature.
+    strongest = [int(row.argmax()) if row.max() > 0 else -1 for row in share_rows]
     top = []
     ranked = np.argsort(-mean_share, kind="stable")
     for j in ranked[:TOP]:
         if mean_share[j] <= 0:
             break
         spec = result.features.specs[j]
-        pointing = tuple(key for key, row in zip(contrib, share_rows, strict=True)
-                         if row[j] >= POINTS_AT or (row.max() > 0 and row.argmax() == j))
+        pointing = tuple(key for key, row, most in zip(contrib, share_rows, strongest, strict=True)
+                         if row[j] >= POINTS_AT or most == j)
         t = typical.of(result.features, i, j)
         value = raw_value(result.features, i, j)
         said = direction(spec.role, value, float(z[j]), t, float(mean_share[j]))

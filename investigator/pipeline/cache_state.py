@@ -298,7 +298,8 @@ class Decoder:
         if tag == "@lock":
             return threading.RLock()
         if tag == "@holidays":
-            # Deferred, as in prepare/calendar.py: only a scan that asked for holidays holds a calendar.
+            # Deferred, as in prepare/calendar.py (0.27 s, `python -X importtime -c "import holidays"`): only a
+            # scan that asked for holidays holds a calendar.
             import holidays
 
             return holidays.country_holidays(o["@holidays"], subdiv=o["subdiv"], years=o["years"])
