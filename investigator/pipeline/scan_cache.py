@@ -6,15 +6,16 @@ Where: ``<data>.investigation-cache/scan-<digest>.npz`` in the data file's folde
 arrays, its other state as JSON (:mod:`investigator.pipeline.cache_state`: no pickle; read with
 ``allow_pickle=False``) and the key it was made under. The key is the data file's sha256 and size and the
 path it was given as, the sha256 of a limits file, every option of the scan (``ScanOptions.as_dict()``), the
-program's version and the versions of Python and of the libraries that compute or read (``LIBRARIES``). The whole key is stored and compared before anything else is read, so a
-changed file, option or version is never served, even if two keys shared a digest.
+program's version and the versions of Python and of the libraries that compute or read (``LIBRARIES``). The
+whole key is stored and compared before anything else is read, so a changed file, option or version is never
+served, even if two keys shared a digest.
 
 Not kept: data frames given in memory (no file to key on), scans against a reference (``check``), Parquet
 datasets and the Dask path, results holding something :mod:`~investigator.pipeline.cache_state` cannot write
-(a column of categories, say), and results of more than ``MAX_RECORDS`` records (writing and reading them costs about as much as part
-of the scan saves; see docs/large.md). The newest ``KEEP`` scans of a file are kept (reading one counts as
-using it); older ones are deleted. A cache that cannot be read (damaged, cut short, another format) is passed
-over with a warning and the scan runs afresh; its file is replaced by the new scan's.
+(a column of categories, say), and results of more than ``MAX_RECORDS`` records (the file grows with the
+table: 68 MB at 50,000 x 20; see docs/large.md). The newest ``KEEP`` scans of a file are kept (reading one
+counts as using it); older ones are deleted. A cache that cannot be read (damaged, cut short, another format)
+is passed over with a warning and the scan runs afresh; its file is replaced by the new scan's.
 
 ``INVESTIGATOR_SCAN_CACHE=off`` (or ``0``, ``no``, ``false``) turns the cache off; ``scan(..., cache=False)``
 and ``--fresh`` do so for one scan (``--fresh`` still keeps the new result for the next command).
