@@ -10,10 +10,24 @@ from __future__ import annotations
 import pytest
 
 
+def pytest_configure(config) -> None:
+    # numba's compiled functions (the map's, investigator/user_folders.py) go to pytest's own cache folder, not
+    # the user's, and are kept from one test run to the next: they are made again from the installed packages.
+    import os
+    import tempfile
+
+    cache = getattr(config, "cache", None)
+    folder = cache.mkdir("investigator-user-cache") if cache is not None else tempfile.mkdtemp()
+    os.environ.setdefault("INVESTIGATOR_CACHE_DIR", str(folder))
+
+
 @pytest.fixture(autouse=True)
 def _own_settings_dir(tmp_path, monkeypatch):
     monkeypatch.setenv("INVESTIGATOR_CONFIG_DIR", str(tmp_path / "settings"))
     monkeypatch.setenv("INVESTIGATOR_DATA_DIR", str(tmp_path / "data"))  # the demo's data and store
+    # Every test scans afresh, so no test depends on what another left beside a file; the tests of the kept
+    # scans (tests/pipeline/test_scan_cache.py) turn it on again.
+    monkeypatch.setenv("INVESTIGATOR_SCAN_CACHE", "off")
 
 
 @pytest.fixture
@@ -54,4 +68,4 @@ def demo_scan(tmp_path_factory):
     from investigator.io.demo import DEMO_ID, write_demo
 
     path = write_demo(tmp_path_factory.mktemp("demo"))
-    return path, investigator.scan(path, id=DEMO_ID)
+    return path, investigator.scan(path, id=DEMO_ID, cache=False)  # set up before the per-test settings

@@ -7,7 +7,7 @@ from collections.abc import Callable
 from pathlib import Path
 
 from investigator.cli.echo import echo
-from investigator.cli.options import add_scan_options, refuse_overwrite, scan_parameters
+from investigator.cli.options import add_scan_options, cache_choice, refuse_overwrite, scan_parameters
 from investigator.errors import InputError
 from investigator.progress import StderrBar
 
@@ -36,7 +36,7 @@ def run_map(args: argparse.Namespace) -> int:
     from investigator.pipeline.engine import scan
     from investigator.pipeline.options import ScanOptions
 
-    result = scan(args.data, options=ScanOptions(**opts), progress=StderrBar())
+    result = scan(args.data, options=ScanOptions(**opts), progress=StderrBar(), cache=cache_choice(args))
     draw_map(result.map, result.flagged, result.consensus, result.groups, out,
              subtitle=f"{result.table.name}: {result.n_records:,} records, {int(result.flagged.sum()):,} flagged")
     echo(f"Map written to {out} ({result.run.map.method})")

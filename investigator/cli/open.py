@@ -11,6 +11,7 @@ from investigator.cli.options import (
     add_learn_option,
     add_reference_options,
     add_scan_options,
+    cache_choice,
     check_reference_options,
     column_choice,
     flag_message,
@@ -47,7 +48,8 @@ def run_open(args: argparse.Namespace) -> int:
         raise InputError(f"--reference {args.reference}: no such file; check the path")
     InvestigatorApp(args.data, scan_parameters(args), autoscan=args.scan, store=args.store,
                     reference=args.reference, reference_sheet=args.reference_sheet, error_text=flag_message,
-                    columns=column_choice(args), where=args.where, learn=args.learn).run()
+                    columns=column_choice(args), where=args.where, learn=args.learn,
+                    cache=cache_choice(args)).run()
     return 0
 
 

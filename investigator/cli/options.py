@@ -79,6 +79,9 @@ def add_scan_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--map", metavar="auto|umap|pca|none", default=None,
                    help="add 2-D map coordinates (auto: UMAP, or PCA for tiny data); the map command defaults "
                    "to auto, every other command to none (give it to report to include the map)")
+    p.add_argument("--fresh", action="store_true",
+                   help="scan again even when the same scan of the same file is kept (in DATA.investigation-cache, "
+                   "beside the review store; INVESTIGATOR_SCAN_CACHE=off turns keeping scans off)")
     p.add_argument("--exact", action="store_true",
                    help="no sampling on large data: exact neighbour search (sampled by default above 20,000 "
                    "records), MCD searched on all records (above 100,000) and peers among all ordinary "
@@ -129,7 +132,13 @@ def run_engine(args: argparse.Namespace, options, progress, store=None, on_load=
     if getattr(args, "reference", None) is not None:
         return check(args.data, reference=args.reference, reference_sheet=args.reference_sheet, options=options,
                      progress=progress, store=store, on_load=on_load, learn=learn)
-    return scan(args.data, options=options, progress=progress, store=store, on_load=on_load, learn=learn)
+    return scan(args.data, options=options, progress=progress, store=store, on_load=on_load, learn=learn,
+                cache=cache_choice(args))
+
+
+def cache_choice(args: argparse.Namespace) -> bool | str:
+    """The engine's ``cache``: with --fresh, scan again and keep the new result (pipeline/scan_cache.py)."""
+    return "refresh" if getattr(args, "fresh", False) else True
 
 
 def add_output_options(p: argparse.ArgumentParser, data: str) -> None:

@@ -35,6 +35,7 @@ from investigator.explain.explanation import (
 )
 from investigator.explain.nearest import nearest_ordinary
 from investigator.explain.typical import TypicalValues, build_typical, direction
+from investigator.methods.base import gaussian_scaling
 from investigator.prepare import magnitudes
 from investigator.prepare.features import Features
 from investigator.prepare.roles import CATEGORICAL
@@ -143,14 +144,17 @@ def _one(result, pool, i, n, contrib, peer_pos, peer_dist, typical: TypicalValue
         share_rows.append(sh)
     mean_share = np.mean(share_rows, axis=0)
     z = result.features.values[i]
+    # Per method, the feature with the largest share when any share is positive (-1 when none): once per
+    # record, not once per top feature.
+    strongest = [int(row.argmax()) if row.max() > 0 else -1 for row in share_rows]
     top = []
     ranked = np.argsort(-mean_share, kind="stable")
     for j in ranked[:TOP]:
         if mean_share[j] <= 0:
             break
         spec = result.features.specs[j]
-        pointing = tuple(key for key, row in zip(contrib, share_rows, strict=True)
-                         if row[j] >= POINTS_AT or (row.max() > 0 and row.argmax() == j))
+        pointing = tuple(key for key, row, most in zip(contrib, share_rows, strongest, strict=True)
+                         if row[j] >= POINTS_AT or most == j)
         t = typical.of(result.features, i, j)
         value = raw_value(result.features, i, j)
         said = direction(spec.role, value, float(z[j]), t, float(mean_share[j]))
@@ -168,9 +172,11 @@ def _one(result, pool, i, n, contrib, peer_pos, peer_dist, typical: TypicalValue
         rank=int(result.rank[i]),
         consensus=float(result.consensus[i]),
         consensus_z=float(result.consensus_z[i]),
+        # The record's own values only: `r.far_beyond` and `r.unified` compute every record's (of 5.5 s for the
+        # 1,403 flagged records' explanations at 50,000 records, 4.6 s went there).
         method_scores={
             key: MethodScore(float(r.scores[i]), float(r.cutoffs[i]), bool(r.flags[i]), float(r.z[i]),
-                             bool(r.far_beyond[i]), float(r.unified[i]))
+                             bool(r.z[i] > r.far[i]), float(gaussian_scaling(r.z[i:i + 1])[0]))
             for key, r in result.method_results.items()
         },
         contributions=per_method,

@@ -17,8 +17,9 @@ import pandas as pd
 from investigator.errors import InputError
 from investigator.explain.cells import cells_text
 from investigator.explain.explanation import Explanation
+from investigator.io.json_text import clean, float_column, json_bytes, light_clean
 from investigator.io.output_files import atomic_output, check_not_input
-from investigator.io.writers import check_out_path, safe_frame, to_json_text
+from investigator.io.writers import check_out_path, safe_frame
 from investigator.output.columns import choose_columns, filter_frame, input_frame
 from investigator.output.where import Condition, parse_where, where_mask
 from investigator.prepare.roles import DATE
@@ -84,8 +85,86 @@ def record(result: ScanResult, i: int, explained: Explanation | None = None) -> 
 
 
 def records(result: ScanResult) -> list[dict]:
+    """Every record as :func:`record` gives it, built column by column (:func:`columnwise_records`)."""
+    return columnwise_records(result)
+
+
+EXPLAINED = ("contributions", "top_features", "peers", "nearest_ordinary")  # None unless flagged
+
+
+def columnwise_records(result: ScanResult, *, for_json: bool = False) -> list[dict]:
+    """The records of :func:`record`, built from the result's arrays a column at a time (a field's values for
+    every record at once) instead of record by record; flagged records, which carry their explanation, come
+    from :func:`record` itself. A field :func:`record` has and this builder does not know yet takes its values
+    from :func:`record` of every record (correct, at the old speed), so new fields flow through. ``for_json``:
+    values as :func:`investigator.io.json_text.json_bytes` writes them (``clean``)."""
+    n = result.n_records
+    if n == 0:
+        return []
     explained = result.explainer.flagged()
-    return [record(result, i, explained.get(i)) for i in range(result.n_records)]
+    number = float_column if for_json else _num_column
+    tidy = clean if for_json else (lambda v: v)
+    fields = list(record(result, 0, explained.get(0)))  # every record has the same fields, in this order
+    columns: dict[str, list] = {
+        "row": np.asarray(result.table.row_numbers).astype(np.int64).tolist(),
+        "key": [tidy(k) for k in result.keys],
+        "rank": np.asarray(result.rank).astype(np.int64).tolist(),
+        "consensus": number(result.consensus),
+        "consensus_z": number(result.consensus_z),
+        "votes": np.asarray(result.votes).astype(np.int64).tolist(),
+        "flagged": np.asarray(result.flagged, dtype=bool).tolist(),
+        "flag_reason": [r or None for r in result.flag_reason.tolist()],
+        "column_hits": [tidy(h) for h in result.column_hits],
+    }
+    methods = list(result.method_results)
+    scores = [number(r.scores) for r in result.method_results.values()]
+    flags = [np.asarray(r.flags, dtype=bool).tolist() for r in result.method_results.values()]
+    columns["scores"] = [dict(zip(methods, v, strict=True)) for v in zip(*scores, strict=True)]
+    columns["flags"] = [dict(zip(methods, v, strict=True)) for v in zip(*flags, strict=True)]
+    names = result.features.names
+    imputed = np.asarray(result.features.imputed)
+    columns["imputed"] = [[] for _ in range(n)]
+    for i in np.flatnonzero(imputed.any(axis=1)).tolist():
+        columns["imputed"][i] = [names[j] for j in np.flatnonzero(imputed[i])]
+    found = result.cells.findings()
+    columns["cells"] = [tidy([c.to_dict() for c in found[i]]) if i in found else None for i in range(n)]
+    if result.stability is not None:
+        columns["stability"] = number(result.stability)
+    if result.out_of_spec is not None:
+        columns["out_of_spec"] = [tidy(h) for h in result.out_of_spec]
+    if result.verdicts is not None:
+        columns["verdict"] = list(result.verdicts)
+        columns["note"] = list(result.notes) if result.notes is not None else [None] * n
+    if result.groups is not None:
+        grouped = [result.groups.record(i) for i in range(n)]
+        for part in ("pattern", "group", "group_size"):
+            columns[part] = [tidy(g[part]) for g in grouped]
+    if result.map is not None:
+        x, y = number(result.map[:, 0]), number(result.map[:, 1])
+        columns["map"] = [[a, b] for a, b in zip(x, y, strict=True)]
+    if result.kinds is not None:
+        columns["kind"] = (np.asarray(result.kinds.labels).astype(np.int64) + 1).tolist()
+    for name in EXPLAINED:
+        columns[name] = [None] * n
+    unknown = [f for f in fields if f not in columns]
+    if unknown:
+        full = [record(result, i, explained.get(i)) for i in range(n)]
+        for f in unknown:
+            columns[f] = [tidy(r[f]) for r in full]
+    out = [dict(zip(fields, values, strict=True)) for values in zip(*(columns[f] for f in fields), strict=True)]
+    for i, explanation in explained.items():
+        whole = record(result, i, explanation)
+        out[i] = light_clean(whole) if for_json else whole
+    return out
+
+
+def _num_column(values) -> list:
+    """Floats with NaN and infinities as None (:func:`_num` for a whole column)."""
+    a = np.asarray(values, dtype=float)
+    out = a.tolist()
+    for i in np.flatnonzero(~np.isfinite(a)).tolist():
+        out[i] = None
+    return out
 
 
 def to_frame(result: ScanResult, columns: Sequence[str] | str | None = None) -> pd.DataFrame:
@@ -154,11 +233,14 @@ def result_frame(result: ScanResult) -> pd.DataFrame:
     return pd.DataFrame(out)
 
 
-def to_dict(result: ScanResult) -> dict:
-    """The JSON document: ``run``, ``records`` and, in a scan, ``groups``."""
-    out = {"run": result.run.to_dict(), "records": records(result)}
+def to_dict(result: ScanResult, *, for_json: bool = False) -> dict:
+    """The JSON document: ``run``, ``records`` and, in a scan, ``groups`` (every part of the run record and
+    every group as their ``to_dict()`` gives them). ``for_json``: values as
+    :func:`investigator.io.json_text.json_bytes` writes them."""
+    tidy = light_clean if for_json else (lambda v: v)
+    out = {"run": tidy(result.run.to_dict()), "records": columnwise_records(result, for_json=for_json)}
     if result.group_cases is not None:
-        out["groups"] = [g.to_dict() for g in result.group_cases]
+        out["groups"] = tidy([g.to_dict() for g in result.group_cases])
     return out
 
 
@@ -180,10 +262,10 @@ def write_result(result: ScanResult, path: Path, *, columns: Sequence[str] | str
     keep = where_positions(result, condition) if condition is not None else None
     with atomic_output(path, parameter="path") as tmp:  # never a half-written output under the real name
         if suffix == ".json":
-            document = to_dict(result)
+            document = to_dict(result, for_json=True)
             if keep is not None:
                 document["records"] = [document["records"][i] for i in keep]
-            tmp.write_text(to_json_text(document), encoding="utf-8")
+            tmp.write_bytes(json_bytes(document, cleaned=True))
         else:
             frame = to_frame(result, columns)
             if keep is not None:

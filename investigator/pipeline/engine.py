@@ -36,6 +36,7 @@ from investigator.pipeline.run_record import (
     ReferenceRecord,
     RunRecord,
 )
+from investigator.pipeline.scan_cache import cache_entry
 from investigator.pipeline.scoring import (
     FULL,
     SEGMENT,
@@ -334,7 +335,7 @@ def _versions() -> dict:
 
 
 def scan(data, *, progress: Progress = silent, store=None, on_load: Callable[[Table], None] | None = None,
-         learn: bool = True, **options) -> ScanResult:
+         learn: bool = True, cache: bool | str = True, **options) -> ScanResult:
     """Scan a table (a path to CSV/TSV/Parquet/XLSX, or a pandas DataFrame) and return a ScanResult.
 
     Options are those of ``investigator scan``: ``id``, ``features``, ``exclude``, ``methods``, ``log``,
@@ -344,18 +345,30 @@ def scan(data, *, progress: Progress = silent, store=None, on_load: Callable[[Ta
     ``<data>.investigation.sqlite`` beside a data file), each record also gets its current verdict and note, and, when
     some verdict says confirmed, follow-up or benign, a ``priority`` learned from them (``result.learning``,
     docs/learning.md; ``learn=False`` leaves it out). ``on_load``: called with the loaded table before any
-    work on it (the commands check their output options
-    there, so that a wrong column name costs no scan). Raises :class:`InputError` on bad input.
+    work on it (the commands check their output options there, so that a wrong column name costs no scan).
+    ``cache``: reuse the kept result of the same scan of the same file when there is one, and keep this one
+    (``False``: neither; ``"refresh"``: keep only; see :mod:`investigator.pipeline.scan_cache`). Raises
+    :class:`InputError` on bad input.
     """
     opts = options.pop("options", None)
     if opts is None:
         opts = ScanOptions(**options)
     elif options:
         raise TypeError("give either options=ScanOptions(...) or keyword options, not both")
+    kept = cache_entry(data, opts, cache)
+    result = kept.load() if kept is not None else None
+    if result is not None:
+        if on_load is not None:
+            on_load(result.table)
+        progress("done", 1.0)
+        return attach_verdicts(result, data, store, learn=learn)
     table = load_table(data, sheet=opts.sheet, id_column=opts.id, decimal=opts.decimal, header_row=opts.header_row)
     if on_load is not None:
         on_load(table)
-    return attach_verdicts(run_scan(table, opts, progress), data, store, learn=learn)
+    result = run_scan(table, opts, progress)
+    if kept is not None:
+        kept.save(result)
+    return attach_verdicts(result, data, store, learn=learn)
 
 
 def attach_verdicts(result: ScanResult, data, store=None, *, learn: bool = True) -> ScanResult:

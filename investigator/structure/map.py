@@ -28,11 +28,14 @@ fitting the sample.
 
 from __future__ import annotations
 
+import sys
 import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 from sklearn.neighbors import NearestNeighbors
+
+from investigator.user_folders import use_numba_cache
 
 UMAP_MIN = 100
 SAMPLE_ABOVE = 20_000
@@ -130,10 +133,35 @@ def _neighbors(reference: np.ndarray, k: int):
     return NearestNeighbors(n_neighbors=k, algorithm="brute").fit(reference)
 
 
+def _keep_compiled(packages: tuple[str, ...]) -> None:
+    """Let numba keep every compiled function of ``packages`` in its cache folder, not only those their authors
+    marked ``cache=True``: most of UMAP's own are not, and compiling them took 8.6 s of CPU on every map of the
+    demo; from the cache 2.5 s (measured on this machine, benchmarks/command_speed.py). A function is compiled
+    on its first call, after this; the cache is numba's own (keyed by the source file and its timestamp)."""
+    try:
+        # Deferred: numba is loaded by umap-learn just before (and only a UMAP map needs either).
+        from numba.core.dispatcher import Dispatcher
+    except ImportError:  # another numba layout: the functions are compiled as before
+        return
+    for name, module in list(sys.modules.items()):
+        if name.partition(".")[0] not in packages or module is None:
+            continue
+        for value in list(vars(module).values()):
+            if isinstance(value, Dispatcher):  # those marked cache=True already: the same cache again
+                try:
+                    value.enable_caching()
+                except Exception:  # noqa: BLE001 - a function numba cannot cache is compiled as before
+                    continue
+
+
 def _umap(X: np.ndarray, seed: int, keep: np.ndarray | None, notices: list[str]) -> MapResult:
     # Deferred: umap-learn (and numba) costs 1.5 s to import after the engine (`python -X importtime` on this
-    # machine; 3.9 s alone), and only a UMAP map needs it.
+    # machine; 3.9 s alone), and only a UMAP map needs it. numba reads its cache folder when it is imported, so
+    # the folder is set first (investigator/user_folders.py).
+    use_numba_cache()
     import umap
+
+    _keep_compiled(("umap", "pynndescent"))
 
     n = len(X)
     rows = _fit_rows(n, keep, np.random.default_rng([seed, 17]))

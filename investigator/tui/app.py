@@ -66,17 +66,20 @@ class InvestigatorApp(App):
     def __init__(self, path: str | Path, options=None, *, autoscan: bool = False, store=None,
                  reference=None, reference_sheet: str | None = None,
                  show_hint: bool | None = None, error_text: Callable[[InputError], str] = str,
-                 columns=None, where: str | None = None, learn: bool = True) -> None:
+                 columns=None, where: str | None = None, learn: bool = True, cache: bool | str = True) -> None:
         """``options``: a ScanOptions, or a dict of its fields (validated in the load worker, so a bad option
         shows as a one-line error in the UI and the first frame does not wait for the engine's imports).
         ``reference``: a trusted reference file; the records are scored against its fit, as ``check`` does.
         ``error_text``: the line shown for an InputError (``investigator open`` passes the one that speaks of
         its flags; by default the message as the API gives it). ``columns``: the input columns Cases shows at
         first (None: all, empty: none); ``where``: the SQL WHERE condition Cases starts filtered by (both
-        checked in the load worker). ``learn``: learn a priority from the verdicts (``--no-learn``: not)."""
+        checked in the load worker). ``learn``: learn a priority from the verdicts (``--no-learn``: not).
+        ``cache``: reuse a kept scan of the same file and options, as the engine's ``scan(cache=...)`` does
+        (``"refresh"``: scan again and keep it)."""
         super().__init__()
         self.learn = learn
         self.learn_version = 0  # the latest relearn asked for; an older one that finishes later is dropped
+        self.scan_cache = cache
         self.case_columns = tuple(columns) if columns is not None else None
         self.case_where = where
         self.error_text = error_text
@@ -146,9 +149,9 @@ class InvestigatorApp(App):
             self.call_from_thread(setattr, self, "progress", (stage, fraction))
 
         self.progress = ("starting", 0.0)
-        learn = self.learn
+        learn, cache = self.learn, self.scan_cache
         self.run_worker(lambda: jobs.run(table, options, progress, token, store_arg, path, reference=reference,
-                                         learn=learn),
+                                         learn=learn, cache=cache),
                         thread=True, name="scan", group="scan", exit_on_error=False)
 
     def cancel_scan(self) -> None:

@@ -83,12 +83,13 @@ class CancelToken:
 
 
 def run(table, options, progress, token: CancelToken, store: Path | None, path: str | Path | None,
-        reference=None, learn: bool = True):
+        reference=None, learn: bool = True, cache: bool | str = True):
     """Scan ``table`` (against ``reference``, a Table, when given: the fit of ``check``); ``progress(stage,
     fraction)`` is the engine's callback. The scan stops at the next progress report after ``token.cancel()``
     (the engine reports between its steps). ``store``: the review store to read, when it exists. Returns the
     result, the Cases data and the table's content key (which a verdict records)."""
     from investigator.pipeline.engine import attach_verdicts, run_scan  # 1.9 s to import; deferred as in load
+    from investigator.pipeline.scan_cache import cache_entry  # 0.1 s alone (NumPy); loaded with the engine
     from investigator.review.matching import content_key
 
     def report(stage: str, fraction: float) -> None:
@@ -96,7 +97,14 @@ def run(table, options, progress, token: CancelToken, store: Path | None, path: 
             raise ScanCancelled
         progress(stage, fraction)
 
-    result = run_scan(table, options, report, reference=reference)
+    # The kept scan of the same file with the same options, when there is one (pipeline/scan_cache.py; `cache`:
+    # the engine's, "refresh" with `open --fresh`); a scan against a reference is not kept.
+    kept = cache_entry(path, options, cache) if path is not None and reference is None else None
+    result = kept.load() if kept is not None else None
+    if result is None:
+        result = run_scan(table, options, report, reference=reference)
+        if kept is not None and not token.cancelled:
+            kept.save(result)
     if token.cancelled:
         raise ScanCancelled
     if path is not None and store is not None:
