@@ -15,7 +15,7 @@ from investigator.tui.plain import plain
 
 class ScreensScreen(ModalScreen[None]):
     BINDINGS = [Binding("escape", "close", "Close"), Binding("t", "close", "Close", show=False),
-                Binding("q", "close", show=False)]
+                Binding("q", "close", "Close", show=False)]
 
     def __init__(self, screens: dict | None, **kwargs) -> None:
         super().__init__(**kwargs)
