@@ -20,6 +20,7 @@ from investigator.errors import InputError
 from investigator.printable import printable
 from investigator.review.store import default_store_path
 from investigator.tui import jobs
+from investigator.tui.keys import SCREEN_KEYS
 from investigator.tui.models.columns import ColumnChoices
 from investigator.tui.models.map import group_labels, map_coords
 from investigator.tui.models.record import ViewCache
@@ -40,7 +41,6 @@ from investigator.tui.widgets.member_list import MemberList
 if TYPE_CHECKING:  # imported in the workers, after the first frame
     from investigator.tui.models.record import RecordView
 
-SCREENS = Binding.Group("Screens")
 # Textual's own keys, which the footer leaves out (it has no room at 80 columns).
 EXTRA_KEYS = [Binding("ctrl+p", "command_palette", "Command palette (themes, quit, ...)")]
 # Absolute, so subclasses elsewhere (the benchmark) find it; it ships as package data (pyproject).
@@ -51,11 +51,8 @@ class InvestigatorApp(App):
     CSS_PATH = STYLES
     TITLE = "investigator"
     MODES = {"columns": ColumnsScreen, "cases": CasesScreen, "map": MapScreen}
-    # The three screens are one hint in the footer ("1 2 3 Screens"); the help names each.
     BINDINGS = [
-        Binding("1", "show('columns')", "Columns", group=SCREENS),
-        Binding("2", "show('cases')", "Cases", group=SCREENS),
-        Binding("3", "show('map')", "Map", group=SCREENS),
+        *SCREEN_KEYS,
         Binding("question_mark", "help", "Keys"),
         Binding("q", "quit", "Quit"),
     ]

@@ -11,6 +11,7 @@ from textual.containers import VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
+from investigator.tui.keys import from_dialog
 from investigator.tui.screens.cases import HINT
 
 # How a key is written in the help (Textual's names on the left).
@@ -54,7 +55,7 @@ def help_text(sections: dict[str, list]) -> str:
 
 class HelpScreen(ModalScreen[None]):
     BINDINGS = [Binding("escape", "close", "Close"), Binding("question_mark", "close", "Close"),
-                Binding("q", "close", "Close", show=False)]
+                Binding("q", "close", "Close", show=False), *from_dialog()]
 
     def __init__(self, sections: dict[str, list], **kwargs) -> None:
         super().__init__(**kwargs)

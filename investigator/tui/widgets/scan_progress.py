@@ -13,6 +13,8 @@ class ScanProgress(Horizontal):
     DEFAULT_CSS = """
     ScanProgress { height: 1; display: none; }
     ScanProgress.running { display: block; }
+    ScanProgress ProgressBar { width: auto; }
+    ScanProgress #percentage { width: 5; }
     ScanProgress Label { width: 1fr; padding-left: 1; }
     """
 
