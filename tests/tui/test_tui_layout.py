@@ -95,7 +95,7 @@ class HeldMap:
         return self
 
     def __exit__(self, *_) -> None:
-        self.go.set()  # a failed assertion must not leave the worker waiting (the app waits for it on exit)
+        self.go.set()  # a failed assertion must not leave the worker waiting when the app closes
 
     def __call__(self, result, progress, token):
         progress("fitting UMAP", 0.2)
@@ -120,8 +120,8 @@ async def test_every_footer_fits_80_and_120_columns(tmp_path, monkeypatch, size)
     held = HeldMap()
     monkeypatch.setattr(jobs, "umap_map", held)
     app = demo_app(write_demo(tmp_path))
-    with held:
-        async with app.run_test(size=size) as pilot:
+    async with app.run_test(size=size) as pilot:
+        with held:
             await footers(app, pilot, held)
 
 
@@ -188,8 +188,8 @@ async def test_the_map_shows_principal_components_at_once_then_the_umap_map(tmp_
     held = HeldMap()
     monkeypatch.setattr(jobs, "umap_map", held)
     app = demo_app(write_demo(tmp_path))
-    with held:
-        async with app.run_test(size=(100, 30)) as pilot:
+    async with app.run_test(size=(100, 30)) as pilot:
+        with held:
             await pca_then_umap(app, pilot, held)
 
 
@@ -221,8 +221,8 @@ async def test_esc_stops_the_umap_map_and_u_starts_it_again(tmp_path, monkeypatc
     held = HeldMap()
     monkeypatch.setattr(jobs, "umap_map", held)
     app = demo_app(write_demo(tmp_path))
-    with held:
-        async with app.run_test(size=(100, 30)) as pilot:
+    async with app.run_test(size=(100, 30)) as pilot:
+        with held:
             await stop_and_start(app, pilot, held)
 
 
@@ -265,8 +265,8 @@ async def test_the_cursor_record_is_drawn_as_a_ring_on_a_crosshair(tmp_path, mon
     held = HeldMap()
     monkeypatch.setattr(jobs, "umap_map", held)  # the principal components stay: a fixed picture
     app = demo_app(write_demo(tmp_path))
-    with held:
-        async with app.run_test(size=(100, 30)) as pilot:
+    async with app.run_test(size=(100, 30)) as pilot:
+        with held:
             await ring(app, pilot)
 
 

@@ -10,15 +10,13 @@ Update after an intended change of the layout with
 
 from __future__ import annotations
 
-import threading
-
 import numpy as np
 import pytest
 
 pytest.importorskip("pytest_textual_snapshot")
 pytestmark = pytest.mark.slow  # the whole module: each snapshot scans the demo and renders the screen
 
-from fixtures.tui import settle, wait_until  # noqa: E402
+from fixtures.tui import settle  # noqa: E402
 from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402
 from investigator.pipeline.options import ScanOptions  # noqa: E402
 from investigator.tui import jobs  # noqa: E402
@@ -29,26 +27,11 @@ from investigator.tui.widgets.cases_table import CasesTable  # noqa: E402
 SIZES = [(80, 24), (120, 40)]
 
 
-class HeldMap:
-    """The UMAP worker held at its fit (released when the test ends), so the Map shows the principal
-    components and a progress line that does not move."""
-
-    def __init__(self) -> None:
-        self.started, self.go = threading.Event(), threading.Event()
-
-    def __call__(self, result, progress, token):
-        progress(f"fitting UMAP on {result.n_records:,} records", 0.2)
-        self.started.set()
-        self.go.wait()
-        raise jobs.MapCancelled
-
-
-@pytest.fixture
-def held(monkeypatch):
-    stand_in = HeldMap()
-    monkeypatch.setattr(jobs, "umap_map", stand_in)
-    yield stand_in
-    stand_in.go.set()
+def held_map(result, progress, token):
+    """Stands in for the UMAP worker: reports its fit and ends without a map (as a stopped one does), so the
+    Map keeps showing the principal components and a progress line that does not move; nothing waits."""
+    progress(f"fitting UMAP on {result.n_records:,} records", 0.2)
+    raise jobs.MapCancelled
 
 
 def demo_app(tmp_path) -> InvestigatorApp:
@@ -56,12 +39,14 @@ def demo_app(tmp_path) -> InvestigatorApp:
 
 
 @pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
-def test_map_while_the_umap_map_is_computed(snap_compare, tmp_path, size, held):
+def test_map_while_the_umap_map_is_computed(snap_compare, tmp_path, size, monkeypatch):
+    monkeypatch.setattr(jobs, "umap_map", held_map)
+
     async def computing(pilot):
         await settle(pilot.app, pilot)
         await pilot.press("3")
-        await wait_until(pilot, lambda: held.started.is_set() and pilot.app.map_progress is not None)
-        await pilot.pause()
+        await settle(pilot.app, pilot)
+        assert pilot.app.map_progress is not None and pilot.app.map_points.kind == "pca"
 
     assert snap_compare(demo_app(tmp_path), terminal_size=size, run_before=computing)
 

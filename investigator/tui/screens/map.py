@@ -15,7 +15,7 @@ from investigator.tui.plain import fit_lines, plain
 from investigator.tui.widgets.map_canvas import MapCanvas
 from investigator.tui.widgets.scan_progress import ScanProgress
 
-LEGEND = "⠂ ordinary  ◆ flagged  1-9 flagged, in group  ◉ the record at the cursor (+)"
+LEGEND = "⠂ ordinary  ◆ flagged  1-9 flagged, in group  ◉ at the cursor (+)"
 
 
 def legend(flagged: int) -> str:
@@ -41,7 +41,7 @@ class MapScreen(Screen):
         yield Static(self._source, id="map-status")
         yield MapCanvas(id="map-canvas")
         yield Static(LEGEND, id="map-legend")
-        yield ScanProgress(follows="map_progress", cancel="esc stops it; PCA is shown meanwhile",
+        yield ScanProgress(follows="map_progress", cancel="esc stops it",
                            id="map-progress")
         yield Footer(show_command_palette=False, compact=True)
 

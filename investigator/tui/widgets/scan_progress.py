@@ -14,8 +14,9 @@ class ScanProgress(Horizontal):
     ScanProgress { height: 1; display: none; }
     ScanProgress.running { display: block; }
     ScanProgress ProgressBar { width: auto; }
+    ScanProgress #bar { width: 24; }
     ScanProgress #percentage { width: 5; }
-    ScanProgress Label { width: 1fr; padding-left: 1; }
+    ScanProgress Label { width: 1fr; padding-left: 1; text-wrap: nowrap; text-overflow: ellipsis; }
     """
 
     def compose(self) -> ComposeResult:
