@@ -43,7 +43,15 @@ class ColumnsScreen(Screen):
         self.watch(self.app, "loaded", self._show_loaded)
         self.watch(self.app, "load_error", self._show_error)
         self.watch(self.app, "result", lambda _: self._refresh_cells())
-        self.watch(self.app, "progress", lambda _: self.refresh_bindings())
+        self._scanning = False
+        self.watch(self.app, "progress", self._progress)
+
+    def _progress(self, progress) -> None:
+        """The footer's keys change when a scan starts or ends, not at each of its steps (a new footer each
+        step would cost the main thread a recompose while the scan runs)."""
+        if (progress is not None) != self._scanning:
+            self._scanning = progress is not None
+            self.refresh_bindings()
 
     def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
         """esc (cancel the scan) is in the footer, and does something, only while a scan runs."""

@@ -35,6 +35,7 @@ class MapScreen(Screen):
         super().__init__(**kwargs)
         self._source = "No map yet: run a scan first."
         self._cursor = ""
+        self._computing = False
 
     def compose(self) -> ComposeResult:
         yield Header()
@@ -51,8 +52,12 @@ class MapScreen(Screen):
         self.app.request_map()
 
     def _progress(self) -> None:
-        """The first line says whether the UMAP map is on its way, or how to ask for it again."""
-        self.refresh_bindings()
+        """The first line says whether the UMAP map is on its way, or how to ask for it again; the footer's keys
+        change when it starts or ends (not at each step: a new footer each step costs a recompose)."""
+        computing = self.app.map_token is not None
+        if computing != self._computing:
+            self._computing = computing
+            self.refresh_bindings()
         points = self.app.map_points
         if points is not None and points.kind == "pca":
             self._source = f"Map: {points.source}" + (" (being computed)" if self.app.map_token is not None
@@ -80,6 +85,7 @@ class MapScreen(Screen):
         self._source = f"Map: {points.source}"
         self.query_one("#map-legend", Static).update(legend(int(d.flagged.sum())))
         self._progress()
+        self.refresh_bindings()  # u shows only while the principal components stand in
         self._status()
         canvas.focus()
 
