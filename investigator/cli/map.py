@@ -37,7 +37,7 @@ def run_map(args: argparse.Namespace) -> int:
     from investigator.pipeline.options import ScanOptions
 
     result = scan(args.data, options=ScanOptions(**opts), progress=StderrBar(), cache=cache_choice(args))
-    draw_map(result.map, result.flagged, result.consensus, result.groups, out,
+    draw_map(result.map, result.flagged, result.consensus, result.groups, out, rank=result.rank,
              subtitle=f"{result.table.name}: {result.n_records:,} records, {int(result.flagged.sum()):,} flagged")
     echo(f"Map written to {out} ({result.run.map.method})")
     return 0

@@ -13,6 +13,7 @@ import matplotlib.style
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.ticker import FixedFormatter, FixedLocator, NullFormatter
 
 ORDINARY = "#8da0b3"   # records not flagged
 FLAGGED = "#c0392b"    # flagged records (the browser test looks for this colour on the page)
@@ -107,6 +108,11 @@ def _bins(scores: np.ndarray, cutoff: float) -> tuple[np.ndarray, bool]:
 def method_plots(methods: dict[str, tuple[np.ndarray, float, np.ndarray]]) -> bytes:
     """Per method: the distribution of its scores, the records above its cutoff in their own colour, and the
     cutoff as a dashed line. ``methods`` maps a key to (scores, cutoff, above the cutoff)."""
+    return _png(method_figure(methods))
+
+
+def method_figure(methods: dict[str, tuple[np.ndarray, float, np.ndarray]]):
+    """The figure of :func:`method_plots` (the tests measure its tick labels)."""
     n = len(methods)
     cols = 2 if n > 1 else 1
     rows = (n + cols - 1) // cols
@@ -124,13 +130,33 @@ def method_plots(methods: dict[str, tuple[np.ndarray, float, np.ndarray]]) -> by
             ax.axvline(cutoff, color=CUTOFF, linestyle="--", linewidth=1.2, label=f"cutoff {cutoff:.4g}")
         if log:
             ax.set_xscale("log")
+            _log_ticks(ax.xaxis, float(bins[0]), float(bins[-1]))
         ax.set_title(key)
         ax.set_xlabel("score" + (" (log scale)" if log else ""))
         ax.set_ylabel("records (log scale)")
         _legend(ax, loc="upper right", fontsize="small")
     for ax in axes[n:]:
         ax.set_visible(False)
-    return _png(fig)
+    fig.canvas.draw()
+    return fig
+
+
+def _log_ticks(axis, low: float, high: float, most: int = 5) -> None:
+    """Few labelled ticks on a log axis, as plain numbers: 1, 2 and 5 times the powers of ten in the range,
+    thinned to at most ``most`` (matplotlib's own labels its minor ticks too when the range is under about a
+    decade: "2x10^-1", "3x10^-1", ... overlap on a narrow panel)."""
+    ticks = [t * 10.0**e for e in range(int(np.floor(np.log10(low))) - 1, int(np.ceil(np.log10(high))) + 1)
+             for t in (1, 2, 5) if low <= t * 10.0**e <= high]
+    if len(ticks) > most:
+        decades = [t for t in ticks if np.isclose(np.log10(t), round(np.log10(t)))]
+        keep = decades if len(decades) >= 2 else ticks
+        ticks = keep[::-(-len(keep) // most)]  # every k-th, k = ceil(len / most)
+    if len(ticks) < 2:  # a range inside one step: its two ends
+        ticks = [low, high]
+    axis.set_major_locator(FixedLocator(ticks))
+    axis.set_major_formatter(FixedFormatter([f"{t:,.0f}" if t >= 1 else np.format_float_positional(t, 3, trim="-")
+                                             for t in ticks]))
+    axis.set_minor_formatter(NullFormatter())
 
 
 @_styled

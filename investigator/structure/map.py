@@ -30,11 +30,13 @@ from __future__ import annotations
 
 import sys
 import warnings
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
 from sklearn.neighbors import NearestNeighbors
 
+from investigator.progress import silent
 from investigator.user_folders import use_numba_cache
 
 UMAP_MIN = 100
@@ -61,7 +63,7 @@ class MapResult:
 
 
 def embed(X: np.ndarray, method: str = "auto", seed: int = 0, *,
-          keep: np.ndarray | None = None) -> MapResult:
+          keep: np.ndarray | None = None, progress: Callable[[str, float], None] = silent) -> MapResult:
     """Map the records to two dimensions.
 
     Parameters
@@ -71,6 +73,9 @@ def embed(X: np.ndarray, method: str = "auto", seed: int = 0, *,
     seed : UMAP's random state and the seed of the sample on large data.
     keep : rows (or n booleans) always among the records UMAP is fitted on, on large data: the flagged
         records, so that their places come from the fit itself.
+    progress : called as ``progress(stage, fraction)`` between the steps of a UMAP map (loading umap-learn,
+        the neighbour search, the fit, placing the other records chunk by chunk), fraction from 0 to 1. An
+        exception it raises stops the map there (the workspace's cancel); the fit itself is one step.
     """
     if method not in METHODS:
         raise ValueError(f"map method must be one of {', '.join(METHODS)}, not {method!r}")
@@ -91,7 +96,7 @@ def embed(X: np.ndarray, method: str = "auto", seed: int = 0, *,
         coords, explained = pca_map(X)
         return MapResult(coords, "pca", {"explained_variance_ratio": [float(v) for v in explained]},
                          notices)
-    return _umap(X, seed, keep, notices)
+    return _umap(X, seed, keep, notices, progress)
 
 
 def pca_map(X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -154,7 +159,9 @@ def _keep_compiled(packages: tuple[str, ...]) -> None:
                     continue
 
 
-def _umap(X: np.ndarray, seed: int, keep: np.ndarray | None, notices: list[str]) -> MapResult:
+def _umap(X: np.ndarray, seed: int, keep: np.ndarray | None, notices: list[str],
+          progress: Callable[[str, float], None] = silent) -> MapResult:
+    progress("loading umap-learn", 0.0)
     # Deferred: umap-learn (and numba) costs 1.5 s to import after the engine (`python -X importtime` on this
     # machine; 3.9 s alone), and only a UMAP map needs it. numba reads its cache folder when it is imported, so
     # the folder is set first (investigator/user_folders.py).
@@ -167,6 +174,7 @@ def _umap(X: np.ndarray, seed: int, keep: np.ndarray | None, notices: list[str])
     rows = _fit_rows(n, keep, np.random.default_rng([seed, 17]))
     fit = X[rows]
     k = N_NEIGHBORS
+    progress("finding the neighbours", 0.1)
     search = _neighbors(fit, k)
     # UMAP's neighbour lists start with the record itself (distance 0), as its own search returns them.
     dist, idx = search.kneighbors(fit)
@@ -174,6 +182,7 @@ def _umap(X: np.ndarray, seed: int, keep: np.ndarray | None, notices: list[str])
     epochs = SAMPLED_EPOCHS if len(rows) < n else None
     model = umap.UMAP(n_neighbors=k, min_dist=MIN_DIST, metric="euclidean", random_state=seed,
                       precomputed_knn=(idx, dist, None), n_components=2, n_epochs=epochs)
+    progress(f"fitting UMAP on {len(rows):,} records", 0.2)
     with warnings.catch_warnings():
         # "no search index" (we place the rest ourselves) and "n_jobs overridden by random_state".
         warnings.simplefilter("ignore", UserWarning)
@@ -188,6 +197,7 @@ def _umap(X: np.ndarray, seed: int, keep: np.ndarray | None, notices: list[str])
         # records this halves the time and bounds the memory; positions agree to about 1e-6.
         index = _neighbors(fit.astype(np.float32), k)
         for start in range(0, len(rest), PLACE_CHUNK):
+            progress("placing the other records", 0.85 + 0.15 * start / len(rest))
             part = rest[start:start + PLACE_CHUNK]
             d, i = index.kneighbors(X[part].astype(np.float32))
             coords[part] = place(fitted, d.astype(float), i)
@@ -197,6 +207,7 @@ def _umap(X: np.ndarray, seed: int, keep: np.ndarray | None, notices: list[str])
             f"map: UMAP fitted on {len(rows):,} of {n:,} records (the kept records and a random sample); "
             f"the others placed among their {k} nearest fitted records"
         )
+    progress("map ready", 1.0)
     return MapResult(coords, "umap", params, notices)
 
 

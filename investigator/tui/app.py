@@ -14,12 +14,14 @@ from typing import TYPE_CHECKING
 from textual.app import App
 from textual.binding import Binding
 from textual.reactive import reactive
+from textual.screen import ModalScreen
 from textual.worker import Worker, WorkerState
 
 from investigator.errors import InputError
 from investigator.printable import printable
 from investigator.review.store import default_store_path
 from investigator.tui import jobs
+from investigator.tui.keys import SCREEN_KEYS
 from investigator.tui.models.columns import ColumnChoices
 from investigator.tui.models.map import group_labels, map_coords
 from investigator.tui.models.record import ViewCache
@@ -31,14 +33,17 @@ from investigator.tui.screens.help import HelpScreen
 from investigator.tui.screens.map import MapScreen
 from investigator.tui.screens.record import RecordScreen
 from investigator.tui.screens.screening import ScreensScreen
-from investigator.tui.screens.verdict import VerdictScreen
+from investigator.tui.screens.verdict import PICKER_KEYS, VerdictScreen
 from investigator.tui.settings import hint_seen
 from investigator.tui.widgets.cases_table import CasesTable
 from investigator.tui.widgets.map_canvas import MapCanvas
+from investigator.tui.widgets.member_list import MemberList
 
 if TYPE_CHECKING:  # imported in the workers, after the first frame
     from investigator.tui.models.record import RecordView
 
+# Textual's own keys, which the footer leaves out (it has no room at 80 columns).
+EXTRA_KEYS = [Binding("ctrl+p", "command_palette", "Command palette (themes, quit, ...)")]
 # Absolute, so subclasses elsewhere (the benchmark) find it; it ships as package data (pyproject).
 STYLES = Path(__file__).with_name("investigator.tcss")
 
@@ -48,10 +53,8 @@ class InvestigatorApp(App):
     TITLE = "investigator"
     MODES = {"columns": ColumnsScreen, "cases": CasesScreen, "map": MapScreen}
     BINDINGS = [
-        Binding("1", "show('columns')", "Columns"),
-        Binding("2", "show('cases')", "Cases"),
-        Binding("3", "show('map')", "Map"),
-        Binding("question_mark", "help", "Help"),
+        *SCREEN_KEYS,
+        Binding("question_mark", "help", "Keys"),
         Binding("q", "quit", "Quit"),
     ]
 
@@ -61,7 +64,8 @@ class InvestigatorApp(App):
     cases = reactive(None, always_update=True)        # CasesData
     progress = reactive(None, always_update=True)     # (stage, fraction) while scanning, else None
     review_version = reactive(0)
-    map_points = reactive(None, always_update=True)   # (coords, source)
+    map_points = reactive(None, always_update=True)   # models.map.MapPoints
+    map_progress = reactive(None, always_update=True)  # (stage, fraction) while the UMAP map is computed
 
     def __init__(self, path: str | Path, options=None, *, autoscan: bool = False, store=None,
                  reference=None, reference_sheet: str | None = None,
@@ -95,6 +99,7 @@ class InvestigatorApp(App):
         self.show_hint = show_hint
         self.choices = None      # columns_model.ColumnChoices
         self.token: jobs.CancelToken | None = None
+        self.map_token: jobs.CancelToken | None = None  # the UMAP map being computed
         self.views = None        # record_model.ViewCache
         self.group_labels = None
         self.last_error: str | None = None
@@ -214,6 +219,7 @@ class InvestigatorApp(App):
         result, cases, self.content = value
         self.views = ViewCache(result)
         self.group_labels = group_labels(result)
+        self.stop_map(quiet=True)  # a map of the last scan's records
         self.map_points = None
         self.result = result
         self.cases = cases
@@ -243,6 +249,8 @@ class InvestigatorApp(App):
             self.notify_plain(self._message(error), severity="error")
 
     def request_map(self) -> None:
+        """The map of the last scan: its own, else the principal components at once and the UMAP map in a
+        worker, which replaces them when it is ready."""
         if self.result is None or self.map_points is not None:
             return
         result = self.result
@@ -252,8 +260,51 @@ class InvestigatorApp(App):
     def _done_map(self, value, error) -> None:
         if error is not None:
             self.notify_plain(self._message(error), severity="error")
-        else:
-            self.map_points = value
+            return
+        self.map_points = value
+        if value.kind == "pca":
+            self.start_map()
+
+    def start_map(self) -> None:
+        """Compute the UMAP map (as `--map auto` would) in a worker; ``map_progress`` follows it."""
+        if self.result is None or self.map_token is not None:
+            return
+        token = self.map_token = jobs.CancelToken()
+        result = self.result
+
+        def progress(stage: str, fraction: float) -> None:
+            self.call_from_thread(self._map_step, token, stage, fraction)
+
+        self.map_progress = ("starting the UMAP map", 0.0)
+        self.run_worker(lambda: (token, jobs.umap_map(result, progress, token)), thread=True, name="umap",
+                        group="umap", exit_on_error=False)
+
+    def _map_step(self, token: jobs.CancelToken, stage: str, fraction: float) -> None:
+        if token is self.map_token and not token.cancelled:  # a stopped map's last steps are not shown
+            self.map_progress = (stage, fraction)
+
+    def stop_map(self, quiet: bool = False) -> None:
+        """Stop the UMAP map being computed: the principal components stay (the worker's thread ends at the
+        map's next step, and what it returns is dropped)."""
+        if self.map_token is None:
+            return
+        self.map_token.cancel()
+        self.map_token = None
+        self.map_progress = None
+        if not quiet:
+            self.notify_plain("UMAP map stopped; the principal components stay (u computes it again).")
+
+    def _done_umap(self, value, error) -> None:
+        if error is not None:
+            if not isinstance(error, jobs.MapCancelled):
+                self.map_token, self.map_progress = None, None
+                self.notify_plain(f"UMAP map not made: {self._message(error)}", severity="error", timeout=10)
+            return
+        token, points = value
+        if token is not self.map_token or token.cancelled:  # stopped, or a new scan since
+            return
+        self.map_token, self.map_progress = None, None
+        self.map_points = points
 
     # -- verdicts ------------------------------------------------------------------------------------
     def ask_verdict(self, position: int) -> None:
@@ -369,13 +420,26 @@ class InvestigatorApp(App):
 
     # -- navigation ----------------------------------------------------------------------------------
     def action_show(self, mode: str) -> None:
-        self.switch_mode(mode)
+        """Go to the screen ``mode`` itself (Columns, Cases, Map) from anywhere: a Record or Group opened
+        from it is closed, so 2 always shows the Cases list, not the record last opened there."""
+        while isinstance(self.screen, ModalScreen):  # a dialog (help, verdict) first: it is done with
+            self.pop_screen()
+        if self.current_mode != mode:
+            self.switch_mode(mode)
+        while len(self.screen_stack) > 1:
+            self.pop_screen()
 
-    def action_help(self) -> None:
-        self.push_screen(HelpScreen({
-            "Everywhere": self.BINDINGS, "Columns": ColumnsScreen.BINDINGS,
+    def help_sections(self) -> dict[str, list]:
+        """Every key of every screen, by screen (the help shows them; a test checks that no screen or widget
+        with keys is missing)."""
+        return {
+            "Everywhere": [*self.BINDINGS, *EXTRA_KEYS], "Columns": ColumnsScreen.BINDINGS,
             "Cases": CasesTable.BINDINGS + CasesScreen.BINDINGS, "Column chooser (c in Cases)": ColumnChooser.BINDINGS,
             "Record": RecordScreen.BINDINGS,
-            "Map": MapCanvas.BINDINGS + MapScreen.BINDINGS, "Group": GroupScreen.BINDINGS,
-            "Verdict": VerdictScreen.BINDINGS, "Screens": ScreensScreen.BINDINGS,
-        }))
+            "Map": MapCanvas.BINDINGS + MapScreen.BINDINGS, "Group": GroupScreen.BINDINGS + MemberList.BINDINGS,
+            "Verdict": VerdictScreen.BINDINGS + PICKER_KEYS, "Screens (t in Cases)": ScreensScreen.BINDINGS,
+            "This help": HelpScreen.BINDINGS,
+        }
+
+    def action_help(self) -> None:
+        self.push_screen(HelpScreen(self.help_sections()))

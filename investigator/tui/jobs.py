@@ -12,6 +12,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+import numpy as np
+
 if TYPE_CHECKING:  # the engine is imported in the workers only
     from investigator.structure.cases import GroupCase
 
@@ -19,10 +21,15 @@ from investigator.review.store import ReviewStore, check_verdict, group_case
 from investigator.review.verdicts import record_verdict, record_verdicts
 from investigator.tui.models.cases import cases_data
 from investigator.tui.models.columns import column_rows
+from investigator.tui.models.map import MapPoints
 
 
 class ScanCancelled(Exception):
     """Raised from the progress callback when the user cancelled the scan."""
+
+
+class MapCancelled(Exception):
+    """Raised from the map's progress callback when the user stopped the UMAP map."""
 
 
 @dataclass
@@ -111,6 +118,31 @@ def run(table, options, progress, token: CancelToken, store: Path | None, path: 
         attach_verdicts(result, path, store, learn=learn)
     report("preparing the cases", 1.0)
     return result, cases_data(result), content_key(table)
+
+
+def umap_map(result, progress, token: CancelToken) -> MapPoints:
+    """The UMAP map of the scan's prepared features, as ``scan --map auto`` makes it (same seed, the flagged
+    records kept in the fit on large data): PCA instead where ``auto`` chooses it (under 100 records or at
+    most two features). ``progress(stage, fraction)`` between its steps; after ``token.cancel()`` the next
+    step raises MapCancelled (the UMAP fit itself is one step: it runs to its end, and its result is dropped)."""
+    # Deferred: scikit-learn's neighbour search 0.4 s, umap-learn 1.5-3.9 s (structure/map.py); the Map
+    # screen shows the principal components meanwhile.
+    from investigator.structure.map import embed
+
+    def report(stage: str, fraction: float) -> None:
+        if token.cancelled:
+            raise MapCancelled
+        progress(stage, fraction)
+
+    X = np.nan_to_num(np.asarray(result.features.values, dtype=float))
+    mapped = embed(X, "auto", seed=result.options.seed, keep=np.asarray(result.flagged, dtype=bool),
+                   progress=report)
+    if token.cancelled:
+        raise MapCancelled
+    if mapped.method == "umap":
+        return MapPoints(mapped.coords, "the UMAP map of the features", "computed")
+    why = "; ".join(mapped.notices) or "PCA"
+    return MapPoints(mapped.coords, f"principal components of the features ({why})", "computed")
 
 
 def save_verdict(table, position: int, state: str, note: str | None, store: Path, run_id: str | None,

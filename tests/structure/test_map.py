@@ -134,3 +134,30 @@ def test_png_is_written_and_not_blank(tmp_path):
     assert (image[..., :3].mean(axis=2) < 0.9).mean() > 0.01  # more than a frame of ink
     bare = draw_map(coords, np.zeros(len(X), dtype=bool), consensus, None, tmp_path / "bare.png")
     assert imread(bare).shape == image.shape
+
+
+@pytest.mark.slow
+def test_progress_reports_the_steps_of_a_umap_map_and_can_stop_it(monkeypatch):
+    # The workspace's map worker follows embed(progress=...) and stops it by raising from the callback.
+    monkeypatch.setattr(map_module, "SAMPLE_ABOVE", 300)  # the sampled path, with its placing step, on 600
+    monkeypatch.setattr(map_module, "SAMPLE_SIZE", 200)
+    monkeypatch.setattr(map_module, "PLACE_CHUNK", 150)
+    X = clusters(600, p=4)
+    steps: list[tuple[str, float]] = []
+    mapped = embed(X, method="umap", seed=0, progress=lambda stage, f: steps.append((stage, f)))
+    fractions = [f for _, f in steps]
+    assert fractions == sorted(fractions) and fractions[0] == 0.0 and fractions[-1] == 1.0
+    assert [s for s, _ in steps if s.startswith("placing")] and any(s.startswith("fitting UMAP") for s, _ in steps)
+    # The same map as without a callback (it only watches).
+    assert np.array_equal(mapped.coords, embed(X, method="umap", seed=0).coords)
+
+    class Stop(Exception):
+        pass
+
+    def stop_at_the_fit(stage: str, fraction: float) -> None:
+        if stage.startswith("fitting"):
+            raise Stop
+
+    with pytest.raises(Stop):
+        embed(X, method="umap", seed=0, progress=stop_at_the_fit)
+    assert embed(X, method="pca", progress=stop_at_the_fit).method == "pca"  # PCA is one quick step: no reports

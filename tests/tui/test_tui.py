@@ -261,7 +261,8 @@ async def test_help_lists_the_keys_and_the_hint_explains_the_numbers(demo):
         await pilot.press("question_mark")
         assert type(app.screen).__name__ == "HelpScreen"
         helptext = app.screen.query_one("#help-text").render().plain
-        for words in ("Open record", "Flagged only", "Feature/excluded", "Next flagged", "Verdict", "votes"):
+        for words in ("Open the highlighted member", "Filter: flagged only", "Feature/excluded", "Next flagged",
+                      "Verdict", "votes"):
             assert words in helptext
         await pilot.press("escape")
         assert type(app.screen).__name__ == "CasesScreen"

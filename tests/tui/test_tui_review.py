@@ -123,7 +123,9 @@ async def test_every_member_of_a_group_gets_the_verdict(demo):
         # Each entry is the member's own case, as a verdict on it alone would be.
         expected = {record_case(app.result.table, m.row - 1).case_id for m in case.members}
         assert {e.case_id for e in entries} == expected
-        assert f"{case.members[0].key} (row {case.members[0].row}, confirmed)" in screen_text(app)
+        # The members list says each member's new verdict and note on its line.
+        lines = [line for line in screen_text(app).splitlines() if f"{case.members[0].key} · row " in line]
+        assert len(lines) == 1 and "verdict confirmed (split purchase)" in lines[0]
 
 
 # -- the store of the same records under another name ----------------------------------------------------------

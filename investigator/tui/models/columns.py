@@ -27,11 +27,16 @@ class ColumnRow:
     reason: str
     sketch: str
     numeric: bool    # a log transform can apply
+    whole: str = ""  # the sketch with every level name whole (the table's sketch cuts them: "Engineeri…")
 
 
-def sketch(values, width: int = 16) -> str:
+LEVEL_WIDTH = 10  # characters of a level's name in the Columns table's sketch (a longer one ends with …)
+
+
+def sketch(values, width: int = 16, level_width: int | None = LEVEL_WIDTH) -> str:
     """A one-line distribution sketch: a histogram of numbers between the 1st and 99th percentile (values
-    outside show as < and > at the ends), or the commonest levels of a category with their shares."""
+    outside show as < and > at the ends), or the commonest levels of a category with their shares, each
+    name cut to ``level_width`` characters with an ellipsis (None: whole)."""
     # Deferred, here and below: pandas (which the roles module imports) costs 0.6 s, and the app imports this
     # module before its first frame; these functions run in the load worker.
     import pandas as pd
@@ -57,9 +62,13 @@ def sketch(values, width: int = 16) -> str:
         right = ">" if (x > hi).any() else " "
         return f"{lo:>8.4g} {left}{bars}{right} {hi:<.4g}"
     shares = present.astype(str).value_counts(normalize=True)
-    parts = [f"{str(level)[:10]} {share:.0%}" for level, share in shares.head(3).items()]
+    parts = [f"{_cut(str(level), level_width)} {share:.0%}" for level, share in shares.head(3).items()]
     more = len(shares) - 3
     return " · ".join(parts) + (f" · +{more} more" if more > 0 else "")
+
+
+def _cut(text: str, width: int | None) -> str:
+    return text if width is None or len(text) <= width else text[:width - 1] + "…"
 
 
 def column_rows(table, columns) -> list[ColumnRow]:
@@ -70,7 +79,8 @@ def column_rows(table, columns) -> list[ColumnRow]:
     for info in columns:
         values = table.frame[info.name]
         rows.append(ColumnRow(info.name, info.role, info.dtype, info.missing, info.distinct, info.reason,
-                              sketch(values), info.role == NUMERIC or _numeric_text(values)))
+                              sketch(values), info.role == NUMERIC or _numeric_text(values),
+                              sketch(values, level_width=None)))
     return rows
 
 

@@ -1,12 +1,28 @@
 """The map's data: 2-D coordinates of every record and group labels, read from the result when it has them.
 
-The result's own map (``result.map``, n x 2) is used when present; until then the fallback is the first two
-principal components of the prepared features, computed in a worker (a plain SVD: no extra import).
+The result's own map (``result.map``, n x 2) is used when present. Without one (a scan without ``--map``)
+the first two principal components of the prepared features are shown at once (a plain SVD: no extra
+import), labelled as such, while the UMAP map is computed in a worker (``tui/jobs.py``).
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
+
+PCA_SOURCE = "principal components 1 and 2 (PCA), not the UMAP map"
+
+
+@dataclass(frozen=True)
+class MapPoints:
+    """The map on screen: n x 2 coordinates, where they come from in words, and ``kind``: "scan" (the scan's
+    own map), "pca" (the stand-in until the UMAP map is ready) or "computed" (the map `--map auto` would
+    make, computed in the workspace)."""
+
+    coords: np.ndarray
+    source: str
+    kind: str
 
 
 def group_labels(result) -> np.ndarray | None:
@@ -42,19 +58,22 @@ def group_labels(result) -> np.ndarray | None:
     return labels
 
 
-def map_coords(result) -> tuple[np.ndarray, str]:
-    """(n x 2 coordinates, where they come from)."""
+def map_coords(result) -> MapPoints:
+    """The scan's own map when it has one, else the principal components (``kind`` "pca")."""
     coords = getattr(result, "map", None)
     if coords is not None:
         coords = np.asarray(coords, dtype=float)
         if coords.ndim == 2 and coords.shape[0] == result.n_records and coords.shape[1] >= 2:
-            return coords[:, :2], "the scan's map"
+            run_map = getattr(getattr(result, "run", None), "map", None)
+            method = getattr(run_map, "method", None)
+            return MapPoints(coords[:, :2], f"the scan's map ({method.upper()})" if method else "the scan's map",
+                             "scan")
     X = np.asarray(result.features.values, dtype=float)
     X = np.nan_to_num(X - X.mean(axis=0))
     if X.shape[1] < 2:
-        return np.column_stack([X[:, 0], np.zeros(len(X))]), "the one feature (no map yet)"
+        return MapPoints(np.column_stack([X[:, 0], np.zeros(len(X))]), "the one feature (no map)", "scan")
     # The top two right singular vectors of a random subsample are enough for a picture and keep 100k fast.
     rng = np.random.default_rng(0)
     sample = X if len(X) <= 20000 else X[rng.choice(len(X), 20000, replace=False)]
     _, _, vt = np.linalg.svd(sample, full_matrices=False)
-    return X @ vt[:2].T, "principal components of the features (no map yet)"
+    return MapPoints(X @ vt[:2].T, PCA_SOURCE, "pca")

@@ -11,7 +11,7 @@ from textual.widgets import Footer, Header, Input, Static
 from investigator.errors import InputError
 from investigator.output.screens import breach_text, out_of_spec_records, record_labels
 from investigator.tui.models.cases import NO_VERDICT, CaseFilter
-from investigator.tui.plain import plain
+from investigator.tui.plain import fit_lines, plain
 from investigator.tui.screens.column_chooser import ColumnChooser
 from investigator.tui.screens.screening import ScreensScreen
 from investigator.tui.settings import mark_hint_seen
@@ -26,33 +26,43 @@ HINT = (
     "(amount > 5000 AND vendor = 'Q17') · i hides this, ? all keys"
 )
 WHERE_PLACEHOLDER = "SQL WHERE condition, e.g. amount > 5000 AND vendor = 'Q17' (enter applies, esc leaves)"
+FILTERS = Binding.Group("Filter")
+def hits_by_column(hits) -> str:
+    """Every column hit of a record, grouped by column: "nights three_sigma, boxplot_fence; amount
+    boxplot_fence" (all of them: the Record screen says each in words)."""
+    rules: dict[str, list[str]] = {}
+    for h in hits:
+        rules.setdefault(str(h["column"]), []).append(str(h["rule"]))
+    return "; ".join(f"{column} {', '.join(dict.fromkeys(r))}" for column, r in rules.items()) or "none"
+
+
 VERDICT_FILTERS = (None, NO_VERDICT, "open", "confirmed", "benign", "follow-up")
 
 
 class CasesScreen(Screen):
     AUTO_FOCUS = "#cases-table"
+    # The footer has room at 80 columns for the keys used most; the filters are one hint ("f m g d / Filter"),
+    # and every key is in the help (?) with its whole description.
     BINDINGS = [
         Binding("s", "sort", "Sort"),
-        Binding("r", "reverse", "Reverse"),
-        # Not in the footer either (it is full at 80 columns); the hint, the help and the docs list them.
+        Binding("r", "reverse", "Reverse the sort", show=False),
         Binding("c", "choose_columns", "Columns shown (result and input columns)", show=False),
         Binding("w", "where", "Filter: an SQL WHERE condition on any column", show=False),
-        Binding("f", "flagged", "Flagged only"),
-        Binding("m", "method", "Method"),
-        Binding("g", "pattern", "Isolated/group"),
-        Binding("d", "verdict_filter", "Verdict filter"),
-        Binding("slash", "search", "Search key"),
-        Binding("x", "clear", "Clear filters"),
+        Binding("f", "flagged", "Filter: flagged only", group=FILTERS),
+        Binding("m", "method", "Filter: one method (again: the next)", group=FILTERS),
+        Binding("g", "pattern", "Filter: isolated / in a group", group=FILTERS),
+        Binding("d", "verdict_filter", "Filter: a verdict (again: the next)", group=FILTERS),
+        Binding("slash", "search", "Search the key", show=False),
+        Binding("x", "clear", "Clear every filter", show=False),
         Binding("v", "verdict", "Verdict"),
-        Binding("o", "group", "Open group"),
-        # Not in the footer (it is full at 80 columns); the help lists it and the status line names it.
+        Binding("o", "group", "Group", tooltip="Open the record's group as one case"),
         Binding("t", "screens", "Screens (Benford, round amounts, thresholds, ...)", show=False),
         Binding("space", "mark", "Mark/unmark (v then sets the verdict of every marked record)", show=False),
         Binding("u", "unmark", "Unmark all", show=False),
-        Binding("i", "hint", "Hint", show=False),
+        Binding("i", "hint", "Hide the first-run hint", show=False),
         # Not in the footer (full at 80 columns); the status line names it when there is a priority.
         Binding("p", "priority", "Review order (learned from verdicts) / consensus order", show=False),
-        Binding("escape", "leave_search", show=False),
+        Binding("escape", "leave_search", "Leave the search or WHERE box", show=False),
     ]
 
     def __init__(self, **kwargs) -> None:
@@ -63,6 +73,7 @@ class CasesScreen(Screen):
         self.applied_start = False  # the columns and filter `investigator open` was given, applied once
         self.marked: set[int] = set()  # record positions marked for one verdict on all of them
         self._status = ""
+        self._detail = ""  # the line under the table: the highlighted record
 
     def compose(self) -> ComposeResult:
         yield Header()
@@ -74,7 +85,7 @@ class CasesScreen(Screen):
         yield CasesTable(id="cases-table")
         yield Static("", id="cases-detail")
         yield ScanProgress()
-        yield Footer()
+        yield Footer(show_command_palette=False, compact=True)
 
     def on_mount(self) -> None:
         self.query_one("#hint").set_class(not self.app.show_hint, "hidden")
@@ -182,11 +193,11 @@ class CasesScreen(Screen):
         data, p = self.app.cases, event.position
         detail = self.query_one("#cases-detail", Static)
         if data is None or p is None:
+            self._detail = ""
             detail.update("")
             return
         which = [m for m in data.methods if data.flags[m][p]]
-        hits = self.app.result.column_hits[p]
-        hit_text = "; ".join(f"{h['column']} {h['rule']}" for h in hits[:3]) or "none"
+        hit_text = hits_by_column(self.app.result.column_hits[p])
         verdict = data.verdicts[p] or "none"
         note = f" ({data.notes[p]})" if data.notes[p] else ""
         flag = f"FLAG ({data.reason[p]})" if data.flagged[p] else "not flagged"
@@ -203,10 +214,21 @@ class CasesScreen(Screen):
         if data.priority is not None:
             why = data.priority_reason(p)
             learned = f" Priority {data.priority[p]:.4f}" + (f": {why}." if why else ".")
-        detail.update(plain(
-            f"{data.keys[p]} (row {data.rows[p]}, rank {data.rank[p]:,}): {flag}, "
-            f"above the cutoff of {', '.join(which) or 'no method'}. Column hits: {hit_text}.{within}{screens} "
-            f"Verdict: {verdict}{note}{learned}"))
+        self._detail = (f"{data.keys[p]} (row {data.rows[p]}, rank {data.rank[p]:,}): {flag}, above the cutoff "
+                        f"of {', '.join(which) or 'no method'}. Column hits: {hit_text}. Verdict: {verdict}{note}."
+                        f"{within}{screens}{learned}")
+        self._show_detail()
+
+    def _show_detail(self) -> None:
+        """The line under the table in its fixed three lines; what does not fit ends with an ellipsis (the
+        Record screen, enter, has all of it)."""
+        detail = self.query_one("#cases-detail", Static)
+        detail.update(plain("\n".join(fit_lines(self._detail, max(20, detail.content_size.width or self.size.width - 2),
+                                                  3))))
+
+    def on_resize(self) -> None:
+        if self.is_mounted:
+            self._show_detail()
 
     def on_cases_table_selected(self, event: CasesTable.Selected) -> None:
         self.app.open_record(event.position, self.table.order)

@@ -9,7 +9,7 @@ from textual.containers import Vertical
 from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Header, Input, Static
 
-from investigator.tui.plain import plain
+from investigator.tui.plain import fit_lines, plain
 from investigator.tui.widgets.scan_progress import ScanProgress
 
 HEADERS = ("column", "role", "type", "missing", "distinct", "log", "distribution")
@@ -22,7 +22,7 @@ class ColumnsScreen(Screen):
         Binding("l", "toggle_log", "Log"),
         Binding("s", "scan", "Scan"),
         Binding("escape", "cancel", "Cancel scan"),
-        Binding("o", "other_file", "Open file"),
+        Binding("o", "other_file", "Open file", tooltip="Open another file"),
     ]
 
     def compose(self) -> ComposeResult:
@@ -34,7 +34,7 @@ class ColumnsScreen(Screen):
         yield DataTable(id="columns-table", cursor_type="row", zebra_stripes=False)
         yield Static("", id="column-why")
         yield ScanProgress()
-        yield Footer()
+        yield Footer(show_command_palette=False, compact=True)
 
     def on_mount(self) -> None:
         table = self.query_one(DataTable)
@@ -43,6 +43,21 @@ class ColumnsScreen(Screen):
         self.watch(self.app, "loaded", self._show_loaded)
         self.watch(self.app, "load_error", self._show_error)
         self.watch(self.app, "result", lambda _: self._refresh_cells())
+        self._scanning = False
+        self.watch(self.app, "progress", self._progress)
+
+    def _progress(self, progress) -> None:
+        """The footer's keys change when a scan starts or ends, not at each of its steps (a new footer each
+        step would cost the main thread a recompose while the scan runs)."""
+        if (progress is not None) != self._scanning:
+            self._scanning = progress is not None
+            self.refresh_bindings()
+
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        """esc (cancel the scan) is in the footer, and does something, only while a scan runs."""
+        if action == "cancel":
+            return self.app.progress is not None
+        return True
 
     # -- showing -------------------------------------------------------------------------------------
     def _show_loaded(self, loaded) -> None:
@@ -97,7 +112,10 @@ class ColumnsScreen(Screen):
         name = self._current()
         if name is not None:
             r = next(r for r in self.app.loaded.rows if r.name == name)
-            self.query_one("#column-why", Static).update(plain(f"{name}: {r.reason}"))
+            # The whole sketch, level names uncut: the table's column is cut at 80 columns and its names at 10.
+            why = self.query_one("#column-why", Static)
+            text = f"{name}: {r.reason} · {r.whole or r.sketch}"
+            why.update(plain("\n".join(fit_lines(text, max(20, why.content_size.width or self.size.width - 2), 2))))
 
     def on_data_table_row_highlighted(self, _event) -> None:
         self._why()

@@ -1,32 +1,31 @@
-"""Group: a small group of records that are unusual together, opened as one case with its profile."""
+"""Group: a small group of records that are unusual together, opened as one case with its profile; its
+members are a list, and enter opens a member's record (up/down there move through the members)."""
 
 from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
+import numpy as np
 from rich.table import Table
-from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import VerticalScroll
 from textual.screen import Screen
 from textual.widgets import Footer, Header, Static
 
 from investigator.output.explanation import format_value
 from investigator.tui.plain import plain
+from investigator.tui.widgets.member_list import MemberList
 
 if TYPE_CHECKING:  # the engine's types; the screen only reads them
     from investigator.structure.cases import GroupCase
-
-MEMBERS_SHOWN = 50
 
 
 class GroupScreen(Screen):
     """One group case (an entry of ``result.group_cases``): what its members share, and who they are."""
 
     BINDINGS = [
-        Binding("v", "verdict", "Verdict on the group"),
-        Binding("a", "verdict_members", "Verdict on each member"),
+        Binding("v", "verdict", "Group verdict", tooltip="A verdict on the group as one case"),
+        Binding("a", "verdict_members", "Each member", tooltip="One verdict on each member record"),
         Binding("escape", "back", "Back"),
     ]
 
@@ -35,15 +34,16 @@ class GroupScreen(Screen):
         self.case = case
         self.verdict = verdict
 
+    AUTO_FOCUS = "#group-members"
+
     def compose(self) -> ComposeResult:
         yield Header()
-        with VerticalScroll(id="group-body"):
-            yield Static(self._head(), id="group-head")
-            yield Static("What the members share that the rest does not", classes="section")
-            yield Static(self._profile(), id="group-profile")
-            yield Static("Members", classes="section")
-            yield Static(self._members(), id="group-members")
-        yield Footer()
+        yield Static(self._head(), id="group-head")
+        yield Static("What the members share that the rest does not", classes="section")
+        yield Static(self._profile(), id="group-profile")
+        yield Static(f"Members ({self.case.size}, most unusual first): enter opens one", classes="section")
+        yield MemberList(id="group-members")
+        yield Footer(show_command_palette=False, compact=True)
 
     def _head(self) -> str:
         c = self.case
@@ -61,21 +61,35 @@ class GroupScreen(Screen):
         return table
 
     def on_mount(self) -> None:
-        self.watch(self.app, "review_version", lambda _: self.query_one("#group-members", Static).update(
-            self._members()))
+        self._members()
+        self.watch(self.app, "review_version", lambda _: self._members(), init=False)
 
-    def _members(self) -> Text:
-        members = self.case.members
+    def order(self) -> np.ndarray:
+        """The members' record positions, most unusual first (the engine's ranking): the order the list
+        shows and the Record screen steps through."""
+        positions = np.array([m.row - 1 for m in self.case.members], dtype=np.int64)
         data = getattr(self.app, "cases", None)
-        verdicts = data.verdicts if data is not None and data.verdicts is not None else None
+        if data is None or data.rank is None:
+            return positions
+        return positions[np.argsort(np.asarray(data.rank)[positions], kind="stable")]
 
-        def said(m) -> str:
-            verdict = verdicts[m.row - 1] if verdicts is not None and 0 < m.row <= len(verdicts) else ""
-            return f", {verdict}" if verdict else ""
+    def _members(self) -> None:
+        """Every member, one line each: key, row, rank, flag and verdict (with its note)."""
+        data = getattr(self.app, "cases", None)
+        keys = {m.row - 1: m.key for m in self.case.members}
+        lines = []
+        for p in self.order().tolist():
+            if data is None:
+                lines.append((p, f"{keys[p]} · row {p + 1}"))
+                continue
+            flag = "FLAG" if data.flagged[p] else "not flagged"
+            note = f" ({data.notes[p]})" if data.notes[p] else ""
+            lines.append((p, f"{keys[p]} · row {data.rows[p]} · rank {data.rank[p]:,} · {flag} · "
+                             f"verdict {data.verdicts[p] or 'none'}{note}"))
+        self.query_one(MemberList).show_members(lines)
 
-        shown = ", ".join(f"{m.key} (row {m.row}{said(m)})" for m in members[:MEMBERS_SHOWN])
-        more = f" and {len(members) - MEMBERS_SHOWN} more" if len(members) > MEMBERS_SHOWN else ""
-        return plain(shown + more)
+    def on_member_list_opened(self, event: MemberList.Opened) -> None:
+        self.app.open_record(event.position, self.order())
 
     def set_verdict(self, verdict: str) -> None:
         self.verdict = verdict

@@ -32,9 +32,9 @@ class RecordScreen(Screen):
     BINDINGS = [
         Binding("up", "move(-1)", "Previous"),
         Binding("down", "move(1)", "Next"),
-        Binding("pageup", "scroll(-1)", "Scroll", show=False),
-        Binding("pagedown", "scroll(1)", show=False),
-        Binding("space", "scroll(1)", show=False),
+        Binding("pageup", "scroll(-1)", "Scroll up", show=False),
+        Binding("pagedown", "scroll(1)", "Scroll down", show=False),
+        Binding("space", "scroll(1)", "Scroll down", show=False),
         Binding("v", "verdict", "Verdict"),
         Binding("escape", "back", "Back"),
     ]
@@ -69,7 +69,7 @@ class RecordScreen(Screen):
             yield Static("", id="record-hits")
             yield Static("Peers: the nearest unflagged records", classes="section")
             yield Static("", id="record-peers")
-        yield Footer()
+        yield Footer(show_command_palette=False, compact=True)
 
     def on_mount(self) -> None:
         self.query_one("#record-body").can_focus = False

@@ -9,13 +9,14 @@ from textual.containers import VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
+from investigator.tui.keys import from_dialog
 from investigator.tui.models.screens import screens_text
 from investigator.tui.plain import plain
 
 
 class ScreensScreen(ModalScreen[None]):
     BINDINGS = [Binding("escape", "close", "Close"), Binding("t", "close", "Close", show=False),
-                Binding("q", "close", show=False)]
+                Binding("q", "close", "Close", show=False), *from_dialog()]
 
     def __init__(self, screens: dict | None, **kwargs) -> None:
         super().__init__(**kwargs)

@@ -16,6 +16,10 @@ from textual.widgets import Input, Label, Static
 from investigator.tui.plain import plain
 
 LETTERS = {"o": "open", "c": "confirmed", "b": "benign", "f": "follow-up"}
+# The dialog's keys that its state picker reads itself (not bindings), as the help lists them.
+PICKER_KEYS = [*(Binding(k, f"pick('{s}')", f"State: {s}") for k, s in LETTERS.items()),
+               Binding("left,right", "step", "State: the previous / next"),
+               Binding("enter", "save", "Save (once a state is chosen)")]
 
 
 class StatePicker(Widget, can_focus=True):

@@ -2,7 +2,9 @@
 
 Ordinary records are faint braille dots; a cell holding a flagged record shows a symbol instead (◆ for an
 isolated flag, the group's digit for a flag in a group), so flags read without colour. The cursor is a cell;
-the selected record is the one nearest to it.
+the selected record is the one nearest to it, drawn as ◉ (bold, reverse video) where it is, on a crosshair
+(─ and │ through the empty cells of its row and column), so it cannot be missed even without colour; the
+cursor cell itself is + in reverse video when the record nearest to it is in another cell.
 """
 
 from __future__ import annotations
@@ -17,18 +19,19 @@ from textual.widget import Widget
 BRAILLE = 0x2800
 # Dot bits of a braille cell by (column, row) within the 2 x 4 grid (Unicode braille patterns).
 DOT = np.array([[0x01, 0x02, 0x04, 0x40], [0x08, 0x10, 0x20, 0x80]])
+FLAGGED = Binding.Group("Flagged")
 
 
 class MapCanvas(Widget, can_focus=True):
     DEFAULT_CSS = "MapCanvas { height: 1fr; }"
     BINDINGS = [
-        Binding("left", "nudge(-1, 0)", "Move", show=False),
-        Binding("right", "nudge(1, 0)", show=False),
-        Binding("up", "nudge(0, -1)", show=False),
-        Binding("down", "nudge(0, 1)", show=False),
-        Binding("n", "next_flag(1)", "Next flagged"),
-        Binding("p", "next_flag(-1)", "Previous flagged"),
-        Binding("enter", "open", "Open record"),
+        Binding("left", "nudge(-1, 0)", "Move the cursor", show=False),
+        Binding("right", "nudge(1, 0)", "Move the cursor", show=False),
+        Binding("up", "nudge(0, -1)", "Move the cursor", show=False),
+        Binding("down", "nudge(0, 1)", "Move the cursor", show=False),
+        Binding("n", "next_flag(1)", "Next flagged", group=FLAGGED),
+        Binding("p", "next_flag(-1)", "Previous flagged", group=FLAGGED),
+        Binding("enter", "open", "Open"),
     ]
     cursor: reactive[tuple[int, int]] = reactive((0, 0), always_update=True)
 
@@ -130,18 +133,25 @@ class MapCanvas(Widget, can_focus=True):
             x, y = int(cells[p, 0]), int(cells[p, 1])
             label = int(self.labels[p]) if self.labels is not None else -1
             marks[(y, x)] = str(label % 10) if label >= 0 else "◆"
-        cx, cy = self.cursor
+        chosen = self.selected()
+        cx, cy = self.cell_of(chosen) if chosen is not None else tuple(self.cursor)
+        ux, uy = self.cursor
         out = Text(no_wrap=True)
         for y in range(h):
             for x in range(w):
                 mark = marks.get((y, x))
-                style = "reverse" if (x, y) == (cx, cy) else ""
-                if mark is not None:
-                    out.append(mark, style=(style + " bold").strip())
+                if (x, y) == (cx, cy):
+                    out.append("◉", style="bold reverse")
+                elif (x, y) == (ux, uy):  # the cursor cell, when the record nearest to it is elsewhere
+                    out.append(mark or "+", style="reverse")
+                elif mark is not None:
+                    out.append(mark, style="bold")
                 elif dots[y, x]:
-                    out.append(chr(BRAILLE + int(dots[y, x])), style=style or "dim")
+                    out.append(chr(BRAILLE + int(dots[y, x])), style="dim")
+                elif y == cy or x == cx:  # the crosshair through the empty cells
+                    out.append("─" if y == cy else "│", style="dim")
                 else:
-                    out.append("+" if style else " ", style=style)
+                    out.append(" ")
             if y < h - 1:
                 out.append("\n")
         return out
