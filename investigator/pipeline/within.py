@@ -44,14 +44,11 @@ or has too few records of is pooled in the same way, against the nearest segment
 from __future__ import annotations
 
 import dataclasses
-import os
 from collections.abc import Callable, Sequence
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from threadpoolctl import threadpool_limits
 
 from investigator.errors import InputError
 from investigator.explain.explanation import WHOLE_TABLE, MethodScore, WithinSegment
@@ -67,8 +64,6 @@ from investigator.progress import Progress, silent
 MIN_RECORDS = 50  # the least records a segment is fitted on (see the module's docstring)
 PER_FEATURE = 10  # ... and at least this many per feature
 MISSING = "(missing)"
-# Segments scanned at once: one per core, at most 4 (each holds a scan of its records in memory).
-SEGMENT_WORKERS = min(4, os.cpu_count() or 1)
 NOTICES_LISTED = 5  # pooled segments named one by one; beyond, one notice counts the rest
 
 # scan(table, options, reference) -> the result of an ordinary scan (the engine's run_scan, handed in so that this
@@ -207,29 +202,15 @@ def peer_groups(table: Table, options: ScanOptions, scan: SegmentScan, *, overal
     fits: dict[int, ScanResult] = {}  # by level: the segments scanned on their own
     failed: dict[int, str] = {}
     present = [s for s in range(len(levels)) if counts[s]]  # in a check, levels only the reference has are left out
-    own_fit = [s for s in present if fit_counts[s] >= line]
-
-    def scan_one(s: int) -> ScanResult:
-        fit_rows = None if reference is None else reference.subset(fit_codes == s)
-        return scan(table.subset(codes == s), seg_options, fit_rows)
-
-    # The segments' scans are independent (each seeded alike, none reads another), so they run side by side on
-    # the machine's cores, the largest first; the results are taken in the segments' order, so nothing depends
-    # on which finishes first.
-    # BLAS runs one thread per call meanwhile: how many threads a call gets would otherwise depend on what runs
-    # beside it, and its sums with it, in the last bits (measured: 3.6e-15 in a robust distance), so the result
-    # could depend on the number of cores.
-    done: dict[int, ScanResult] = {}
-    with threadpool_limits(limits=1, user_api="blas"), \
-            ThreadPoolExecutor(max_workers=max(1, min(SEGMENT_WORKERS, len(own_fit)))) as pool:
-        futures = {s: pool.submit(scan_one, s) for s in sorted(own_fit, key=lambda s: -fit_counts[s])}
-        for n, s in enumerate(own_fit):
-            try:
-                done[s] = futures[s].result()
-            except InputError as error:  # e.g. no feature varies within the segment
-                failed[s] = str(error)
-            progress(f"segments ({n + 1} of {len(own_fit)})", 0.96 + 0.03 * (n + 1) / len(own_fit))
-    fits.update((s, done[s]) for s in own_fit if s in done)
+    for n, s in enumerate(present):
+        progress(f"segments ({n + 1} of {len(present)})", 0.96 + 0.03 * n / max(len(present), 1))
+        if fit_counts[s] < line:
+            continue
+        try:
+            fit_rows = None if reference is None else reference.subset(fit_codes == s)
+            fits[s] = scan(table.subset(codes == s), seg_options, fit_rows)
+        except InputError as error:  # e.g. no feature varies within the segment
+            failed[s] = str(error)
 
     n = table.n_rows
     out = {k: WithinScores(np.full(n, np.nan), np.zeros(n, bool), np.full(n, np.nan), np.full(n, np.nan),

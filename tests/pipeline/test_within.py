@@ -292,20 +292,6 @@ def test_the_within_view_is_the_same_for_a_seed_whatever_the_row_order(lines, wi
     np.testing.assert_array_equal(once_more.consensus, w.consensus)
 
 
-def test_the_within_view_is_the_same_whatever_the_number_of_segments_scanned_at_once(lines, within, monkeypatch):
-    # The segments are scanned side by side on the machine's cores (within.SEGMENT_WORKERS); one at a time must
-    # give the same view bit for bit, and so must four at once, whichever finishes first.
-    from investigator.pipeline import within as within_module
-
-    for workers in (1, 4):
-        monkeypatch.setattr(within_module, "SEGMENT_WORKERS", workers)
-        again = investigator.scan(lines, id="invoice", within="category", seed=SEED).within
-        np.testing.assert_array_equal(again.consensus, within.within.consensus, err_msg=f"{workers} at once")
-        for key in within.within.methods:
-            np.testing.assert_array_equal(again.methods[key].scores, within.within.methods[key].scores)
-        assert [s.as_dict() for s in again.segments] == [s.as_dict() for s in within.within.segments]
-
-
 # -- integer codes, two columns, a reference, bad input -------------------------------------------------------
 
 
