@@ -148,6 +148,12 @@ class Learning:
             return ""
         head = (f"up {moved:,} place{'s' if moved != 1 else ''}" if moved > 0 else
                 f"down {-moved:,} place{'s' if moved != -1 else ''}" if moved < 0 else "same place")
+        # A record whose own log-odds fell can still move up (those above it fell more), and the other way:
+        # said, so that the weights listed after it are not read as the reason for the move.
+        if moved > 0 and self.shift[i] < 0:
+            head += " (others above it were lowered more)"
+        elif moved < 0 and self.shift[i] > 0:
+            head += " (others below it were raised more)"
         return f"{head} from consensus" + (": " + "; ".join(parts) if parts else "")
 
     @property

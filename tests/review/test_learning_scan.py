@@ -91,6 +91,12 @@ def test_a_benign_pattern_is_lowered_and_says_why(data):
         others_text = "1 other" if learned.likeness.count[i] == 2 else "2 others"
         assert "like GR-405" in learned.reason[i] and f"and {others_text} marked benign" in learned.reason[i]
         assert learned.reason[i].startswith("down ")
+    # A record lowered less than those above it moves up; its reason says so rather than reading as if the
+    # (negative) weights listed had raised it.
+    passed_by = [i for i in range(result.n_records) if learned.moved[i] > 0 and learned.shift[i] < 0]
+    assert passed_by  # the production readings under the lowered calibration runs
+    for i in passed_by:
+        assert learned.reason[i].startswith("up ") and "(others above it were lowered more)" in learned.reason[i]
     # The unsupervised result is the same with and without verdicts.
     assert np.array_equal(result.consensus, plain.consensus) and np.array_equal(result.flagged, plain.flagged)
     assert np.array_equal(result.rank, plain.rank)
