@@ -140,19 +140,20 @@ def test_with_a_smaller_fit_sample_scores_equal_the_same_model_applied_in_memory
 
 
 def test_workers_with_a_memory_limit_well_below_the_dataset_complete_without_restarts(tmp_path):
-    # 200,000 records carrying a 5,000-character memo each: about 1 GB in memory, against 600 MB per
-    # worker (of which a worker's own imports take about 250 MB). Workers are never restarted (a nanny
-    # restarts a worker that passes 95% of its limit), and every record is scored.
+    # 250,000 records carrying a 5,000-character memo each: about 1.3 GB in memory, against 800 MB per
+    # worker (of which a worker's own imports and the fitted model take 350-450 MB; with 600 MB a worker
+    # came above the 80% at which Dask pauses it, and the scan waited for ever). Workers are never restarted
+    # (a nanny restarts a worker that passes 95% of its limit), and every record is scored.
     rng = np.random.default_rng(15)
     memos = np.array(["".join(rng.choice(list("abcdefgh"), 5_000)) for _ in range(32)], dtype=object)
-    folder, size, n_parts, per = tmp_path / "ds", 0, 40, 5_000
+    folder, size, n_parts, per = tmp_path / "ds", 0, 50, 5_000
     folder.mkdir()
     for i in range(n_parts):
         part, _ = planted_outliers(per, 6, seed=100 + i)
         part["memo"] = memos[rng.integers(0, 32, per)] + pd.Series(np.arange(per) + i * per).astype(str).to_numpy()
         size += int(part.memory_usage(deep=True).sum())
         part.to_parquet(folder / f"part.{i}.parquet", index=False)
-    limit = 600 * 2**20
+    limit = 800 * 2**20
     assert size > 1.5 * limit
     cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, memory_limit=limit,
                                        dashboard_address="127.0.0.1:0", silence_logs=logging.ERROR)
