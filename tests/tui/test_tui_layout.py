@@ -21,7 +21,7 @@ from textual.widget import Widget  # noqa: E402
 from textual.widgets import Footer  # noqa: E402
 
 import investigator.tui  # noqa: E402
-from fixtures.tui import run_async, screen_text, settle, wait_until  # noqa: E402
+from fixtures.tui import open_first_group, run_async, screen_text, settle, wait_until  # noqa: E402
 from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402
 from investigator.pipeline.options import ScanOptions  # noqa: E402
 from investigator.tui import jobs  # noqa: E402
@@ -293,12 +293,7 @@ async def test_group_members_are_a_list_whose_entries_open_their_record(tmp_path
     app = demo_app(write_demo(tmp_path))
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(app, pilot)
-        table = app.screen.query_one(CasesTable)
-        grouped = [i for i in table.order.tolist() if app.result.groups.pattern[i] == "group"]
-        while table.position != grouped[0]:
-            await pilot.press("down")
-        await pilot.press("o")
-        await settle(app, pilot)
+        await open_first_group(app, pilot)
         members = app.screen.query_one(MemberList)
         case = app.screen.case
         assert members.option_count == case.size

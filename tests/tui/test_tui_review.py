@@ -10,7 +10,7 @@ import pytest
 pytest.importorskip("textual")
 pytestmark = pytest.mark.slow  # the whole module: each test drives the app through a scan of the demo
 
-from fixtures.tui import run_async, screen_text, settle  # noqa: E402
+from fixtures.tui import open_first_group, run_async, screen_text, settle  # noqa: E402
 from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402
 from investigator.pipeline.options import ScanOptions  # noqa: E402
 from investigator.review.matching import record_case  # noqa: E402
@@ -103,12 +103,7 @@ async def test_every_member_of_a_group_gets_the_verdict(demo):
     app = demo_app(demo)
     async with app.run_test(size=(120, 40)) as pilot:
         await settle(app, pilot)
-        table = app.screen.query_one(CasesTable)
-        grouped = [i for i in table.order.tolist() if app.result.groups.pattern[i] == "group"]
-        while table.position != grouped[0]:
-            await pilot.press("down")
-        await pilot.press("o")
-        await settle(app, pilot)
+        await open_first_group(app, pilot)
         case = app.screen.case
         assert "a: on each member" in screen_text(app)
         await pilot.press("a")

@@ -16,13 +16,12 @@ import pytest
 pytest.importorskip("pytest_textual_snapshot")
 pytestmark = pytest.mark.slow  # the whole module: each snapshot scans the demo and renders the screen
 
-from fixtures.tui import settle  # noqa: E402
+from fixtures.tui import open_first_group, settle  # noqa: E402
 from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402
 from investigator.pipeline.options import ScanOptions  # noqa: E402
 from investigator.tui import jobs  # noqa: E402
 from investigator.tui.app import InvestigatorApp  # noqa: E402
 from investigator.tui.models.map import MapPoints  # noqa: E402
-from investigator.tui.widgets.cases_table import CasesTable  # noqa: E402
 
 SIZES = [(80, 24), (120, 40)]
 
@@ -75,12 +74,7 @@ def test_group_members_list(snap_compare, tmp_path, size):
     async def group(pilot):
         app = pilot.app
         await settle(app, pilot)
-        table = app.screen.query_one(CasesTable)
-        grouped = [i for i in table.order.tolist() if app.result.groups.pattern[i] == "group"]
-        while table.position != grouped[0]:
-            await pilot.press("down")
-        await pilot.press("o")
-        await settle(app, pilot)
+        await open_first_group(app, pilot)
         await pilot.press("down")
         await pilot.pause()
 

@@ -13,11 +13,10 @@ import pytest
 pytest.importorskip("pytest_textual_snapshot")
 pytestmark = pytest.mark.slow  # the whole module: each snapshot scans the demo and renders the screen
 
-from fixtures.tui import settle  # noqa: E402
+from fixtures.tui import open_first_group, settle  # noqa: E402
 from investigator.io.demo import DEMO_ID, write_demo  # noqa: E402
 from investigator.pipeline.options import ScanOptions  # noqa: E402
 from investigator.tui.app import InvestigatorApp  # noqa: E402
-from investigator.tui.widgets.cases_table import CasesTable  # noqa: E402
 
 SIZES = [(80, 24), (120, 40)]
 
@@ -54,12 +53,7 @@ def test_a_group_with_a_verdict_on_each_member(snap_compare, tmp_path, size):
     async def group(pilot):
         app = pilot.app
         await settle(app, pilot)
-        table = app.screen.query_one(CasesTable)
-        grouped = [i for i in table.order.tolist() if app.result.groups.pattern[i] == "group"]
-        while table.position != grouped[0]:
-            await pilot.press("down")
-        await pilot.press("o")
-        await settle(app, pilot)
+        await open_first_group(app, pilot)
         await pilot.press("a", "c", "enter")
         await settle(app, pilot)
         app.clear_notifications()  # the "Saved" notice carries the time it was shown at: not for a snapshot
