@@ -17,8 +17,10 @@ from investigator.printable import printable
 def bars_text(contributions: dict[str, tuple[Contribution, ...]], flags: dict[str, bool], width: int = 80,
               top: int = 4) -> Text:
     out = Text()
-    name_w = min(16, max((len(printable(c.feature)) for v in contributions.values() for c in v[:top]),
-                         default=8))
+    # The names' column fits the longest name shown, up to a quarter of the width (at least 16): a calendar
+    # part ("claim_date: weekday") is whole at 80 columns; a longer name ends with an ellipsis, never cut bare.
+    name_w = min(max(16, width // 4),
+                 max((len(printable(c.feature)) for v in contributions.values() for c in v[:top]), default=8))
     bar_w = max(8, width - name_w - 12)
     for method, items in contributions.items():
         mark = "flags it" if flags.get(method) else "does not flag it"
@@ -28,7 +30,7 @@ def bars_text(contributions: dict[str, tuple[Contribution, ...]], flags: dict[st
             out.append("  (no contribution)\n", style="dim")
         for c in [c for c in items if c.value > 0][:top]:
             n = max(0, min(bar_w, round(c.share * bar_w)))
-            out.append(f"  {printable(c.feature)[:name_w]:<{name_w}} ")
+            out.append(f"  {_fit(printable(c.feature), name_w):<{name_w}} ")
             out.append(f"{'█' * n:<{bar_w}}", style="bold" if flags.get(method) else "")
             out.append(f" {c.share:>5.0%}\n")
         pulling = [printable(c.feature) for c in items if c.value < 0][:3]
@@ -36,6 +38,10 @@ def bars_text(contributions: dict[str, tuple[Contribution, ...]], flags: dict[st
             verb = "makes" if len(pulling) == 1 else "make"
             out.append(f"  {', '.join(pulling)} {verb} it look more ordinary\n", style="dim")
     return out
+
+
+def _fit(name: str, width: int) -> str:
+    return name if len(name) <= width else name[: width - 1] + "…"
 
 
 class ContributionBars(Static):
