@@ -13,8 +13,9 @@ flagged overall, within their segment and within only. With ``--date-columns K``
 table with K text date-time columns added (benchmarks/scan_speed.py ``with_dates``: their calendar parts are
 features), the issue's case of two date columns and a 40-level segment column.
 
-``--efforts 100x100,50x50`` times the within scan of the same table with other segment efforts (MCD random
-starts x isolation trees of each segment's own fit, pipeline/scoring.py ``Effort``) and prints, for each, the
+``--efforts 100x100,50x50,0x25`` times the within scan of the same table with other segment efforts (MCD random
+starts x isolation trees of each segment's own fit, pipeline/scoring.py ``Effort``; 0 starts: DetMCD's fixed
+starts alone, as a segment fits now) and prints, for each, the
 AUC of the within consensus on a planted within-segment case: 1% of the records moved by 3 in 3 features chosen
 at random each, so that they stand out in their own segment (spread 1) far more than in the whole table (spread
 about 1.4, the segments' centres added). Figures, not a test.

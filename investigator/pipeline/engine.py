@@ -66,13 +66,16 @@ from investigator.version import __version__
 
 def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
              reference: Table | None = None, *, groups: bool = True, screens: bool = True,
-             effort: Effort = FULL) -> ScanResult:
+             effort: Effort = FULL, kinds_from: np.ndarray | str | None = "search") -> ScanResult:
     """Scan ``table``; with ``reference``, fit preparation and methods on the reference and score the table's
     records against it (novelty scoring: no record of the table is part of the fit). ``groups=False`` leaves
     out the small groups and their cases (a segment's own scan, whose groups nobody reads; its scores and flags
     are the same); ``screens=False`` leaves out the trade's screens and the exact copies (a segment's own scan:
     they are the whole table's). ``effort``: how hard the randomised fits search
-    (:class:`~investigator.pipeline.scoring.Effort`; a segment's own scan uses ``SEGMENT``)."""
+    (:class:`~investigator.pipeline.scoring.Effort`; a segment's own scan uses ``SEGMENT``). ``kinds_from``:
+    ``"search"`` looks for the kinds of normal; an array gives the kind of each record as the whole table's scan
+    found it, taken as the candidates (a segment's own scan: structure/kinds.py ``find_kinds``); None: one kind
+    (a segment of a table that is one kind of normal)."""
     started = datetime.now(UTC).replace(microsecond=0).isoformat()
     notices = list(table.notices)
     original_reference = reference  # a segment's check cleans its own reference records (phase I)
@@ -82,7 +85,8 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     amount_numbers = _amount_columns(table, options)  # a wrong amount column stops the scan before it starts
     fit_table = reference if reference is not None else table
     columns = assign_roles(fit_table, options.features, options.exclude)
-    calendar, columns = calendar_columns(fit_table, columns, options)
+    calendar, columns, fit_view = calendar_columns(fit_table, columns, options)
+    view = fit_view if reference is None else None  # the table as the calendar read it, when fitted on it
     notices += calendar.notices_
     log = options.log if isinstance(options.log, str) else list(options.log)
     ref_info: dict = {}  # reference mode: the reference's columns, phase I cleaning and unseen levels
@@ -96,8 +100,8 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
         features = preparer.transform(table)
         ref_info["unseen_levels"] = _unseen_levels(preparer, table, notices)
     else:
-        preparer = FeaturePreparer(log=log, calendar=calendar).fit(table, columns)
-        features = ref_features = preparer.transform(table)
+        preparer = FeaturePreparer(log=log, calendar=calendar).fit(table, columns, view)
+        features = ref_features = preparer.transform(table, view)
     notices += preparer.notices_
     if reference is not None:
         notices += [f"reference: {n}" for n in beyond_bound_notices(ref_features, reference.row_numbers)]
@@ -146,7 +150,9 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     grouping = coords = mapped = kinds = None
     if reference is None:
         progress("groups", 0.93)
-        kinds, results, combination = _kinds_of_normal(features, results, combination, options, notices, effort)
+        if kinds_from is not None:
+            kinds, results, combination = _kinds_of_normal(features, results, combination, options, notices,
+                                                           effort, None if isinstance(kinds_from, str) else kinds_from)
         if groups:
             grouping = find_groups(features.values, combination.flagged, seed=options.seed,
                                    kind_labels=None if kinds is None else kinds.labels)
@@ -162,12 +168,12 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     rules = ColumnRules().fit(ref_features, skip=calendar.judged_by_own_rule())
     for name in rules.skipped_:
         notices.append(f"column '{name}': MAD is zero, so the modified z-score rule is skipped there")
-    hits = [numeric + timing for numeric, timing in zip(rules.hits(features), preparer.calendar_hits(table),
+    hits = [numeric + timing for numeric, timing in zip(rules.hits(features), preparer.calendar_hits(table, view),
                                                         strict=True)]
     extras = _extras(table, options, notices, amount_numbers) if screens else {"screens": {}, "out_of_spec": None}
     within = None
     if options.within:
-        within = peer_groups(table, options, _scan_segment, overall=results, combination=combination,
+        within = peer_groups(table, options, _scan_segment, overall=results, combination=combination, kinds=kinds,
                              features=features, reference=original_reference,
                              reference_features=ref_features if reference is not None else None, notices=notices,
                              progress=progress)
@@ -208,9 +214,11 @@ def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
     return result
 
 
-def _scan_segment(table: Table, options: ScanOptions, reference: Table | None) -> ScanResult:
+def _scan_segment(table: Table, options: ScanOptions, reference: Table | None,
+                  kinds_from: np.ndarray | None) -> ScanResult:
     """One segment scanned as a table of its own (peer groups, pipeline/within.py)."""
-    return run_scan(table, options, reference=reference, groups=False, screens=False, effort=SEGMENT)
+    return run_scan(table, options, reference=reference, groups=False, screens=False, effort=SEGMENT,
+                    kinds_from=kinds_from)
 
 
 def _kinds_record(kinds: KindsOfNormal, results: dict[str, MethodResult]) -> KindsRecord:
@@ -226,12 +234,13 @@ def _reference_record(reference: Table, info: dict) -> ReferenceRecord:
 
 
 def _kinds_of_normal(features: Features, results: dict, combination, options: ScanOptions,
-                     notices: list[str], effort: Effort = FULL):
+                     notices: list[str], effort: Effort = FULL, candidates: np.ndarray | None = None):
     """Find the kinds of normal; with two or more, every method judges each record within its kind
-    (robust_distance measures it against its kind's fit) and the combination is redone."""
+    (robust_distance measures it against its kind's fit) and the combination is redone. ``candidates``: the
+    kinds another scan gave these records, in place of HDBSCAN's."""
     columns = numeric_columns(features)
     kinds = find_kinds(features.values, columns, kinds_fitter(options, effort=effort), seed=options.seed,
-                       notices=notices)
+                       notices=notices, candidates=candidates)
     if kinds is None:
         return None, results, combination
     results = apply_kinds(results, kinds, features.values)

@@ -35,12 +35,14 @@ class Effort:
 
 
 FULL = Effort()
-# A segment's own fit: 50 trees (Liu, Ting & Zhou 2008 find path lengths converge well before t = 100, from memory)
-# and 50 random MCD starts beside the five deterministic ones of DetMCD. Measured with benchmarks/within_speed.py
-# --efforts (50,000 x 20 invented records in 40 segments of 11,739 down to 293, 1% planted within-segment outliers
-# moved by 3 in 3 features): the AUC of the within consensus is 0.9758 with 500 starts x 200 trees, 100 x 100 and
-# 50 x 50, and 0.9756 with 30 x 30; the within scan took 36.8, 28.9, 23.5 and 21.6 s of CPU.
-SEGMENT = Effort(mcd_starts=50, forest_trees=50)
+# A segment's own fit: the MCD from DetMCD's deterministic starts alone (Hubert, Rousseeuw & Verdonck 2012, "A
+# deterministic algorithm for robust location and scatter", JCGS 21: no random starts) and 25 isolation trees
+# (Liu, Ting & Zhou 2008 find path lengths converge well before t = 100, from memory). Measured with
+# benchmarks/within_speed.py --efforts (50,000 x 20 invented records in 40 segments of 11,739 down to 293, 1% planted
+# within-segment outliers moved by 3 in 3 features): the AUC of the within consensus was 0.9758 with 500 starts x 200
+# trees, 100 x 100, 50 x 50 and 0 x 50, 0.9759 with 0 x 25 and 0.9756 with 30 x 30; on 2026-12-04 the within scan
+# took 42.1 s of CPU with 50 x 50, 36.3 s with 0 x 50 and 33.9 s with 0 x 25 (two BLAS threads then; one since).
+SEGMENT = Effort(mcd_starts=0, forest_trees=25)
 
 
 def build_methods(options: ScanOptions, features: Features, notices: list[str],

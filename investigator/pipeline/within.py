@@ -1,11 +1,17 @@
 """Peer groups (``within``): every record scored against the records of its own segment as well as the whole table.
 
-A segment is the records that share the values of the ``within`` columns (a vendor, an employee, a product line,
-a machine; with two columns, each combination of their values). Each segment large enough is scanned as a table
-of its own: the preparation (medians, spreads, log decisions, category rarities), every method, every cutoff, the
-kinds of normal and the combination are fitted on that segment's records alone, exactly as a plain scan of the
-segment's rows would fit them (with the shorter randomised searches of ``scoring.SEGMENT``: 50 MCD starts, 50
-trees), and the ``within`` columns are not features there (they are constant in it). A
+A segment is the records that share the values of the ``within`` columns (a vendor, an employee, a product line, a
+machine; with two columns, each combination of their values). Each segment large enough is scanned as a table of its
+own: the preparation (medians, spreads, log decisions, category rarities), every method, every cutoff, the kinds of
+normal and the combination are fitted on that segment's records alone, exactly as a plain scan of the segment's rows
+would fit them (with the shorter searches of ``scoring.SEGMENT``: the MCD from DetMCD's fixed starts alone, 25
+trees; and one BLAS thread), and the ``within`` columns are not features there (they are constant in it). One step
+is not searched again: the kinds of normal. A segment starts from the whole table's kinds (each record's kind as the
+whole scan found it) in place of HDBSCAN's candidates, and keeps those with enough members in it that stay distinct
+and pass the BIC test on its own records (structure/kinds.py); where the whole table is one kind of normal, so is
+each segment. HDBSCAN on every segment took about a quarter of the segments' time (benchmarks/within_speed.py,
+50,000 records in 40 segments: 19.7 s for the segments with it, 14.9 s without); the cost of not searching is that a
+segment whose records form two kinds the whole table does not show is judged as one kind (wider cutoffs there). A
 price ordinary for services can then stand out among stationery, though the whole table has many such prices.
 
 This is peer group analysis: Bolton, R. J. & Hand, D. J. (2001), "Unsupervised profiling methods for fraud
@@ -49,6 +55,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+from threadpoolctl import threadpool_limits
 
 from investigator.errors import InputError
 from investigator.explain.explanation import WHOLE_TABLE, MethodScore, WithinSegment
@@ -60,6 +67,7 @@ from investigator.pipeline.result import MethodResult, ScanResult
 from investigator.pipeline.scoring import apply_kinds, combine_results
 from investigator.prepare.features import Features
 from investigator.progress import Progress, silent
+from investigator.structure.kinds import KindsOfNormal
 
 MIN_RECORDS = 50  # the least records a segment is fitted on (see the module's docstring)
 PER_FEATURE = 10  # ... and at least this many per feature
@@ -68,7 +76,7 @@ NOTICES_LISTED = 5  # pooled segments named one by one; beyond, one notice count
 
 # scan(table, options, reference) -> the result of an ordinary scan (the engine's run_scan, handed in so that this
 # module and the engine do not import each other).
-SegmentScan = Callable[[Table, ScanOptions, Table | None], ScanResult]
+SegmentScan = Callable[[Table, ScanOptions, Table | None, np.ndarray | None], ScanResult]
 
 
 def segment_line(n_features: int) -> int:
@@ -185,13 +193,14 @@ class PeerGroups:
 
 
 def peer_groups(table: Table, options: ScanOptions, scan: SegmentScan, *, overall: dict[str, MethodResult],
-                combination: Combination, features: Features, reference: Table | None = None,
-                reference_features: Features | None = None, notices: list[str] | None = None,
-                progress: Progress = silent) -> PeerGroups:
+                combination: Combination, features: Features, kinds: KindsOfNormal | None = None,
+                reference: Table | None = None, reference_features: Features | None = None,
+                notices: list[str] | None = None, progress: Progress = silent) -> PeerGroups:
     """The within-segment view of ``table`` (segments of ``options.within``); ``overall`` and ``combination``
     are the whole scan's (what a segment scored against the whole table keeps), ``features`` its prepared
-    records (``reference_features`` the reference's, in a check; the line is set by their number). ``scan`` scans
-    one segment (the engine's own scan)."""
+    records (``reference_features`` the reference's, in a check; the line is set by their number), ``kinds`` its
+    kinds of normal (None: one kind), which a segment's own scan starts from. ``scan`` scans one segment (the
+    engine's own scan)."""
     columns = tuple(options.within or ())
     levels, fit_codes, codes = _segments(table, columns, reference)
     n_features = sum(1 for s in (reference_features or features).specs if s.name not in columns)
@@ -202,15 +211,20 @@ def peer_groups(table: Table, options: ScanOptions, scan: SegmentScan, *, overal
     fits: dict[int, ScanResult] = {}  # by level: the segments scanned on their own
     failed: dict[int, str] = {}
     present = [s for s in range(len(levels)) if counts[s]]  # in a check, levels only the reference has are left out
-    for n, s in enumerate(present):
-        progress(f"segments ({n + 1} of {len(present)})", 0.96 + 0.03 * n / max(len(present), 1))
-        if fit_counts[s] < line:
-            continue
-        try:
-            fit_rows = None if reference is None else reference.subset(fit_codes == s)
-            fits[s] = scan(table.subset(codes == s), seg_options, fit_rows)
-        except InputError as error:  # e.g. no feature varies within the segment
-            failed[s] = str(error)
+    # One BLAS thread for the segments: their matrices are small (a few thousand records), and there the
+    # threads' start-up costs more than it saves (a segment of 2,330 x 22 scanned in 0.94 s with two threads,
+    # 0.51 s with one; the whole table's scan, before this, keeps both).
+    with threadpool_limits(limits=1, user_api="blas"):
+        for n, s in enumerate(present):
+            progress(f"segments ({n + 1} of {len(present)})", 0.96 + 0.03 * n / max(len(present), 1))
+            if fit_counts[s] < line:
+                continue
+            try:
+                fit_rows = None if reference is None else reference.subset(fit_codes == s)
+                carried = None if kinds is None else np.asarray(kinds.labels)[codes == s]
+                fits[s] = scan(table.subset(codes == s), seg_options, fit_rows, carried)
+            except InputError as error:  # e.g. no feature varies within the segment
+                failed[s] = str(error)
 
     n = table.n_rows
     out = {k: WithinScores(np.full(n, np.nan), np.zeros(n, bool), np.full(n, np.nan), np.full(n, np.nan),

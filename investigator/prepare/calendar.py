@@ -532,9 +532,12 @@ def _rarely(count: int, units: float, rate: float) -> bool:
     return expected > 0 and count <= RARE_RATE * expected and float(stats.poisson.cdf(count, expected)) <= RARE_P
 
 
-def calendar_columns(table: Table, columns: list[ColumnInfo], options) -> tuple[Calendar, list[ColumnInfo]]:
-    """The scan's calendar, fitted on ``table`` (the reference in check mode), and the column list with a
-    feature per calendar part and duration after the date columns they come from."""
+def calendar_columns(table: Table, columns: list[ColumnInfo],
+                     options) -> tuple[Calendar, list[ColumnInfo], CalendarView]:
+    """The scan's calendar, fitted on ``table`` (the reference in check mode), the column list with a
+    feature per calendar part and duration after the date columns they come from, and ``table`` as the fitted
+    calendar reads it (its dates parsed once: the preparation and the calendar's hits of the same table reuse
+    it)."""
     names = {c.name: c for c in columns}
     named = options.dates if isinstance(options.dates, tuple) else ()
     for name in named:
@@ -559,7 +562,7 @@ def calendar_columns(table: Table, columns: list[ColumnInfo], options) -> tuple[
             info.reason = f"dates: used through their calendar parts ({', '.join(calendar.parts_[info.name])})"
         out.append(info)
         out += derived.get(info.name, [])
-    return calendar, out
+    return calendar, out, view
 
 
 def _part_reason(name: str) -> str:

@@ -210,11 +210,15 @@ class FeaturePreparer:
     def _view(self, table: Table) -> CalendarView | None:
         return self.calendar.read(table) if self.calendar is not None else None
 
-    def calendar_hits(self, table: Table) -> list[list[dict]]:
-        """The calendar column hits of the records of ``table`` (none without date columns)."""
-        return self.calendar.hits(table) if self.calendar is not None else [[] for _ in range(table.n_rows)]
+    def calendar_hits(self, table: Table, view: CalendarView | None = None) -> list[list[dict]]:
+        """The calendar column hits of the records of ``table`` (none without date columns); ``view``: ``table``
+        as this preparer's calendar already read it."""
+        if self.calendar is None:
+            return [[] for _ in range(table.n_rows)]
+        return (view if view is not None else self.calendar.read(table)).hits()
 
-    def fit(self, table: Table, columns: list[ColumnInfo]) -> FeaturePreparer:
+    def fit(self, table: Table, columns: list[ColumnInfo], view: CalendarView | None = None) -> FeaturePreparer:
+        """Fit on ``table``'s feature columns (``view``: ``table`` as the calendar already read it)."""
         self.notices_: list[str] = []
         self.specs_: list[FeatureSpec] = []
         self.n_fit_ = table.n_rows
@@ -228,7 +232,7 @@ class FeaturePreparer:
                     "numeric feature columns only", parameters=("log",)
                 )
         seen: dict[int, str] = {}
-        view = self._view(table)
+        view = view if view is not None else self._view(table)
         for info in chosen:
             spec = self._fit_column(table, info, log_cols, view)
             if spec is None:
@@ -346,14 +350,15 @@ class FeaturePreparer:
                 t = np.log(np.maximum(t + spec.offset, 0) if spec.offset else t)
         return np.where(np.isfinite(t), t, np.nan)
 
-    def transform(self, table: Table) -> Features:
+    def transform(self, table: Table, view: CalendarView | None = None) -> Features:
+        """``table``'s records as prepared features (``view``: ``table`` as the calendar already read it)."""
         frame = table.frame
         n, p = len(frame), len(self.specs_)
         transformed = np.empty((n, p))
         imputed = np.zeros((n, p), dtype=bool)
         raw = np.full((n, p), np.nan)
         level_arrays: dict[int, np.ndarray] = {}
-        view = self._view(table)
+        view = view if view is not None else self._view(table)
         for j, spec in enumerate(self.specs_):
             values = self.column_values(table, spec.name, view)
             if spec.role == CATEGORICAL:

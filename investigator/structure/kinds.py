@@ -150,9 +150,12 @@ def calibrate_kinds(method, scores: np.ndarray, labels: np.ndarray) -> KindCalib
 
 
 def find_kinds(X: np.ndarray, columns: np.ndarray, mcd: FastMCD, *, seed: int = 0,
-               notices: list[str] | None = None) -> KindsOfNormal | None:
+               notices: list[str] | None = None, candidates: np.ndarray | None = None) -> KindsOfNormal | None:
     """The kinds of normal among the records of X (prepared features), or None when there are fewer than
-    two real large clusters. ``columns``: the features the fits use; ``mcd``: how to fit them."""
+    two real large clusters. ``columns``: the features the fits use; ``mcd``: how to fit them.
+    ``candidates``: the kind of every record of X as another fit found it (a peer-group segment carries the
+    whole table's kinds); they replace step 1's HDBSCAN candidates, a kind with fewer members here than a large
+    cluster counting as unassigned, and steps 2-4 judge them on these records as they judge HDBSCAN's."""
     X = np.asarray(X, dtype=float)
     n = len(X)
     big = large_size(n)
@@ -162,7 +165,7 @@ def find_kinds(X: np.ndarray, columns: np.ndarray, mcd: FastMCD, *, seed: int = 
     rows = sampling.sample(X, SAMPLE, [seed, 11], keys)
     Xs = X[rows][:, columns]
     big_s = large_size(len(rows))
-    labels = _candidates(Xs, big_s)
+    labels = _candidates(Xs, big_s) if candidates is None else _carried(np.asarray(candidates)[rows], big_s)
     if labels.max() < 1:
         return None
     # While the kinds are found, fits start from fewer random starts (each is refined by concentration steps
@@ -190,7 +193,8 @@ def find_kinds(X: np.ndarray, columns: np.ndarray, mcd: FastMCD, *, seed: int = 
                            "kind of normal")
         return None
     bic_kinds, bic_one = _bic(Xs, labels, fits), _bic(Xs, np.zeros(len(Xs), dtype=int), [quick.fit(Xs)])
-    params = {"method": "HDBSCAN candidates, nearest-kind concentration steps (TCLUST), BIC against one fit",
+    params = {"method": ("HDBSCAN candidates" if candidates is None else "the whole table's kinds as candidates")
+              + ", nearest-kind concentration steps (TCLUST), BIC against one fit",
               "large_cluster_size": big, "sample": int(len(rows)), "rounds": rounds,
               "bic_kinds": float(bic_kinds), "bic_one": float(bic_one), "merged": merged}
     if not bic_kinds < bic_one:
@@ -216,6 +220,16 @@ def _candidates(Xs: np.ndarray, big: int) -> np.ndarray:
     labels = np.empty(len(Xs), dtype=int)
     labels[order] = found
     return labels
+
+
+def _carried(labels: np.ndarray, big: int) -> np.ndarray:
+    """Candidate labels carried from another fit: kinds with at least ``big`` members here, numbered 0, 1, ...;
+    the members of smaller ones -1 (as HDBSCAN's noise: the concentration steps give them a kind)."""
+    counts = np.bincount(labels[labels >= 0]) if (labels >= 0).any() else np.zeros(0, dtype=int)
+    number = np.full(len(counts) + 1, -1, dtype=int)
+    kept = np.flatnonzero(counts >= big)
+    number[kept] = np.arange(len(kept))
+    return number[np.where(labels >= 0, labels, len(counts))]
 
 
 def _shares(labels: np.ndarray, k: int) -> tuple[float, ...]:

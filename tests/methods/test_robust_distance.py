@@ -136,3 +136,31 @@ def test_an_exact_linear_pair_is_handled(n):
     result = investigator.scan(frame, methods="robust_distance", log="none")
     assert any("singular" in notice for notice in result.run.notices)
     assert int(np.argmax(result.scores("robust_distance"))) == 4
+
+
+# -- DetMCD alone (no random starts: a peer-group segment's own fit, pipeline/scoring.py SEGMENT) ---------------
+def test_hbk_without_random_starts_finds_the_same_fit(hbk):
+    # The deterministic starts of DetMCD (Hubert, Rousseeuw & Verdonck 2012) alone reach the multi-start optimum
+    # on Hawkins-Bradu-Kass, and the reweighted distances flag rows 1-14 (Rousseeuw & Leroy 1987).
+    X = hbk.to_numpy(dtype=float)
+    alone = FastMCD(n_starts=0).fit(X)
+    assert alone.raw_logdet == pytest.approx(FastMCD(seed=0).fit(X).raw_logdet, abs=1e-10)
+    d2 = np.array([mahalanobis(x, alone.location, np.linalg.inv(alone.covariance)) ** 2 for x in X])
+    assert (np.flatnonzero(d2 > stats.chi2.ppf(0.975, 3)) + 1).tolist() == list(range(1, 15))
+
+
+def test_without_random_starts_on_more_records_the_outliers_match_scikit_learn():
+    # 1,500 records (above the size where random starts are split into parts), 5 features, 8% planted outliers
+    # in a tight cluster off the bulk; reference: scikit-learn's MinCovDet (its own FastMCD with random starts),
+    # whose reweighted distances flag the same records above the chi-square 0.975 quantile.
+    from sklearn.covariance import MinCovDet
+
+    rng = np.random.default_rng(5)
+    X = rng.normal(size=(1500, 5)) @ np.diag([1, 2, 0.5, 1, 3])
+    X[:120] = rng.normal(4, 0.2, size=(120, 5))
+    cut = stats.chi2.ppf(0.975, 5)
+    alone = FastMCD(n_starts=0).fit(X)
+    ours = np.einsum("ij,jk,ik->i", X - alone.location, np.linalg.inv(alone.covariance), X - alone.location) > cut
+    theirs = MinCovDet(random_state=0).fit(X).mahalanobis(X) > cut
+    assert ours[:120].all() and theirs[:120].all()
+    assert np.mean(ours == theirs) >= 0.995

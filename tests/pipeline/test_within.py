@@ -124,9 +124,12 @@ def test_every_segment_with_its_own_fit_is_what_a_scan_of_its_rows_alone_gives(l
     assert [s.label for s in own] == ["category = services", "category = stationery", "category = travel"]
     for s in own:
         rows = np.flatnonzero(lines["category"].to_numpy() == s.values[0])
-        # A segment's own scan searches with the segment effort (fewer MCD starts and trees, scoring.SEGMENT).
+        # A segment's own scan searches with the segment effort (fewer MCD starts and trees, scoring.SEGMENT)
+        # and starts from the whole table's kinds of normal, not a search of its own.
+        carried = None if within.kinds is None else within.kinds.labels[rows]
         alone = run_scan(load_table(lines.iloc[rows].reset_index(drop=True), id_column="invoice"),
-                         ScanOptions(id="invoice", exclude=("category",), seed=SEED), effort=SEGMENT)
+                         ScanOptions(id="invoice", exclude=("category",), seed=SEED), effort=SEGMENT,
+                         kinds_from=carried)
         for key, r in alone.method_results.items():
             np.testing.assert_array_equal(w.methods[key].scores[rows], r.scores, err_msg=f"{s.label} {key}")
             np.testing.assert_array_equal(w.methods[key].flags[rows], r.flags)
