@@ -139,12 +139,15 @@ def test_an_exact_linear_pair_is_handled(n):
 
 
 # -- DetMCD alone (no random starts: a peer-group segment's own fit, pipeline/scoring.py SEGMENT) ---------------
-def test_hbk_without_random_starts_finds_the_same_fit(hbk):
-    # The deterministic starts of DetMCD (Hubert, Rousseeuw & Verdonck 2012) alone reach the multi-start optimum
-    # on Hawkins-Bradu-Kass, and the reweighted distances flag rows 1-14 (Rousseeuw & Leroy 1987).
+def test_hbk_without_random_starts_flags_the_fourteen_outliers(hbk):
+    # The deterministic starts of DetMCD (Hubert, Rousseeuw & Verdonck 2012) alone, on Hawkins-Bradu-Kass: the
+    # reweighted distances flag rows 1-14 (Rousseeuw & Leroy 1987). The raw fit is a near-optimal h-subset, not
+    # the optimum: its log-determinant is 0.002 above the 500-start one (measured; 50 random starts reach the
+    # same near-optimal subset).
     X = hbk.to_numpy(dtype=float)
     alone = FastMCD(n_starts=0).fit(X)
-    assert alone.raw_logdet == pytest.approx(FastMCD(seed=0).fit(X).raw_logdet, abs=1e-10)
+    best = FastMCD(seed=0).fit(X).raw_logdet
+    assert best <= alone.raw_logdet <= best + 0.01
     d2 = np.array([mahalanobis(x, alone.location, np.linalg.inv(alone.covariance)) ** 2 for x in X])
     assert (np.flatnonzero(d2 > stats.chi2.ppf(0.975, 3)) + 1).tolist() == list(range(1, 15))
 
