@@ -8,6 +8,7 @@ from sklearn.ensemble import IsolationForest
 from sklearn.neighbors import LocalOutlierFactor
 
 import investigator
+from fixtures.calls import row_counts
 from investigator.methods.neighbors import NeighborSearch
 from investigator.sampling import canonical_order
 
@@ -47,14 +48,7 @@ def test_isolation_equals_scikit_learn_isolation_forest(scanned):
 
 
 def test_the_neighbour_search_runs_once_per_scan(monkeypatch):
-    calls = []
-    original = NeighborSearch.fit
-
-    def counting(self, X):
-        calls.append(len(X))
-        return original(self, X)
-
-    monkeypatch.setattr(NeighborSearch, "fit", counting)
+    calls = row_counts(monkeypatch, NeighborSearch, "fit", rows_at=1)
     rng = np.random.default_rng(2)
     investigator.scan(pd.DataFrame(rng.normal(size=(120, 3)), columns=list("abc")), log="none")
     assert calls == [120]

@@ -17,6 +17,7 @@ import pandas as pd
 import pytest
 
 import investigator
+from fixtures.calls import row_counts
 from investigator.methods.mcd import FastMCD
 from investigator.structure import kinds as kinds_module
 from investigator.structure.kinds import find_kinds, large_size
@@ -88,14 +89,7 @@ def test_a_segment_with_a_handful_of_one_kind_is_one_kind(scanned):
 
 
 def test_segments_do_not_search_for_kinds_again(monkeypatch):
-    calls = []
-    searched = kinds_module._candidates
-
-    def counted(Xs, big):
-        calls.append(len(Xs))
-        return searched(Xs, big)
-
-    monkeypatch.setattr(kinds_module, "_candidates", counted)
+    calls = row_counts(monkeypatch, kinds_module, "_candidates")  # HDBSCAN's candidates, one call per search
     frame, _ = claims()
     result = investigator.scan(frame, id="claim", within="department", seed=SEED, cache=False)
     assert len(result.within.fits) == 3
