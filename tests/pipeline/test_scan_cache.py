@@ -105,6 +105,25 @@ def test_a_changed_file_option_or_version_is_never_served(demo_copy, scans, monk
     monkeypatch.setattr(scan_cache, "__version__", "0.0.0-other")  # the program's version
     investigator.scan(demo_copy, id=DEMO_ID)
     assert len(scans) == 5
+    # the program's source, its version unchanged (a checkout being worked on)
+    monkeypatch.setattr(scan_cache, "code_digest", lambda: "0" * 64)
+    investigator.scan(demo_copy, id=DEMO_ID)
+    assert len(scans) == 6
+
+
+def test_the_source_digest_is_the_sha256_of_the_package_files():
+    # Reference: hashlib over the package's .py and .tcss files, walked here with os.walk.
+    import hashlib
+    import os
+    from pathlib import Path
+
+    root = Path(investigator.__file__).resolve().parent
+    files = sorted(Path(folder, name) for folder, _, names in os.walk(root) for name in names
+                   if name.endswith((".py", ".tcss")))
+    digest = hashlib.sha256()
+    for path in files:
+        digest.update(path.relative_to(root).as_posix().encode("utf-8") + b"\0" + path.read_bytes())
+    assert scan_cache.code_digest() == digest.hexdigest()
 
 
 def test_the_whole_key_is_compared_not_only_the_digest(demo_copy, scans):

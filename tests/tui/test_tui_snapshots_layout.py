@@ -46,6 +46,14 @@ def test_map_while_the_umap_map_is_computed(snap_compare, tmp_path, size, monkey
         await pilot.press("3")
         await settle(pilot.app, pilot)
         assert pilot.app.map_progress is not None and pilot.app.map_points.kind == "pca"
+        # The worker's step again (by way of 0, so that the bar takes it anew), now that the bar is laid out:
+        # Textual rounds a bar's value to its width only once it has one, so the step, when it came before the
+        # first layout, was drawn half a cell longer (the snapshot failed 1 run in 3 on it).
+        stage, fraction = pilot.app.map_progress
+        pilot.app.map_progress = (stage, 0.0)
+        await pilot.pause()
+        pilot.app.map_progress = (stage, fraction)
+        await pilot.pause()
 
     assert snap_compare(demo_app(tmp_path), terminal_size=size, run_before=computing)
 
