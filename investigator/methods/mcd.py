@@ -323,9 +323,9 @@ class FastMCD:
         rng = np.random.default_rng([self.seed, 11])
         n, p = X.shape
         if n <= 2 * PART or not self.n_starts:
-            # No random starts: DetMCD's fixed starts alone, each on every record. Random starts are cheap on
-            # small data: three times as many (with 500, 1 seed in 30 missed the
-            # Hawkins-Bradu-Kass optimum, measured; with 1,500 none of 30 did).
+            # Random starts are cheap on small data: three times as many (with 500, 1 seed in 30 missed the
+            # Hawkins-Bradu-Kass optimum, measured; with 1,500 none of 30 did). With none (DetMCD alone), the
+            # fixed starts below decide, each on every record, whatever n is.
             candidates = self._starts(X, h, SMALL_DATA_STARTS * self.n_starts, rng, ridge)
             sub = None
         else:

@@ -74,8 +74,9 @@ PER_FEATURE = 10  # ... and at least this many per feature
 MISSING = "(missing)"
 NOTICES_LISTED = 5  # pooled segments named one by one; beyond, one notice counts the rest
 
-# scan(table, options, reference) -> the result of an ordinary scan (the engine's run_scan, handed in so that this
-# module and the engine do not import each other).
+# scan(table, options, reference, kinds) -> the result of an ordinary scan (the engine's run_scan, handed in so that
+# this module and the engine do not import each other); kinds: the whole table's kind of each of the segment's
+# records, or None (one kind).
 SegmentScan = Callable[[Table, ScanOptions, Table | None, np.ndarray | None], ScanResult]
 
 

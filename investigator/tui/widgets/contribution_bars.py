@@ -12,6 +12,7 @@ from textual.widgets import Static
 
 from investigator.explain.explanation import Contribution, Explanation
 from investigator.printable import printable
+from investigator.tui.plain import ellipsis
 
 
 def bars_text(contributions: dict[str, tuple[Contribution, ...]], flags: dict[str, bool], width: int = 80,
@@ -30,7 +31,7 @@ def bars_text(contributions: dict[str, tuple[Contribution, ...]], flags: dict[st
             out.append("  (no contribution)\n", style="dim")
         for c in [c for c in items if c.value > 0][:top]:
             n = max(0, min(bar_w, round(c.share * bar_w)))
-            out.append(f"  {_fit(printable(c.feature), name_w):<{name_w}} ")
+            out.append(f"  {ellipsis(printable(c.feature), name_w):<{name_w}} ")
             out.append(f"{'█' * n:<{bar_w}}", style="bold" if flags.get(method) else "")
             out.append(f" {c.share:>5.0%}\n")
         pulling = [printable(c.feature) for c in items if c.value < 0][:3]
@@ -38,10 +39,6 @@ def bars_text(contributions: dict[str, tuple[Contribution, ...]], flags: dict[st
             verb = "makes" if len(pulling) == 1 else "make"
             out.append(f"  {', '.join(pulling)} {verb} it look more ordinary\n", style="dim")
     return out
-
-
-def _fit(name: str, width: int) -> str:
-    return name if len(name) <= width else name[: width - 1] + "…"
 
 
 class ContributionBars(Static):
