@@ -2,10 +2,18 @@
 
 from __future__ import annotations
 
+import os
+from concurrent.futures import ThreadPoolExecutor
+
 import numpy as np
 
 from investigator import sampling
 from investigator.methods.base import Method
+
+# From this many records the scores are computed in row blocks on every core: the trees' descent releases
+# Python's lock, and a record's score does not depend on the block it is in (1,000,000 x 22 records, 200
+# trees: 10.0 s in one thread, 4.8 s in two, the same scores to the bit; measured on the 2-core machine).
+PARALLEL_FROM = 50_000
 
 
 class Isolation(Method):
@@ -50,7 +58,13 @@ class Isolation(Method):
         return self.score(X)
 
     def score(self, X, neighbors=None):
-        return -self.forest_.score_samples(X)
+        cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count() or 1
+        if cores < 2 or len(X) < PARALLEL_FROM:
+            return -self.forest_.score_samples(X)
+        edges = np.linspace(0, len(X), 4 * cores + 1).astype(int)  # several blocks a core: they end unevenly
+        with ThreadPoolExecutor(cores) as pool:
+            parts = pool.map(lambda a, b: self.forest_.score_samples(X[a:b]), edges[:-1], edges[1:])
+            return -np.concatenate(list(parts))
 
     def _regularise(self, scores):
         return np.asarray(scores, dtype=float)  # already on a bounded, roughly symmetric scale

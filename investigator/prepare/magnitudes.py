@@ -46,8 +46,21 @@ def quantiles(t: np.ndarray, q) -> np.ndarray:
     return np.ldexp(np.quantile(np.ldexp(t, -k), q), k) if k else np.quantile(t, q)
 
 
+SMALL = 64  # up to this many values the median is taken from a sort (np.quantile costs 0.1 ms a call)
+
+
 def median(t: np.ndarray) -> float:
     """The median, safe near the float limits (the mean of the two middle values may overflow)."""
+    t = np.asarray(t, dtype=float)
+    if 0 < t.size <= SMALL and t.ndim == 1 and np.isfinite(t).all() and not shift_of(t):
+        # np.quantile's own arithmetic (its linear interpolation at 0.5 is b - (b - a) * 0.5 between the two
+        # middle values), so the result is the same to the bit.
+        s = np.sort(t)
+        middle = len(s) // 2
+        if len(s) % 2:
+            return float(s[middle])
+        a, b = float(s[middle - 1]), float(s[middle])
+        return b - (b - a) * 0.5
     return float(quantiles(t, 0.5))
 
 

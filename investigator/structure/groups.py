@@ -42,15 +42,14 @@ the samples.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from sklearn.cluster import HDBSCAN
 from sklearn.neighbors import NearestNeighbors
 
 from investigator import sampling
+from investigator.structure.density import hdbscan_labels
 from investigator.structure.kinds import LARGE_SHARE, large_size
 
 FAR = 3.0  # a member at over 3x its cluster's median core distance is not a member
@@ -178,17 +177,6 @@ def find_groups(X: np.ndarray, flagged: np.ndarray, *, seed: int = 0,
     return _number(final, n_large, flagged, params, notices)
 
 
-def _hdbscan(X: np.ndarray, min_cluster_size: int, min_samples: int) -> np.ndarray:
-    order = sampling.canonical_order(X)  # HDBSCAN breaks ties in input order: give it the content order
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", FutureWarning)  # the default of `copy` is changing; we pass it
-        model = HDBSCAN(min_cluster_size=min_cluster_size, min_samples=min_samples, copy=True)
-        found = model.fit(X[order]).labels_
-    labels = np.empty(len(X), dtype=int)
-    labels[order] = found
-    return labels
-
-
 def _group_set(X: np.ndarray, flagged: np.ndarray, seed: int) -> np.ndarray:
     """The records clustered for groups: all of them, or every flagged record and a sample of the rest,
     both drawn by content."""
@@ -205,7 +193,7 @@ def _groups(X: np.ndarray, flagged: np.ndarray, m: int, big: int, seed: int) -> 
     """Small groups: labels 0..g-1 per record (-1 none), and the number of records clustered."""
     n = len(X)
     rows = _group_set(X, flagged, seed)
-    set_labels = _hdbscan(X[rows], m, m)
+    set_labels = hdbscan_labels(X[rows], m, m)
     labels = np.full(n, -1)
     labels[rows] = set_labels
     # Only clusters that can still be groups are carried on. Their flagged share in the set is an upper

@@ -40,17 +40,16 @@ and nothing here changes a fitted method.
 from __future__ import annotations
 
 import math
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import stats
-from sklearn.cluster import HDBSCAN
 
 from investigator import sampling
 from investigator.methods.base import Scale
 from investigator.methods.fitted import owned, read_only
 from investigator.methods.mcd import FastMCD, MCDFit, sq_distances
+from investigator.structure.density import hdbscan_labels
 
 LARGE_SHARE = 0.05
 LARGE_MIN = 25
@@ -165,7 +164,10 @@ def find_kinds(X: np.ndarray, columns: np.ndarray, mcd: FastMCD, *, seed: int = 
     rows = sampling.sample(X, SAMPLE, [seed, 11], keys)
     Xs = X[rows][:, columns]
     big_s = large_size(len(rows))
-    labels = _candidates(Xs, big_s) if candidates is None else _carried(np.asarray(candidates)[rows], big_s)
+    if candidates is None:
+        labels = hdbscan_labels(Xs, big_s, min(MIN_SAMPLES, len(Xs) - 1))
+    else:
+        labels = _carried(np.asarray(candidates)[rows], big_s)
     if labels.max() < 1:
         return None
     # While the kinds are found, fits start from fewer random starts (each is refined by concentration steps
@@ -209,17 +211,6 @@ def find_kinds(X: np.ndarray, columns: np.ndarray, mcd: FastMCD, *, seed: int = 
     shares = _shares(labels, len(fits))
     labels = _nearest(Xc, fits, shares)
     return KindsOfNormal(tuple(fits), owned(columns), labels, params, shares)
-
-
-def _candidates(Xs: np.ndarray, big: int) -> np.ndarray:
-    order = sampling.canonical_order(Xs)  # HDBSCAN's tie-breaking follows the input order
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", FutureWarning)  # the default of `copy` is changing; we pass it
-        found = HDBSCAN(min_cluster_size=big, min_samples=min(MIN_SAMPLES, len(Xs) - 1),
-                        copy=True).fit(Xs[order]).labels_
-    labels = np.empty(len(Xs), dtype=int)
-    labels[order] = found
-    return labels
 
 
 def _carried(labels: np.ndarray, big: int) -> np.ndarray:

@@ -138,6 +138,36 @@ def _neighbors(reference: np.ndarray, k: int):
     return NearestNeighbors(n_neighbors=k, algorithm="brute").fit(reference)
 
 
+def _import_umap():
+    """umap-learn, imported so that numba keeps every function it compiles in its cache folder.
+
+    umap-learn and pynndescent mark few of their functions ``cache=True``. Those given a signature are compiled
+    as the module is imported (0.9 s of every map run, measured with cProfile on this machine), so numba's
+    decorators default to ``cache=True`` while the two packages are imported; the rest are let cache
+    afterwards (:func:`_keep_compiled`). The cache is numba's own, keyed by the source file and its timestamp."""
+    if "umap" in sys.modules:
+        import umap
+
+        return umap
+    import numba
+
+    originals = numba.njit, numba.jit
+
+    def caching(decorator):
+        def decorate(*args, **kwargs):
+            kwargs.setdefault("cache", True)
+            return decorator(*args, **kwargs)
+        return decorate
+
+    numba.njit, numba.jit = caching(numba.njit), caching(numba.jit)
+    try:
+        import umap
+    finally:
+        numba.njit, numba.jit = originals
+    _keep_compiled(("umap", "pynndescent"))
+    return umap
+
+
 def _keep_compiled(packages: tuple[str, ...]) -> None:
     """Let numba keep every compiled function of ``packages`` in its cache folder, not only those their authors
     marked ``cache=True``: most of UMAP's own are not, and compiling them took 8.6 s of CPU on every map of the
@@ -166,9 +196,7 @@ def _umap(X: np.ndarray, seed: int, keep: np.ndarray | None, notices: list[str],
     # machine; 3.9 s alone), and only a UMAP map needs it. numba reads its cache folder when it is imported, so
     # the folder is set first (investigator/user_folders.py).
     use_numba_cache()
-    import umap
-
-    _keep_compiled(("umap", "pynndescent"))
+    umap = _import_umap()
 
     n = len(X)
     rows = _fit_rows(n, keep, np.random.default_rng([seed, 17]))

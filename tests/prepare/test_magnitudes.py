@@ -18,7 +18,16 @@ from scipy import stats
 
 from investigator.io.tables import load_table
 from investigator.prepare.features import FeaturePreparer, column_scale
-from investigator.prepare.magnitudes import BOUND, FLOAT_MAX, mean_sd, quantiles, standardise, unstandardise
+from investigator.prepare.magnitudes import (
+    BOUND,
+    FLOAT_MAX,
+    SMALL,
+    mean_sd,
+    median,
+    quantiles,
+    standardise,
+    unstandardise,
+)
 from investigator.prepare.roles import assign_roles
 
 EXTREMES = [1e40, 1e155, 1e300, 1.7e308, -1e308, FLOAT_MAX, -FLOAT_MAX]
@@ -64,6 +73,33 @@ def test_quantiles_match_exact_arithmetic_where_floats_overflow():
     exact = [Fraction(v) for v in sorted(x)]
     assert quantiles(x, 0.5) == float((exact[1] + exact[2]) / 2)
     assert quantiles(x, 0.25) == float(exact[0] + (exact[1] - exact[0]) * Fraction(3, 4))
+
+
+def _values(kind: str, n: int, rng) -> np.ndarray:
+    if kind == "normal":
+        return rng.normal(size=n)
+    if kind == "ratings":
+        return rng.integers(1, 6, n).astype(float)
+    if kind == "zero-inflated amounts":
+        return np.round(rng.lognormal(3, 1, n), 2) * (rng.random(n) < 0.4)
+    if kind == "wide magnitudes":
+        return rng.lognormal(0, 40, n) * rng.choice([-1.0, 1.0], n)
+    if kind == "float limits":
+        return rng.uniform(-1, 1, n) * 1.7e308
+    return np.where(np.arange(n) == n // 2, np.nan, rng.normal(size=n))  # with a missing value
+
+
+@pytest.mark.parametrize("kind", ["normal", "ratings", "zero-inflated amounts", "wide magnitudes", "float limits",
+                                  "with a missing value"])
+def test_the_median_of_a_few_values_is_numpys_to_the_bit(kind):
+    # Reference: NumPy's np.quantile(t, 0.5) (through quantiles(), which shifts values near the float limits);
+    # small arrays take a sorted shortcut that must give the same bits (peers' typical values use it).
+    rng = np.random.default_rng(5)
+    for n in range(1, SMALL + 8):
+        for _ in range(20):
+            t = _values(kind, n, rng)
+            expected = float(quantiles(t, 0.5))
+            assert median(t) == expected or (np.isnan(expected) and np.isnan(median(t))), (kind, n, t)
 
 
 def test_mean_and_standard_deviation_match_exact_arithmetic():

@@ -161,3 +161,31 @@ def test_progress_reports_the_steps_of_a_umap_map_and_can_stop_it(monkeypatch):
     with pytest.raises(Stop):
         embed(X, method="umap", seed=0, progress=stop_at_the_fit)
     assert embed(X, method="pca", progress=stop_at_the_fit).method == "pca"  # PCA is one quick step: no reports
+
+
+_IMPORT_AND_COUNT = """
+import numba
+decorators = numba.njit, numba.jit
+from investigator.structure.map import _import_umap
+umap = _import_umap()
+compiled = umap.utils.tau_rand_int  # given a signature: compiled while umap-learn is imported
+assert (numba.njit, numba.jit) == decorators, "numba's decorators were not put back"
+print(sum(compiled.stats.cache_hits.values()), sum(compiled.stats.cache_misses.values()))
+"""
+
+
+def test_functions_compiled_while_umap_learn_is_imported_come_from_numbas_cache_the_next_time():
+    # numba's own record of where a function came from (Dispatcher.stats), read in two fresh processes that
+    # share one cache folder (the test run's, see conftest.py): the first fills it if it is empty, the second
+    # must find the function there. Without cache=True during the import, numba compiles it every time.
+    import subprocess
+    import sys
+
+    def run() -> tuple[int, int]:
+        done = subprocess.run([sys.executable, "-c", _IMPORT_AND_COUNT], capture_output=True, text=True,
+                              check=True)
+        hits, misses = done.stdout.split()
+        return int(hits), int(misses)
+
+    run()
+    assert run() == (1, 0)
