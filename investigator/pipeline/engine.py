@@ -50,6 +50,7 @@ from investigator.pipeline.scoring import (
     reference_combined_fence,
 )
 from investigator.pipeline.stability import flag_stability
+from investigator.pipeline.threads import on_one_blas_thread
 from investigator.pipeline.within import check_within, peer_groups
 from investigator.prepare.calendar import calendar_columns
 from investigator.prepare.features import FeaturePreparer, Features, beyond_bound_notices, column_numbers
@@ -64,6 +65,7 @@ from investigator.structure.map import embed
 from investigator.version import __version__
 
 
+@on_one_blas_thread
 def run_scan(table: Table, options: ScanOptions, progress: Progress = silent,
              reference: Table | None = None, *, groups: bool = True, screens: bool = True,
              effort: Effort = FULL, kinds_from: np.ndarray | str | None = "search") -> ScanResult:

@@ -55,7 +55,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from threadpoolctl import threadpool_limits
 
 from investigator.errors import InputError
 from investigator.explain.explanation import WHOLE_TABLE, MethodScore, WithinSegment
@@ -212,20 +211,17 @@ def peer_groups(table: Table, options: ScanOptions, scan: SegmentScan, *, overal
     fits: dict[int, ScanResult] = {}  # by level: the segments scanned on their own
     failed: dict[int, str] = {}
     present = [s for s in range(len(levels)) if counts[s]]  # in a check, levels only the reference has are left out
-    # One BLAS thread for the segments: their matrices are small (a few thousand records), and there the
-    # threads' start-up costs more than it saves (a segment of 2,330 x 22 scanned in 0.94 s with two threads,
-    # 0.51 s with one; the whole table's scan, before this, keeps both).
-    with threadpool_limits(limits=1, user_api="blas"):
-        for n, s in enumerate(present):
-            progress(f"segments ({n + 1} of {len(present)})", 0.96 + 0.03 * n / max(len(present), 1))
-            if fit_counts[s] < line:
-                continue
-            try:
-                fit_rows = None if reference is None else reference.subset(fit_codes == s)
-                carried = None if kinds is None else np.asarray(kinds.labels)[codes == s]
-                fits[s] = scan(table.subset(codes == s), seg_options, fit_rows, carried)
-            except InputError as error:  # e.g. no feature varies within the segment
-                failed[s] = str(error)
+    # The segments run inside the whole scan's one BLAS thread (pipeline/threads.py).
+    for n, s in enumerate(present):
+        progress(f"segments ({n + 1} of {len(present)})", 0.96 + 0.03 * n / max(len(present), 1))
+        if fit_counts[s] < line:
+            continue
+        try:
+            fit_rows = None if reference is None else reference.subset(fit_codes == s)
+            carried = None if kinds is None else np.asarray(kinds.labels)[codes == s]
+            fits[s] = scan(table.subset(codes == s), seg_options, fit_rows, carried)
+        except InputError as error:  # e.g. no feature varies within the segment
+            failed[s] = str(error)
 
     n = table.n_rows
     out = {k: WithinScores(np.full(n, np.nan), np.zeros(n, bool), np.full(n, np.nan), np.full(n, np.nan),
