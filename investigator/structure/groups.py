@@ -2,7 +2,9 @@
 
 Everything happens in the prepared (robust-scaled) feature space the methods saw, never in the 2-D map,
 which distorts density. Clustering is HDBSCAN (Campello, Moulavi & Sander 2013, "Density-based clustering
-based on hierarchical density estimates"), scikit-learn's ``HDBSCAN``, run twice with different purposes.
+based on hierarchical density estimates"), scikit-learn's ``HDBSCAN`` labels (computed through
+:mod:`investigator.structure.density`, whose core-distance search is quicker in many dimensions), run twice
+with different purposes.
 
 1. **Kinds of normal** (large clusters). HDBSCAN with ``min_cluster_size`` = the large-cluster size and
    ``min_samples`` = 10, on a reproducible sample of ``KINDS_SAMPLE`` (5,000) records, or all records when

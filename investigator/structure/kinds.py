@@ -3,10 +3,10 @@
 Two kinds of trip (a day trip and an overnight one) are not outliers of each other. When the records form
 two or more large clusters, every method judges each record within its kind. Four steps:
 
-1. **Candidates.** HDBSCAN (Campello, Moulavi & Sander 2013; scikit-learn's ``HDBSCAN``) with
-   ``min_cluster_size`` = the large-cluster size (5% of the records, at least 25) and ``min_samples`` = 10,
-   on a sample of up to ``SAMPLE`` (5,000) records drawn by content. HDBSCAN finds the dense core of each
-   cluster, not its shell.
+1. **Candidates.** HDBSCAN (Campello, Moulavi & Sander 2013; scikit-learn's ``HDBSCAN`` labels, through
+   :mod:`investigator.structure.density`) with ``min_cluster_size`` = the large-cluster size (5% of the
+   records, at least 25) and ``min_samples`` = 10, on a sample of up to ``SAMPLE`` (5,000) records drawn by
+   content. HDBSCAN finds the dense core of each cluster, not its shell.
 2. **Every record to the kind it is nearest to**, iterated as in trimmed model-based clustering (TCLUST:
    Garcia-Escudero, Gordaliza, Matran & Mayo-Iscar 2008, "A general trimming approach to robust cluster
    analysis", Annals of Statistics 36(3)): fit one MCD per kind on its members (MRCD where a kind's core is

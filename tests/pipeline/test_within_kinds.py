@@ -7,7 +7,7 @@ third ("archive") has only a handful of overnight trips, fewer than a large clus
 kind there. The rows are shuffled.
 
 References outside the code under test: the kind each claim was drawn from (known by construction), and a count
-of the HDBSCAN searches made (structure/kinds.py ``_candidates``), so that a segment is seen not to search again.
+of the HDBSCAN searches made (``hdbscan_labels`` as structure/kinds.py calls it), so that a segment is seen not to search again.
 """
 
 from __future__ import annotations
@@ -89,7 +89,7 @@ def test_a_segment_with_a_handful_of_one_kind_is_one_kind(scanned):
 
 
 def test_segments_do_not_search_for_kinds_again(monkeypatch):
-    calls = row_counts(monkeypatch, kinds_module, "_candidates")  # HDBSCAN's candidates, one call per search
+    calls = row_counts(monkeypatch, kinds_module, "hdbscan_labels")  # HDBSCAN's candidates, one call per search
     frame, _ = claims()
     result = investigator.scan(frame, id="claim", within="department", seed=SEED, cache=False)
     assert len(result.within.fits) == 3
