@@ -7,7 +7,8 @@ third ("archive") has only a handful of overnight trips, fewer than a large clus
 kind there. The rows are shuffled.
 
 References outside the code under test: the kind each claim was drawn from (known by construction), and a count
-of the HDBSCAN searches made (``hdbscan_labels`` as structure/kinds.py calls it), so that a segment is seen not to search again.
+of the HDBSCAN searches made (``hdbscan_labels`` as structure/kinds.py calls it), so that a segment is seen not
+to search again.
 """
 
 from __future__ import annotations
