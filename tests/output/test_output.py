@@ -129,3 +129,25 @@ def test_scan_outputs_carry_verdicts_when_a_store_exists(claims, tmp_path):
     assert result.record(4)["verdict"] is None
     frame = pd.read_csv(result.write(tmp_path / "scan.csv"))
     assert frame.loc[3, "verdict"] == "confirmed"
+
+
+def test_the_imputed_and_column_hit_columns_name_exactly_the_missing_cells_and_the_hits():
+    # Reference: the input itself (pandas' isna on the cells given) and the result's own hit lists; most
+    # records have neither, and their text is empty. Invented: 1-5 ratings, zero-inflated amounts to the
+    # cent, a few cells left blank in one or two columns.
+    from investigator.output.records import result_frame
+
+    rng = np.random.default_rng(8)
+    frame = pd.DataFrame({"rating": rng.integers(1, 6, 400).astype(float),
+                          "amount": np.where(rng.random(400) < 0.6, 0.0, np.round(rng.lognormal(3, 1, 400), 2)),
+                          "items": rng.integers(1, 9, 400).astype(float)})
+    frame.loc[[3, 40, 41], "rating"] = np.nan
+    frame.loc[[40, 77], "items"] = np.nan
+    frame.loc[5, "amount"] = 9_000.0
+    result = investigator.scan(frame, log="none")
+    out = result_frame(result)
+    expected = ["; ".join(c for c in ("rating", "items") if pd.isna(frame.at[i, c])) for i in range(len(frame))]
+    assert out["imputed"].tolist() == expected
+    assert out["imputed"][40] == "rating; items"
+    hits = ["; ".join(f"{h['column']}: {h['rule']}" for h in row) for row in result.column_hits]
+    assert out["column_hits"].tolist() == hits and hits[5] != ""
