@@ -28,6 +28,7 @@ fitting the sample.
 
 from __future__ import annotations
 
+import os
 import sys
 import warnings
 from collections.abc import Callable
@@ -144,10 +145,14 @@ def _import_umap():
     umap-learn and pynndescent mark few of their functions ``cache=True``. Those given a signature are compiled
     as the module is imported (0.9 s of every map run, measured with cProfile on this machine), so numba's
     decorators default to ``cache=True`` while the two packages are imported; the rest are let cache
-    afterwards (:func:`_keep_compiled`). The cache is numba's own, keyed by the source file and its timestamp."""
-    if "umap" in sys.modules:
+    afterwards (:func:`_keep_compiled`). The cache is numba's own, keyed by the source file and its timestamp.
+    Without a cache folder (``NUMBA_CACHE_DIR``: set by :func:`~investigator.user_folders.use_numba_cache` where
+    it can make one), umap-learn is imported as it is."""
+    if "umap" in sys.modules or not os.environ.get("NUMBA_CACHE_DIR"):
+        # Imported already, or no cache folder that can be written (numba refuses cache=True without one).
         import umap
 
+        _keep_compiled(("umap", "pynndescent"))
         return umap
     import numba
 
