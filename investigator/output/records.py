@@ -198,9 +198,10 @@ def result_frame(result: ScanResult) -> pd.DataFrame:
                           for hits in result.column_hits]
     imputed = result.features.imputed
     names = result.features.names
-    any_imputed = imputed.any(axis=1) if imputed.ndim == 2 and imputed.shape[1] else np.zeros(len(imputed), bool)
-    out["imputed"] = ["; ".join(names[j] for j in np.flatnonzero(imputed[i])) if some else ""
-                      for i, some in enumerate(any_imputed.tolist())]
+    texts_imputed = [""] * len(imputed)
+    for i in np.flatnonzero(imputed.any(axis=1)) if imputed.ndim == 2 and imputed.shape[1] else ():
+        texts_imputed[i] = "; ".join(names[j] for j in np.flatnonzero(imputed[i]))
+    out["imputed"] = texts_imputed
     flagged = np.flatnonzero(result.flagged)
     texts = np.full(result.n_records, "", dtype=object)
     texts[flagged] = result.explainer.top_features_texts(flagged)
