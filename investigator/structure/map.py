@@ -148,27 +148,25 @@ def _import_umap():
     afterwards (:func:`_keep_compiled`). The cache is numba's own, keyed by the source file and its timestamp.
     Without a cache folder (``NUMBA_CACHE_DIR``: set by :func:`~investigator.user_folders.use_numba_cache` where
     it can make one), umap-learn is imported as it is."""
-    if "umap" in sys.modules or not os.environ.get("NUMBA_CACHE_DIR"):
-        # Imported already, or no cache folder that can be written (numba refuses cache=True without one).
-        import umap
+    if "umap" not in sys.modules and os.environ.get("NUMBA_CACHE_DIR"):
+        # Not imported yet, and a cache folder to write (numba refuses cache=True without one).
+        import numba
 
-        _keep_compiled(("umap", "pynndescent"))
-        return umap
-    import numba
+        originals = numba.njit, numba.jit
 
-    originals = numba.njit, numba.jit
+        def caching(decorator):
+            def decorate(*args, **kwargs):
+                kwargs.setdefault("cache", True)
+                return decorator(*args, **kwargs)
+            return decorate
 
-    def caching(decorator):
-        def decorate(*args, **kwargs):
-            kwargs.setdefault("cache", True)
-            return decorator(*args, **kwargs)
-        return decorate
+        numba.njit, numba.jit = caching(numba.njit), caching(numba.jit)
+        try:
+            import umap  # noqa: F401  (imported here, under the caching decorators)
+        finally:
+            numba.njit, numba.jit = originals
+    import umap
 
-    numba.njit, numba.jit = caching(numba.njit), caching(numba.jit)
-    try:
-        import umap
-    finally:
-        numba.njit, numba.jit = originals
     _keep_compiled(("umap", "pynndescent"))
     return umap
 
